@@ -1,0 +1,107 @@
+"""The one exception module: refusals of bad input, internal faults, numerical cautions.
+
+Every refusal carries its context (file, defined name, sheet, cell) so the message
+a user reads names where the problem is and what to do. The CLI turns a
+``SheetfitError`` into exit status 2 and one line on stderr; anything else is an
+internal fault (exit status 1).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = [
+    "SheetfitError",
+    "DeclarationError",
+    "DataError",
+    "SettingError",
+    "PackageError",
+    "CollinearError",
+    "Context",
+    "SheetfitCaution",
+    "ExtrapolationCaution",
+    "ConditioningCaution",
+]
+
+
+@dataclass(frozen=True)
+class Context:
+    """Where a problem is: file, defined name, sheet and cell (each optional)."""
+
+    file: str | None = None
+    name: str | None = None
+    sheet: str | None = None
+    cell: str | None = None
+
+    def describe(self) -> str:
+        parts = []
+        if self.file:
+            parts.append(self.file)
+        if self.name:
+            parts.append(f"name {self.name}")
+        if self.sheet is not None:
+            where = f"sheet '{self.sheet}'"
+            if self.cell:
+                where += f" cell {self.cell}"
+            parts.append(where)
+        elif self.cell:
+            parts.append(f"cell {self.cell}")
+        return ", ".join(parts)
+
+
+class SheetfitError(Exception):
+    """Base of every refusal: the input cannot be used as it is."""
+
+    def __init__(self, message: str, context: Context | None = None, hint: str | None = None):
+        self.message = message
+        self.context = context or Context()
+        self.hint = hint
+        super().__init__(self.render())
+
+    def render(self) -> str:
+        where = self.context.describe()
+        text = f"{where}: {self.message}" if where else self.message
+        if self.hint:
+            text += f" — {self.hint}"
+        return text
+
+    def with_file(self, file: str) -> "SheetfitError":
+        """Return the same refusal with the file name filled in (if missing)."""
+        if self.context.file:
+            return self
+        ctx = Context(file, self.context.name, self.context.sheet, self.context.cell)
+        new = type(self).__new__(type(self))
+        SheetfitError.__init__(new, self.message, ctx, self.hint)
+        return new
+
+
+class DeclarationError(SheetfitError, LookupError):
+    """A defined name is missing, malformed, points nowhere, or collides with an owned name."""
+
+
+class DataError(SheetfitError, ValueError):
+    """The declared cells cannot be fitted: lengths differ, too few rows, constant columns..."""
+
+
+class SettingError(SheetfitError, ValueError):
+    """A setting in an ``opts`` range is unknown or has a value outside what is allowed."""
+
+
+class PackageError(SheetfitError, OSError):
+    """The workbook file cannot be read or written as an xlsx package."""
+
+
+class CollinearError(DataError):
+    """The design matrix is rank deficient; names the attributes involved."""
+
+
+class SheetfitCaution(UserWarning):
+    """Base of numerical cautions collected during a refresh and shown on the index sheet."""
+
+
+class ExtrapolationCaution(SheetfitCaution):
+    """A prediction lies outside the range of the data the model was fitted on."""
+
+
+class ConditioningCaution(SheetfitCaution):
+    """The attributes are nearly collinear; coefficients are sensitive to small data changes."""

@@ -1,0 +1,68 @@
+"""What sheetfit owns in a user's workbook: sheet names, output names, the owned-sheet marker.
+
+One place for the conventions that the reader (declarations), the sheet planner
+and the grafter must agree on.
+"""
+
+from __future__ import annotations
+
+import re
+
+__all__ = [
+    "PREFIX",
+    "INPUT_ROLES",
+    "OUTPUT_ROLES",
+    "MARKER_NAME",
+    "INDEX_SHEET",
+    "MAX_TAG",
+    "SHEET_KINDS",
+    "sheet_title",
+    "split_name",
+    "quote_sheet",
+]
+
+#: Every declaration and output name starts with this prefix (case-insensitive).
+PREFIX = "sf_"
+
+#: Roles a user declares: response, attributes, rows to predict, settings.
+INPUT_ROLES = ("y", "x", "new", "opts")
+
+#: Roles sheetfit writes; replaced on every refresh, never read as declarations.
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")
+
+#: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
+#: name survives a LibreOffice re-save (ENGINE_NOTES.md, grafting item 2).
+MARKER_NAME = "_sheetfit_owned"
+
+#: Title of the one index sheet per book.
+INDEX_SHEET = "sf index"
+
+#: Owned sheet kinds and the word used in their titles.
+SHEET_KINDS = {"coef": "coef", "fitted": "fitted", "resid": "resid"}
+
+#: Longest model tag, so every owned sheet title stays within 31 characters.
+MAX_TAG = 20
+
+_NAME_RE = re.compile(r"^sf_(?P<tag>[A-Za-z0-9_]+)_(?P<role>[A-Za-z0-9]+)$", re.IGNORECASE)
+
+
+def sheet_title(tag: str, kind: str) -> str:
+    """Title of an owned sheet for a model tag and a kind ('coef', 'fitted', 'resid')."""
+    return f"sf {tag} {SHEET_KINDS[kind]}"
+
+
+def split_name(name: str) -> tuple[str, str] | None:
+    """Split ``sf_<tag>_<role>`` into (tag, role lower-cased); None if it is not of that shape."""
+    m = _NAME_RE.match(name)
+    if not m:
+        return None
+    return m.group("tag"), m.group("role").lower()
+
+
+def quote_sheet(title: str) -> str:
+    """Sheet title as it appears in a formula reference (quoted when needed)."""
+    if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", title) and not re.fullmatch(
+        r"[A-Za-z]{1,3}[0-9]+", title
+    ):
+        return title
+    return "'" + title.replace("'", "''") + "'"
