@@ -1,0 +1,221 @@
+"""Reader for the NIST StRD linear least-squares files, and a table of how closely we match them.
+
+The files are NIST's originals (CRLF, certified values from line 31, data from
+line 61, Fortran exponents such as ``0.4E-03``, trailing dots such as ``557.``,
+the word ``Infinity``). :func:`read_strd` turns one file into float64 arrays, the
+model it certifies and the certified values; ``python -m sheetfit.fit.strd [DIR]``
+fits every file in DIR and prints the log relative error (LRE) of each certified
+quantity.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+__all__ = [
+    "StrdCase",
+    "read_strd",
+    "strd_files",
+    "reference_dir",
+    "strd_dir",
+    "lre",
+    "case_lre",
+    "main",
+]
+
+#: Environment variable that points at the folder holding the ``*.dat`` files.
+STRD_ENV = "SHEETFIT_STRD_DIR"
+#: Highest LRE reported: the certified values carry 15 significant digits.
+LRE_CAP = 15.0
+
+_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[EeDd][-+]?\d+)?|[-+]?Infinity"
+_PARAM_LINE = re.compile(rf"^\s*B(\d+)\s+({_NUMBER})\s+({_NUMBER})\s*$")
+_LINES_RANGE = re.compile(r"lines\s+(\d+)\s+to\s+(\d+)")
+
+
+@dataclass(frozen=True)
+class StrdCase:
+    """One StRD dataset: the data as float64, the certified model and its certified values."""
+
+    name: str
+    y: np.ndarray
+    X: np.ndarray
+    columns: tuple[str, ...]
+    intercept: bool
+    degree: int
+    coef: np.ndarray
+    coef_sd: np.ndarray
+    resid_sd: float
+    r2: float
+    ss_regression: float
+    ss_residual: float
+    df_residual: int
+
+
+def _number(text: str) -> float:
+    """Parse one number as printed in the files (Fortran exponent, trailing dot, Infinity)."""
+    text = text.strip().replace("D", "E").replace("d", "e")
+    if text.lstrip("+-") == "Infinity":
+        return -math.inf if text.startswith("-") else math.inf
+    return float(text)
+
+
+def read_strd(path: str | os.PathLike[str]) -> StrdCase:
+    """Read one StRD linear regression file into a :class:`StrdCase`."""
+    path = Path(path)
+    lines = path.read_bytes().decode("ascii").splitlines()
+    cert_range = _LINES_RANGE.search(lines[4])
+    data_range = _LINES_RANGE.search(lines[5])
+    if cert_range is None or data_range is None:
+        raise ValueError(f"{path}: lines 5-6 do not give the certified and data line ranges")
+    c0, c1 = (int(g) for g in cert_range.groups())
+    d0, d1 = (int(g) for g in data_range.groups())
+
+    params: dict[int, tuple[float, float]] = {}
+    resid_sd = r2 = ss_reg = ss_res = math.nan
+    df_res = -1
+    cert = lines[c0 - 1 : c1]
+    for i, line in enumerate(cert):
+        m = _PARAM_LINE.match(line)
+        if m:
+            params[int(m.group(1))] = (_number(m.group(2)), _number(m.group(3)))
+            continue
+        words = line.split()
+        if line.strip().startswith("Standard Deviation") and i > 0 and "Residual" in cert[i - 1]:
+            resid_sd = _number(words[-1])
+        elif words[:1] == ["R-Squared"]:
+            r2 = _number(words[-1])
+        elif words[:1] == ["Regression"] and len(words) >= 4:
+            ss_reg = _number(words[2])
+        elif words[:1] == ["Residual"] and len(words) >= 4:
+            df_res, ss_res = int(words[1]), _number(words[2])
+
+    header = lines[d0 - 2].split()
+    if header[:1] != ["Data:"]:
+        raise ValueError(f"{path}: line {d0 - 1} is not the 'Data:' column header")
+    columns = tuple(header[1:])
+    rows = [[_number(w) for w in ln.split()] for ln in lines[d0 - 1 : d1] if ln.strip()]
+    data = np.array(rows, dtype=np.float64)
+    if data.shape[1] != len(columns):
+        raise ValueError(f"{path}: data rows do not match the header {columns}")
+
+    intercept = 0 in params
+    n_x = len(columns) - 1
+    n_terms = len(params) - int(intercept)
+    degree = n_terms if n_x == 1 else 1
+    order = sorted(params)
+    return StrdCase(
+        name=path.stem,
+        y=data[:, 0].copy(),
+        X=data[:, 1:].copy(),
+        columns=columns[1:],
+        intercept=intercept,
+        degree=degree,
+        coef=np.array([params[k][0] for k in order]),
+        coef_sd=np.array([params[k][1] for k in order]),
+        resid_sd=resid_sd,
+        r2=r2,
+        ss_regression=ss_reg,
+        ss_residual=ss_res,
+        df_residual=df_res,
+    )
+
+
+def reference_dir(start: str | os.PathLike[str] | None = None) -> Path | None:
+    """Find the shared reference folder: ``<repo>/../shared/reference``, searched upward."""
+    here = Path(start) if start is not None else Path.cwd()
+    candidates = [here, *here.resolve().parents, *Path(__file__).resolve().parents]
+    for base in candidates:
+        ref = base.parent / "shared" / "reference"
+        if (base / "pyproject.toml").exists() and ref.is_dir():
+            return ref
+    return None
+
+
+def strd_dir(start: str | os.PathLike[str] | None = None) -> Path | None:
+    """Folder of the StRD ``*.dat`` files: ``$SHEETFIT_STRD_DIR`` or the shared reference."""
+    env = os.environ.get(STRD_ENV)
+    if env:
+        return Path(env) if Path(env).is_dir() else None
+    ref = reference_dir(start)
+    if ref is None or not (ref / "strd").is_dir():
+        return None
+    return ref / "strd"
+
+
+def strd_files(directory: str | os.PathLike[str] | None = None) -> list[Path]:
+    """The ``*.dat`` files in the StRD folder, sorted by name (empty when the folder is missing)."""
+    folder = Path(directory) if directory is not None else strd_dir()
+    if folder is None or not folder.is_dir():
+        return []
+    return sorted(folder.glob("*.dat"))
+
+
+def lre(estimate: float, certified: float) -> float:
+    """Log relative error, capped at 15; absolute error when the certified value is 0."""
+    if certified == estimate:
+        return LRE_CAP
+    if not (math.isfinite(estimate) and math.isfinite(certified)):
+        return 0.0
+    err = abs(estimate - certified)
+    if certified != 0:
+        err /= abs(certified)
+    return min(LRE_CAP, max(0.0, -math.log10(err)))
+
+
+def case_lre(case: StrdCase) -> dict[str, float]:
+    """Fit one StRD case and return the minimum LRE of coefficients, SEs, residual SD and R²."""
+    from sheetfit.fit.leastsq import LeastSquares
+
+    res = LeastSquares(intercept=case.intercept, degree=case.degree).fit(
+        case.X, case.y, names=list(case.columns)
+    )
+    out = {
+        "coef": min(lre(e, c) for e, c in zip(res.coef_, case.coef, strict=True)),
+        "se": min(lre(e, c) for e, c in zip(res.coef_se, case.coef_sd, strict=True)),
+        "resid_sd": lre(res.resid_sd, case.resid_sd),
+        "r2": lre(res.r2, case.r2),
+    }
+    out["min"] = min(out.values())
+    return out
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Print the LRE table for every StRD file in DIR (default: the shared reference folder)."""
+    args = sys.argv[1:] if argv is None else argv
+    folder = Path(args[0]) if args else strd_dir()
+    files = strd_files(folder) if folder is not None else []
+    if not files:
+        where = folder if folder is not None else "../shared/reference/strd"
+        print(
+            f"no StRD files (*.dat) found in {where}; pass the folder as an argument "
+            f"or set {STRD_ENV}",
+            file=sys.stderr,
+        )
+        return 2
+    print(f"{'dataset':<10} {'coef':>6} {'se':>6} {'res.sd':>6} {'R2':>6} {'min':>6} {'ms':>8}")
+    overall = LRE_CAP
+    for path in files:
+        case = read_strd(path)
+        t0 = time.perf_counter()
+        row = case_lre(case)
+        ms = (time.perf_counter() - t0) * 1e3
+        overall = min(overall, row["min"])
+        print(
+            f"{case.name:<10} {row['coef']:6.2f} {row['se']:6.2f} {row['resid_sd']:6.2f} "
+            f"{row['r2']:6.2f} {row['min']:6.2f} {ms:8.1f}"
+        )
+    print(f"overall minimum LRE: {overall:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
