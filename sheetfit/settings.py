@@ -1,0 +1,116 @@
+"""Model settings declared as data: name, allowed values, default, and one parser.
+
+Every message about a bad setting has the same shape: which setting, what is
+allowed, what was given.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Callable, Mapping
+
+from .errors import Context, SettingError
+
+__all__ = ["Rule", "RULES", "METHODS", "Settings", "parse_settings"]
+
+#: Methods a model can use; the words are sheetfit's own.
+METHODS = ("least_squares",)
+
+_TRUE = {"yes", "true", "1", "on"}
+_FALSE = {"no", "false", "0", "off"}
+
+
+def _yes_no(raw: Any) -> bool:
+    word = str(raw).strip().lower()
+    if isinstance(raw, float) and raw in (0.0, 1.0):
+        word = str(int(raw))
+    if word in _TRUE:
+        return True
+    if word in _FALSE:
+        return False
+    raise ValueError
+
+
+def _integer(lo: int, hi: int) -> Callable[[Any], int]:
+    def parse(raw: Any) -> int:
+        value = float(raw)
+        if value != int(value) or not lo <= value <= hi:
+            raise ValueError
+        return int(value)
+
+    return parse
+
+
+def _choice(options: tuple[str, ...]) -> Callable[[Any], str]:
+    def parse(raw: Any) -> str:
+        word = str(raw).strip().lower().replace(" ", "_").replace("-", "_")
+        if word not in options:
+            raise ValueError
+        return word
+
+    return parse
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One setting: its name, what values are allowed (in words), default and parser."""
+
+    name: str
+    allowed: str
+    default: Any
+    parse: Callable[[Any], Any]
+    meaning: str
+
+
+RULES: dict[str, Rule] = {
+    r.name: r
+    for r in (
+        Rule("method", " or ".join(METHODS), "least_squares", _choice(METHODS),
+             "how the model is fitted"),
+        Rule("intercept", "yes or no", True, _yes_no,
+             "whether the model has a constant term"),
+        Rule("degree", "a whole number from 1 to 10", 1, _integer(1, 10),
+             "polynomial degree in the one attribute (2 adds x^2, ...)"),
+    )
+}
+
+
+@dataclass(frozen=True)
+class Settings:
+    """The settings of one model, after parsing; unset ones take their defaults."""
+
+    values: Mapping[str, Any]
+    given: frozenset[str]
+
+    def __getitem__(self, name: str) -> Any:
+        return self.values[name]
+
+
+def parse_settings(pairs: list[tuple[str, Any, str]], context: Context) -> Settings:
+    """Parse (setting, raw value, cell address) triples into Settings, refusing bad ones.
+
+    ``context`` names the file, the ``opts`` defined name and the sheet; the cell of
+    the offending pair is filled in.
+    """
+    values = {name: rule.default for name, rule in RULES.items()}
+    given: set[str] = set()
+    for key, raw, cell in pairs:
+        name = str(key).strip().lower().replace(" ", "_")
+        where = Context(context.file, context.name, context.sheet, cell)
+        rule = RULES.get(name)
+        if rule is None:
+            raise SettingError(
+                f"unknown setting '{key}'",
+                where,
+                hint="known settings: " + ", ".join(RULES),
+            )
+        if name in given:
+            raise SettingError(f"setting '{rule.name}' is given twice", where)
+        try:
+            values[name] = rule.parse(raw)
+        except (ValueError, TypeError, OverflowError):
+            raise SettingError(
+                f"setting '{rule.name}' must be {rule.allowed}, not '{raw}'", where
+            ) from None
+        given.add(name)
+    return Settings(values, frozenset(given))
