@@ -1,0 +1,1 @@
+"""Test helper: recalculate written books in headless LibreOffice and check cached values."""
