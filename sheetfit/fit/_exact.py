@@ -19,7 +19,7 @@ from fractions import Fraction
 
 import numpy as np
 
-__all__ = ["ExactColumn", "ExactSolution", "scaled_integers", "exact_solve"]
+__all__ = ["ExactColumn", "ExactSolution", "scaled_integers", "exact_solve", "exact_inverse"]
 
 
 @dataclass(frozen=True)
@@ -70,6 +70,14 @@ def _gauss_jordan(gram: list[list[int]], rhs: list[int]) -> tuple[list[Fraction]
         + [Fraction(int(i == j)) for j in range(p)]
         for i in range(p)
     ]
+    _eliminate(rows, p)
+    gamma = [rows[i][p] for i in range(p)]
+    inv_diag = [rows[i][p + 1 + i] for i in range(p)]
+    return gamma, inv_diag
+
+
+def _eliminate(rows: list[list[Fraction]], p: int) -> None:
+    """Gauss-Jordan on the first p columns of an augmented matrix, in place."""
     for col in range(p):
         pivot = next((r for r in range(col, p) if rows[r][col] != 0), None)
         if pivot is None:
@@ -82,9 +90,14 @@ def _gauss_jordan(gram: list[list[int]], rhs: list[int]) -> tuple[list[Fraction]
             if r != col and rows[r][col] != 0:
                 f = rows[r][col]
                 rows[r] = [a - f * b for a, b in zip(rows[r], prow, strict=True)]
-    gamma = [rows[i][p] for i in range(p)]
-    inv_diag = [rows[i][p + 1 + i] for i in range(p)]
-    return gamma, inv_diag
+
+
+def exact_inverse(matrix: list[list[Fraction]]) -> list[list[Fraction]]:
+    """Inverse of a square matrix of exact rationals; ZeroDivisionError when singular."""
+    p = len(matrix)
+    rows = [list(matrix[i]) + [Fraction(int(i == j)) for j in range(p)] for i in range(p)]
+    _eliminate(rows, p)
+    return [row[p:] for row in rows]
 
 
 def exact_solve(cols: list[ExactColumn], y: ExactColumn, centred: bool) -> ExactSolution:
