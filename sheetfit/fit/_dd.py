@@ -11,7 +11,17 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["two_sum", "two_prod", "dd_residual", "dd_sum", "dd_dot", "dd_sum_squares", "dd_sum_pair", "dd_gram", "dd_powers"]
+__all__ = [
+    "dd_dot",
+    "dd_gram",
+    "dd_powers",
+    "dd_residual",
+    "dd_sum",
+    "dd_sum_pair",
+    "dd_sum_squares",
+    "two_prod",
+    "two_sum",
+]
 
 _SPLIT = 134217729.0  # 2**27 + 1, Dekker's splitting constant for float64
 
@@ -108,9 +118,7 @@ def dd_residual(
     return s, lo - (s - hi)
 
 
-def dd_dot(
-    a: np.ndarray, hi: np.ndarray, lo: np.ndarray, a_lo: np.ndarray | None = None
-) -> float:
+def dd_dot(a: np.ndarray, hi: np.ndarray, lo: np.ndarray, a_lo: np.ndarray | None = None) -> float:
     """Dot product of two double-double vectors (a + a_lo)·(hi + lo), accurately rounded."""
     p, e = two_prod(a, hi)
     small = e + a * lo if a_lo is None else e + a * lo + a_lo * hi

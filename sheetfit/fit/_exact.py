@@ -19,7 +19,7 @@ from fractions import Fraction
 
 import numpy as np
 
-__all__ = ["ExactColumn", "ExactSolution", "scaled_integers", "exact_solve", "exact_inverse"]
+__all__ = ["ExactColumn", "ExactSolution", "exact_inverse", "exact_solve", "scaled_integers"]
 
 
 @dataclass(frozen=True)

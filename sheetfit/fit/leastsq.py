@@ -29,10 +29,18 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 from sheetfit.errors import CollinearError, DataError, SettingError
-from sheetfit.fit._dd import dd_dot, dd_gram, dd_powers, dd_residual, dd_sum, dd_sum_squares, two_sum
+from sheetfit.fit._dd import (
+    dd_dot,
+    dd_gram,
+    dd_powers,
+    dd_residual,
+    dd_sum,
+    dd_sum_squares,
+    two_sum,
+)
 from sheetfit.fit._exact import ExactColumn, exact_inverse, exact_solve, scaled_integers
 
-__all__ = ["LeastSquares", "LeastSquaresResult", "EXACT_LIMIT", "RANK_TOL", "DEGREE_RANGE"]
+__all__ = ["DEGREE_RANGE", "EXACT_LIMIT", "RANK_TOL", "LeastSquares", "LeastSquaresResult"]
 
 #: Problems with rows × parameters up to this are solved in exact rational arithmetic.
 EXACT_LIMIT = 5000
@@ -222,8 +230,11 @@ class LeastSquaresResult:
     @cached_property
     def coef_se(self) -> np.ndarray:
         """Standard errors of the coefficients, resid_sd · sqrt(diag (XᵀX)⁻¹)."""
-        return _readonly(np.sqrt(self.ssr / self.df_resid * self.xtx_inv_diag)
-                         if self.df_resid > 0 else np.full(self.p, math.nan))
+        return _readonly(
+            np.sqrt(self.ssr / self.df_resid * self.xtx_inv_diag)
+            if self.df_resid > 0
+            else np.full(self.p, math.nan)
+        )
 
     @cached_property
     def condition_number(self) -> float:
@@ -262,11 +273,15 @@ def _check_arrays(
     if X.ndim == 1:
         X = X.reshape(-1, 1)
     if X.ndim != 2 or y.ndim != 1:
-        raise DataError(f"attributes must be a table and the response one column, "
-                        f"given shapes {X.shape} and {y.shape}")
+        raise DataError(
+            f"attributes must be a table and the response one column, "
+            f"given shapes {X.shape} and {y.shape}"
+        )
     if X.shape[0] != y.shape[0]:
-        raise DataError(f"the response has {y.shape[0]} rows but the attributes have "
-                        f"{X.shape[0]}; they must cover the same rows")
+        raise DataError(
+            f"the response has {y.shape[0]} rows but the attributes have "
+            f"{X.shape[0]}; they must cover the same rows"
+        )
     m = X.shape[1]
     if m == 0:
         raise DataError("no attribute columns given")
@@ -303,8 +318,9 @@ def _fmt(v: float) -> str:
     return f"{v:.6g}"
 
 
-def _collinear_error(null: np.ndarray, norms: np.ndarray, terms: list[str],
-                     is_poly: bool) -> CollinearError:
+def _collinear_error(
+    null: np.ndarray, norms: np.ndarray, terms: list[str], is_poly: bool
+) -> CollinearError:
     """Build the refusal from a null vector of the scaled design."""
     v = null / np.max(np.abs(null))
     involved = [j for j in range(len(v)) if abs(v[j]) >= 1e-3]
@@ -314,8 +330,7 @@ def _collinear_error(null: np.ndarray, norms: np.ndarray, terms: list[str],
     if len(named) == 1:
         j = named[0]
         if np.all(norms[j] == 0) or len(involved) == 1:
-            return CollinearError(f"attribute {terms[j]} is zero in every row",
-                                  hint="remove it")
+            return CollinearError(f"attribute {terms[j]} is zero in every row", hint="remove it")
     target = named[-1] if named else involved[-1]
     parts = []
     for j in involved:
@@ -325,16 +340,26 @@ def _collinear_error(null: np.ndarray, norms: np.ndarray, terms: list[str],
         parts.append(_fmt(c) if terms[j] == "intercept" else f"{_fmt(c)}·{terms[j]}")
     relation = f"{terms[target]} = " + " + ".join(parts).replace("+ -", "− ")
     listed = [terms[j] for j in named]
-    who = " and ".join(listed) if len(listed) <= 2 else (
-        ", ".join(listed[:-1]) + " and " + listed[-1])
+    who = (
+        " and ".join(listed)
+        if len(listed) <= 2
+        else (", ".join(listed[:-1]) + " and " + listed[-1])
+    )
     return CollinearError(
         f"{kind} {who} are collinear ({relation})",
         hint="remove one of them; their coefficients cannot be told apart",
     )
 
 
-def _solve(X: np.ndarray, y: np.ndarray, design: np.ndarray, intercept: bool, degree: int,
-           terms: list[str], is_poly: bool) -> _Solution:
+def _solve(
+    X: np.ndarray,
+    y: np.ndarray,
+    design: np.ndarray,
+    intercept: bool,
+    degree: int,
+    terms: list[str],
+    is_poly: bool,
+) -> _Solution:
     n, p = design.shape
     norms = np.sqrt(np.einsum("ij,ij->j", design, design))
     if np.any(norms == 0):
@@ -358,8 +383,9 @@ def _solve(X: np.ndarray, y: np.ndarray, design: np.ndarray, intercept: bool, de
     return _solve_float(y, design, design_lo, norms, q, r, intercept, cond)
 
 
-def _solve_exact(X: np.ndarray, y: np.ndarray, intercept: bool, degree: int,
-                 cond: float) -> _Solution:
+def _solve_exact(
+    X: np.ndarray, y: np.ndarray, intercept: bool, degree: int, cond: float
+) -> _Solution:
     n = X.shape[0]
     if degree > 1:
         base = scaled_integers(X[:, 0])
@@ -376,9 +402,16 @@ def _solve_exact(X: np.ndarray, y: np.ndarray, intercept: bool, degree: int,
     return _Solution(s.coef, s.fitted, s.resid, s.ssr, s.tss, s.r2, s.inv_diag, cond, note)
 
 
-def _solve_float(y: np.ndarray, design: np.ndarray, design_lo: np.ndarray | None,
-                 norms: np.ndarray, q: np.ndarray, r: np.ndarray, intercept: bool,
-                 cond: float) -> _Solution:
+def _solve_float(
+    y: np.ndarray,
+    design: np.ndarray,
+    design_lo: np.ndarray | None,
+    norms: np.ndarray,
+    q: np.ndarray,
+    r: np.ndarray,
+    intercept: bool,
+    cond: float,
+) -> _Solution:
     n, p = design.shape
     # Corrections solve XᵀX δ = Xᵀr with XᵀX accumulated in double-double and inverted
     # exactly (p × p is small), so refinement converges even when cond(X)² ≫ 1/eps.

@@ -22,13 +22,13 @@ import numpy as np
 
 __all__ = [
     "StrdCase",
+    "case_lre",
+    "lre",
+    "main",
     "read_strd",
-    "strd_files",
     "reference_dir",
     "strd_dir",
-    "lre",
-    "case_lre",
-    "main",
+    "strd_files",
 ]
 
 #: Environment variable that points at the folder holding the ``*.dat`` files.
