@@ -332,13 +332,19 @@ def _collinear_error(
         if np.all(norms[j] == 0) or len(involved) == 1:
             return CollinearError(f"attribute {terms[j]} is zero in every row", hint="remove it")
     target = named[-1] if named else involved[-1]
-    parts = []
+    relation = ""
     for j in involved:
         if j == target:
             continue
         c = -w[j] / w[target]
-        parts.append(_fmt(c) if terms[j] == "intercept" else f"{_fmt(c)}·{terms[j]}")
-    relation = f"{terms[target]} = " + " + ".join(parts).replace("+ -", "− ")
+        mag = _fmt(abs(c))
+        if terms[j] == "intercept":
+            piece = mag
+        else:
+            piece = terms[j] if mag == "1" else f"{mag}·{terms[j]}"
+        sign = "−" if c < 0 else "+"
+        relation += f" {sign} {piece}" if relation else ("−" if c < 0 else "") + piece
+    relation = f"{terms[target]} = {relation}"
     listed = [terms[j] for j in named]
     who = (
         " and ".join(listed)
