@@ -1,0 +1,303 @@
+"""Graft rendered owned sheets into a user's package, replacing those of the last run.
+
+The write-back of a refresh: previously owned sheets (found by their marker
+name) are removed with everything only they use, then the rendered sheets are
+added at the end of the book. Shared parts are edited by splicing text so they
+only gain or lose owned entries; every other zip entry keeps its bytes. The
+result replaces the target atomically (ENGINE_NOTES.md, "Grafting owned
+sheets into a user's package").
+"""
+
+from __future__ import annotations
+
+import os
+import posixpath
+import re
+import tempfile
+import zipfile
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from sheetfit.book._graft_app import update_app
+from sheetfit.book._graft_remove import (
+    build_graph,
+    filter_calc_chain,
+    parts_to_remove,
+    relative_target,
+)
+from sheetfit.book._graft_sheet import convert_sheet, shared_strings
+from sheetfit.book._graft_workbook import (
+    edit_content_types,
+    edit_rels,
+    edit_workbook,
+    is_ours,
+    next_number,
+    next_rid,
+)
+from sheetfit.book._styles import StyleMap, merge_styles
+from sheetfit.book.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
+from sheetfit.errors import Context, DeclarationError, PackageError
+
+__all__ = ["GraftReport", "OutputName", "graft"]
+
+_CT_PART = "[Content_Types].xml"
+_APP_PART = "docProps/app.xml"
+_T_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"
+_R_WORKSHEET = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/worksheet"
+_FIXED_TIME = (1980, 1, 1, 0, 0, 0)
+
+
+@dataclass(frozen=True)
+class OutputName:
+    """A workbook-scoped name sheetfit writes, e.g. sf_demo_coef -> 'sf demo coef'!$B$2:$B$4."""
+
+    name: str
+    text: str
+
+
+@dataclass(frozen=True)
+class GraftReport:
+    """What a graft changed, for logging."""
+
+    sheets_removed: tuple[str, ...]
+    sheets_added: tuple[str, ...]
+    parts_removed: tuple[str, ...]
+    parts_added: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class _Rendered:
+    title: str
+    xml: bytes
+
+
+@dataclass(frozen=True)
+class _RenderedBook:
+    pkg: Package
+    sheets: list[_Rendered]
+    styles: bytes | None
+    strings: list[str]
+    sheet_type: str
+
+
+def _read_rendered(path: Path) -> _RenderedBook:
+    """The rendered book's sheets (in order), styles part, shared strings and sheet type."""
+    rp = open_package(path)
+    with zipfile.ZipFile(path) as z:
+        lower = {n.lower(): n for n in z.namelist()}
+
+        def read(part: str | None) -> bytes | None:
+            name = lower.get(part.lower()) if part else None
+            return z.read(name) if name else None
+
+        rels_data = read(rels_part_of(rp.workbook_part))
+        rels = parse_rels(rels_data, rp.workbook_part) if rels_data else []
+        sst = read(next((r.part for r in rels if r.type.endswith("/sharedStrings")), None))
+        styles = read(next((r.part for r in rels if r.type.endswith("/styles")), None))
+        sheets = []
+        for s in rp.sheets:
+            if "/worksheets/" not in s.part.lower():
+                raise ValueError(f"rendered sheet {s.name!r} is not a worksheet")
+            if read(rels_part_of(s.part)) is not None:
+                # Seam for drawings and charts: copying a rendered sheet's rels
+                # (renumbered targets, new parts, overrides) comes with charts.
+                raise NotImplementedError("rendered sheets with relationships")
+            sheets.append(_Rendered(s.name, read(s.part) or b""))
+        ct = (read(_CT_PART) or b"").decode("utf-8")
+    m = re.search(r'PartName="/[^"]*worksheets/[^"]+"\s+ContentType="([^"]+)"', ct)
+    if sheets and styles is None:
+        raise ValueError("rendered book has no styles part")
+    return _RenderedBook(
+        rp, sheets, styles, shared_strings(sst) if sst else [], m.group(1) if m else _T_WORKSHEET
+    )
+
+
+def _check_collisions(
+    pkg: Package,
+    owned: Sequence[SheetEntry],
+    titles: Sequence[str],
+    names: Sequence[OutputName],
+    file: str,
+) -> None:
+    removed = {s.index for s in owned}
+    wanted = {t.lower() for t in titles}
+    for s in pkg.sheets:
+        if s.index not in removed and s.name.lower() in wanted:
+            raise DeclarationError(
+                f"a sheet of yours is called '{s.name}', which sheetfit needs for its results",
+                Context(file=file, sheet=s.name),
+                hint="rename your sheet or the model",
+            )
+    out = {n.name.lower() for n in names}
+    owned_titles = [s.name for s in owned]
+    for d in pkg.defined_names:
+        if (
+            d.local_sheet_id is None
+            and d.name.lower() in out
+            and not is_ours(d, owned_titles, removed)
+        ):
+            raise DeclarationError(
+                f"a name of yours, {d.name}, is one sheetfit needs for its results",
+                Context(file=file, name=d.name),
+                hint="rename your name or the model",
+            )
+
+
+def graft(
+    source: str | Path, rendered: str | Path, names: Sequence[OutputName], target: str | Path
+) -> GraftReport:
+    """Replace the owned sheets of ``source`` by those of ``rendered``; write ``target`` atomically.
+
+    Raises DeclarationError when a sheet or workbook-scoped name of the user's
+    takes a title or output name sheetfit needs, PackageError when the source
+    cannot be read; on any error neither file is changed.
+    """
+    source, rendered, target = Path(source), Path(rendered), Path(target)
+    file = str(source)
+    pkg = open_package(source)
+    rb = _read_rendered(rendered)
+    if rb.pkg.date1904 != pkg.date1904:
+        raise ValueError("rendered book uses a different date system from the user's book")
+    owned = pkg.owned_sheets()
+    titles = [r.title for r in rb.sheets]
+    _check_collisions(pkg, owned, titles, names, file)
+
+    with zipfile.ZipFile(source) as zs:
+        infos = zs.infolist()
+        lower = {i.filename.lower(): i.filename for i in infos}
+
+        def read(part: str | None) -> bytes | None:
+            name = lower.get(part.lower()) if part else None
+            return zs.read(name) if name else None
+
+        rels_entries = {
+            i.filename: zs.read(i) for i in infos if i.filename.lower().endswith(".rels")
+        }
+        graph = build_graph(rels_entries, file)
+        existing = set(lower)
+        gone = parts_to_remove(graph, [s.part for s in owned if s.part], existing)
+        wb_part = pkg.workbook_part
+        wb_rels = graph.out.get(wb_part.lower(), [])
+        drop_rids = {s.rid for s in owned}
+        edits: dict[str, bytes] = {}
+
+        calc = next((r for r in wb_rels if r.type.endswith("/calcChain") and r.part), None)
+        if owned and calc and calc.part and calc.part in existing and calc.part not in gone:
+            data = read(calc.part)
+            assert data is not None
+            left = filter_calc_chain(data, {s.sheet_id for s in owned})
+            if left is None:
+                gone.add(calc.part)
+                calc_rels = rels_part_of(calc.part).lower()
+                if calc_rels in existing:
+                    gone.add(calc_rels)
+                drop_rids.add(calc.rid)
+            elif left is not data:
+                edits[lower[calc.part]] = left
+
+        ct_data = read(_CT_PART)
+        if ct_data is None:
+            raise PackageError("the package has no [Content_Types].xml", Context(file=file))
+        # New part numbers go above every number in use: entries, overrides, rel targets.
+        in_use = {n for n in existing if n not in gone}
+        for src, rels in graph.out.items():
+            if src in gone:
+                continue
+            dropped = drop_rids if src == wb_part.lower() else set()
+            in_use.update(r.part for r in rels if r.part and r.rid not in dropped)
+        base = posixpath.join(posixpath.dirname(wb_part), "worksheets")
+        _, listed = edit_content_types(ct_data, gone, [], rb.sheet_type)
+        first = next_number(in_use | listed, "sheet")
+        parts = [posixpath.join(base, f"sheet{first + j}.xml") for j in range(len(rb.sheets))]
+
+        smap = StyleMap()
+        sty = next((r for r in wb_rels if r.type.endswith("/styles") and r.part), None)
+        sty_data = read(sty.part if sty else None)
+        if rb.sheets:
+            if sty is None or sty.part is None or sty_data is None or rb.styles is None:
+                raise PackageError("the package has no styles part", Context(file=file))
+            new_styles, smap = merge_styles(sty_data, rb.styles, file, lower[sty.part])
+            if new_styles is not sty_data:
+                edits[lower[sty.part]] = new_styles
+        new_entries = [
+            (p, convert_sheet(r.xml, rb.strings, smap))
+            for p, r in zip(parts, rb.sheets, strict=True)
+        ]
+
+        wb_data = read(wb_part)
+        wb_rels_data = read(rels_part_of(wb_part))
+        assert wb_data is not None and wb_rels_data is not None
+        start = next_rid([r.rid for r in wb_rels if r.rid not in drop_rids])
+        rids = [f"rId{start + j}" for j in range(len(rb.sheets))]
+        edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)
+        edits[lower[rels_part_of(wb_part).lower()]] = edit_rels(
+            wb_rels_data,
+            drop_rids,
+            [relative_target(wb_part, p) for p in parts],
+            rids,
+            _R_WORKSHEET,
+        )
+        edits[lower[_CT_PART.lower()]] = edit_content_types(ct_data, gone, parts, rb.sheet_type)[0]
+        app = read(_APP_PART)
+        if app is not None:
+            sheet_names = [s.name for s in pkg.sheets if "chartsheets/" not in s.part.lower()]
+            new_app = update_app(app, sheet_names, [s.name for s in owned], titles)
+            if new_app is not app:
+                edits[lower[_APP_PART.lower()]] = new_app
+        edits = {k: v for k, v in edits.items() if v != read(k)}
+        _write_atomic(zs, infos, gone, edits, new_entries, target)
+
+    return GraftReport(
+        sheets_removed=tuple(s.name for s in owned),
+        sheets_added=tuple(titles),
+        parts_removed=tuple(sorted(lower[p] for p in gone)),
+        parts_added=tuple(parts),
+    )
+
+
+def _write_atomic(
+    zs: zipfile.ZipFile,
+    infos: list[zipfile.ZipInfo],
+    gone: set[str],
+    edits: dict[str, bytes],
+    new_entries: list[tuple[str, bytes]],
+    target: Path,
+) -> None:
+    """Write the new package next to ``target``, fsync it, then rename it over ``target``."""
+    fd, tmp_name = tempfile.mkstemp(prefix=".sheetfit-", suffix=".tmp", dir=target.parent)
+    tmp = Path(tmp_name)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            with zipfile.ZipFile(fh, "w") as zout:
+                for info in infos:
+                    if info.filename.lower() in gone:
+                        continue
+                    data = edits.get(info.filename)
+                    if data is None:
+                        data = zs.read(info)
+                    zi = zipfile.ZipInfo(info.filename, info.date_time)
+                    zi.compress_type = info.compress_type
+                    zi.external_attr = info.external_attr
+                    zi.create_system = info.create_system
+                    zout.writestr(zi, data)
+                for name, data in new_entries:
+                    zi = zipfile.ZipInfo(name, _FIXED_TIME)
+                    zi.compress_type = zipfile.ZIP_DEFLATED
+                    zout.writestr(zi, data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, target)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    try:
+        dfd = os.open(target.parent, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(dfd)
+    except OSError:
+        pass
+    finally:
+        os.close(dfd)
