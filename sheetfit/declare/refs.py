@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-__all__ = ["Area", "RefError", "parse_areas", "col_letter", "col_index", "cell_ref", "MAX_ROW"]
+__all__ = ["MAX_ROW", "Area", "RefError", "cell_ref", "col_index", "col_letter", "parse_areas"]
 
 #: Last row of an xlsx sheet; a whole-column reference ends here until trimmed.
 MAX_ROW = 1_048_576
@@ -38,7 +38,7 @@ class Area:
     def first_cell(self) -> str:
         return cell_ref(self.row1, self.col1)
 
-    def with_rows(self, row1: int, row2: int) -> "Area":
+    def with_rows(self, row1: int, row2: int) -> Area:
         """The same columns over other rows."""
         return Area(self.sheet, row1, self.col1, row2, self.col2, False)
 

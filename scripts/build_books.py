@@ -1,0 +1,104 @@
+"""Build the example and template workbooks from code, so they can be rebuilt and reviewed.
+
+Run from the repository root:  python scripts/build_books.py
+The data are invented for the demo (seeded), in a scenario of our own: a regional
+distributor's monthly delivery cost against the stops made and the distance driven.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import datetime as dt
+
+import numpy as np
+import xlsxwriter
+
+ROOT = Path(__file__).resolve().parents[1]
+#: Fixed document date so a rebuild gives the same bytes.
+CREATED = dt.datetime(2026, 1, 1)
+
+
+def build_delivery_costs(path: Path) -> None:
+    """Example: 36 months of delivery cost, stops and km, and next quarter's plan."""
+    rng = np.random.default_rng(20261201)
+    months = 36
+    stops = np.round(rng.uniform(820, 1480, months))
+    km = np.round(stops * rng.uniform(8.5, 11.5, months) + rng.normal(0, 600, months))
+    cost = np.round(5200 + 2.35 * stops + 0.41 * km + rng.normal(0, 380, months), 2)
+
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": CREATED})
+    bold = wb.add_format({"bold": True})
+    money = wb.add_format({"num_format": "#,##0.00"})
+    ws = wb.add_worksheet("Deliveries")
+    ws.write_row(0, 0, ["month", "delivery cost", "stops", "km driven"], bold)
+    for i in range(months):
+        year, month = divmod(i, 12)
+        ws.write_string(i + 1, 0, f"{2023 + year}-{month + 1:02d}")
+        ws.write_number(i + 1, 1, float(cost[i]), money)
+        ws.write_number(i + 1, 2, float(stops[i]))
+        ws.write_number(i + 1, 3, float(km[i]))
+    # month 14: the tracker failed, km not recorded -- it must be listed as left out
+    ws.write_string(14, 3, "n/a")
+    ws.set_column(0, 0, 10)
+    ws.set_column(1, 3, 14)
+    ws.write(0, 5, "Append each month's row below the last one; refresh to update the fits.")
+
+    plan = wb.add_worksheet("Plan")
+    plan.write_row(0, 0, ["quarter month", "stops", "km driven"], bold)
+    for i, (s, k) in enumerate([(1210, 12300), (1350, 13800), (1520, 16100)]):
+        plan.write_string(i + 1, 0, f"2026-{i + 1:02d}")
+        plan.write_number(i + 1, 1, s)
+        plan.write_number(i + 1, 2, k)
+    plan.write_row(5, 0, ["setting", "value"], bold)
+    plan.write_row(6, 0, ["method", "least_squares"])
+    plan.write_row(7, 0, ["intercept", "yes"])
+    plan.set_column(0, 2, 14)
+
+    # model "route": cost on stops and km, whole columns so appended months are picked up
+    wb.define_name("sf_route_y", "=Deliveries!$B:$B")
+    wb.define_name("sf_route_x", "=Deliveries!$C:$D")
+    wb.define_name("sf_route_new", "=Plan!$B$1:$C$4")
+    wb.define_name("sf_route_opts", "=Plan!$A$6:$B$8")
+    # model "bykm": cost on km alone, a straight line with the slope identity check
+    wb.define_name("sf_bykm_y", "=Deliveries!$B$1:$B$37")
+    wb.define_name("sf_bykm_x", "=Deliveries!$D$1:$D$37")
+    wb.close()
+
+
+def build_template(path: Path) -> None:
+    """Template: one declared, empty model over whole columns, ready to be filled in."""
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": CREATED})
+    bold = wb.add_format({"bold": True})
+    note = wb.add_format({"italic": True, "font_color": "#555555"})
+    ws = wb.add_worksheet("Data")
+    ws.write_row(0, 0, ["response", "driver 1", "driver 2"], bold)
+    ws.set_column(0, 2, 14)
+    ws.write(0, 4, "Rename the headers, type or paste your rows from row 2 down, then run "
+             "sheetfit refresh on this file.", note)
+    ws.write(1, 4, "Delete the 'driver 2' column from sf_model_x (Formulas > Names) for one "
+             "driver.", note)
+    st = wb.add_worksheet("Settings")
+    st.write_row(0, 0, ["setting", "value"], bold)
+    st.write_row(1, 0, ["method", "least_squares"])
+    st.write_row(2, 0, ["intercept", "yes"])
+    st.write_row(3, 0, ["degree", 1])
+    st.set_column(0, 1, 14)
+    wb.define_name("sf_model_y", "=Data!$A:$A")
+    wb.define_name("sf_model_x", "=Data!$B:$C")
+    wb.define_name("sf_model_opts", "=Settings!$A$1:$B$4")
+    wb.close()
+
+
+def main() -> None:
+    (ROOT / "example_books").mkdir(exist_ok=True)
+    (ROOT / "templates").mkdir(exist_ok=True)
+    build_delivery_costs(ROOT / "example_books" / "delivery_costs.xlsx")
+    build_template(ROOT / "templates" / "cost_model_template.xlsx")
+    print("wrote example_books/delivery_costs.xlsx and templates/cost_model_template.xlsx")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,56 @@
+"""Render sheet plans into a standalone xlsx package (owned sheets only) with xlsxwriter.
+
+The grafter then moves these sheet parts into the user's package; the package
+written here is a temporary file and never the user's workbook.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import xlsxwriter
+
+from ..sheets.plan import STYLES, BookPlan
+
+__all__ = ["render"]
+
+
+def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
+    """Write every planned sheet, in order, to a new xlsx at ``path``; return the path."""
+    wb = xlsxwriter.Workbook(
+        str(path),
+        {
+            # dotted functions (STDEV.P, ...) need the _xlfn. prefix (ENGINE_NOTES.md)
+            "use_future_functions": True,
+            "strings_to_numbers": False,
+            "strings_to_formulas": False,
+            "strings_to_urls": False,
+            "date_1904": date1904,
+        },
+    )
+    formats: dict[str, Any] = {k: (wb.add_format(v) if v else None) for k, v in STYLES.items()}
+    for sheet in plan.sheets:
+        ws = wb.add_worksheet(sheet.title)
+        for col, width in sheet.widths.items():
+            ws.set_column(col, col, width)
+        if sheet.freeze:
+            ws.freeze_panes(*sheet.freeze)
+        for c in sheet.cells:
+            fmt = formats[c.style]
+            if c.formula is not None:
+                value = c.value
+                if isinstance(value, bool):
+                    value = "TRUE" if value else "FALSE"
+                ws.write_formula(c.row, c.col, c.formula, fmt, value)
+            elif c.value is None:
+                if fmt is not None:
+                    ws.write_blank(c.row, c.col, None, fmt)
+            elif isinstance(c.value, bool):
+                ws.write_boolean(c.row, c.col, c.value, fmt)
+            elif isinstance(c.value, (int, float)):
+                ws.write_number(c.row, c.col, c.value, fmt)
+            else:
+                ws.write_string(c.row, c.col, str(c.value), fmt)
+    wb.close()
+    return Path(path)

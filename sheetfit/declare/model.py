@@ -1,0 +1,397 @@
+"""Find the models declared with defined names and turn their cells into arrays.
+
+A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts),
+workbook- or sheet-scoped. This module checks everything that comes out of the
+named ranges (one place, one wording): references, lengths, headers, values,
+rows enough for the parameters, constant columns. Messages name the file, the
+defined name, the sheet and the cell.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..book.package import DefinedName, Package
+from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
+from ..errors import Context, DataError, DeclarationError
+from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, quote_sheet, split_name
+from ..settings import Settings, parse_settings
+from .refs import Area, RefError, cell_ref, parse_areas
+
+__all__ = ["Column", "LeftOut", "ModelData", "NewRows", "describe_value", "find_models"]
+
+
+@dataclass(frozen=True)
+class Column:
+    """One declared column: where its first data cell is and what it is called."""
+
+    name: str
+    sheet: str
+    col: int
+    first_row: int
+
+    def row_of(self, i: int) -> int:
+        """Sheet row of the model's i-th row (0-based)."""
+        return self.first_row + i
+
+    def cell(self, i: int) -> str:
+        """Formula reference to this column's cell in the model's i-th row, e.g. Data!C5."""
+        return f"{quote_sheet(self.sheet)}!{cell_ref(self.row_of(i), self.col)}"
+
+    def span(self, i0: int, i1: int) -> str:
+        """Plain address of rows i0..i1 of this column (for messages)."""
+        return f"{cell_ref(self.row_of(i0), self.col)}:{cell_ref(self.row_of(i1), self.col)}"
+
+
+@dataclass(frozen=True)
+class LeftOut:
+    """A data row left out of the fit, with the reason in plain words."""
+
+    index: int
+    sheet_row: int
+    reason: str
+
+
+@dataclass
+class NewRows:
+    """Rows of attribute values to predict (the ``new`` declaration)."""
+
+    columns: list[Column]
+    X: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return int(self.X.shape[0])
+
+
+@dataclass
+class ModelData:
+    """A declared model with its cells read: what the fit and the sheet plan need."""
+
+    tag: str
+    file: str
+    settings: Settings
+    y: Column
+    xs: list[Column]
+    n_rows: int
+    used: np.ndarray
+    left_out: list[LeftOut]
+    Y: np.ndarray
+    X: np.ndarray
+    new: NewRows | None = None
+    names: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def attribute_names(self) -> list[str]:
+        return [c.name for c in self.xs]
+
+
+def describe_value(v: Value) -> str:
+    """A cell value in the words of a left-out reason."""
+    if v.kind == BLANK:
+        return "blank"
+    if v.kind == ERROR:
+        return f"error {v.text}"
+    if v.kind == TEXT:
+        text = v.text if len(v.text) <= 20 else v.text[:17] + "..."
+        return f"text '{text}'"
+    return f"{v.text} (not a number)"
+
+
+@dataclass
+class _Decl:
+    tag: str
+    names: dict[str, DefinedName] = field(default_factory=dict)
+
+
+def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
+    owned = {s.name.casefold() for s in pkg.owned_sheets()}
+    decls: dict[str, _Decl] = {}
+    for d in pkg.defined_names:
+        parts = split_name(d.name)
+        if parts is None:
+            continue
+        tag, role = parts
+        ctx = Context(file, d.name)
+        if role in OUTPUT_ROLES:
+            if _refers_to_owned(d.text, owned):
+                continue
+            raise DeclarationError(
+                f"'{role}' is a role sheetfit writes (results), so this name of yours would be "
+                "overwritten",
+                ctx,
+                hint="rename it",
+            )
+        if role not in INPUT_ROLES:
+            raise DeclarationError(
+                f"unknown role '{role}'",
+                ctx,
+                hint="a declaration ends in _" + ", _".join(INPUT_ROLES),
+            )
+        if len(tag) > MAX_TAG:
+            raise DeclarationError(
+                f"model name '{tag}' is longer than {MAX_TAG} characters", ctx,
+                hint="shorten it so result sheet titles fit in 31 characters",
+            )
+        decl = decls.setdefault(tag.casefold(), _Decl(tag))
+        if role in decl.names:
+            raise DeclarationError(
+                f"model '{tag}' declares its {role} twice (also as {decl.names[role].name}"
+                f"{' on another sheet' if d.local_sheet_id is not None else ''})",
+                ctx,
+                hint="keep one of the two names",
+            )
+        decl.names[role] = d
+    return decls
+
+
+def _refers_to_owned(text: str, owned: set[str]) -> bool:
+    try:
+        return all(a.sheet.casefold() in owned for a in parse_areas(text))
+    except RefError:
+        return "#REF!" in text.upper()
+
+
+def find_models(pkg: Package, values: BookValues, file: str) -> list[ModelData]:
+    """Every model declared in the book, checked and read, in order of model name."""
+    decls = _collect(pkg, file)
+    if not decls:
+        raise DeclarationError(
+            "no models are declared",
+            Context(file),
+            hint="define names sf_<model>_y and sf_<model>_x pointing at the response "
+            "and attribute cells",
+        )
+    return [_read_model(decls[k], pkg, values, file) for k in sorted(decls)]
+
+
+def _areas(d: DefinedName, pkg: Package, file: str) -> list[Area]:
+    ctx = Context(file, d.name)
+    try:
+        areas = parse_areas(d.text)
+    except RefError as exc:
+        raise DeclarationError(str(exc), ctx, hint="point the name at cells of this workbook") \
+            from None
+    owned = {s.name.casefold() for s in pkg.owned_sheets()}
+    for a in areas:
+        try:
+            pkg.sheet(a.sheet)
+        except KeyError:
+            raise DeclarationError(
+                f"it points to sheet '{a.sheet}', which is not in this workbook", ctx
+            ) from None
+        if a.sheet.casefold() in owned:
+            raise DeclarationError(
+                f"it points to '{a.sheet}', a result sheet that sheetfit replaces on refresh",
+                Context(file, d.name, a.sheet, a.first_cell()),
+                hint="point it at your own data",
+            )
+    return areas
+
+
+def _trim(areas: list[Area], last: int) -> list[Area]:
+    return [a.with_rows(1, max(last, 1)) if a.whole_columns else a for a in areas]
+
+
+def _last_row(areas: list[Area], values: BookValues) -> int:
+    return max(
+        (values.sheet(a.sheet).last_used_row(a.col1, a.col2) for a in areas if a.whole_columns),
+        default=0,
+    )
+
+
+def _columns(areas: list[Area]) -> list[tuple[Area, int]]:
+    return [(a, c) for a in areas for c in range(a.col1, a.col2 + 1)]
+
+
+def _header(cols: list[tuple[Area, int]], values: BookValues) -> bool:
+    return all(values.sheet(a.sheet).get(a.row1, c).kind == TEXT for a, c in cols)
+
+
+def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> ModelData:
+    tag = decl.tag
+    for role in ("y", "x"):
+        if role not in decl.names:
+            raise DeclarationError(
+                f"model '{tag}' has no {role} declaration",
+                Context(file, f"sf_{tag}_{role}"),
+                hint=f"define sf_{tag}_{role}",
+            )
+    dy, dx = decl.names["y"], decl.names["x"]
+    settings = _settings(decl, pkg, values, file)
+    y_areas, x_areas = _areas(dy, pkg, file), _areas(dx, pkg, file)
+    last = _last_row(y_areas + x_areas, values)
+    y_areas, x_areas = _trim(y_areas, last), _trim(x_areas, last)
+    if len(y_areas) != 1 or y_areas[0].n_cols != 1:
+        raise DataError(
+            "the response must be one column", Context(file, dy.name, y_areas[0].sheet,
+                                                       y_areas[0].a1()),
+            hint="point sf_..._y at a single column",
+        )
+    ya = y_areas[0]
+    for a in x_areas:
+        if a.n_rows != ya.n_rows:
+            raise DataError(
+                f"x has {a.n_rows} rows in {a.a1()} but y has {ya.n_rows} in {ya.a1()}",
+                Context(file, dx.name, a.sheet, a.a1()),
+                hint="make the y and x ranges cover the same rows",
+            )
+    y_cols, x_cols = _columns([ya]), _columns(x_areas)
+    header = _header(y_cols + x_cols, values)
+    offset = 1 if header else 0
+    n_rows = ya.n_rows - offset
+    ycol = _make_column(ya, ya.col1, header, values, offset)
+    xcols = [_make_column(a, c, header, values, offset) for a, c in x_cols]
+    _check_headers(xcols, dx, file)
+    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values)
+    p = int(settings["intercept"]) + len(xcols) * int(settings["degree"])
+    ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
+    if settings["degree"] > 1 and len(xcols) != 1:
+        raise DataError(
+            f"degree {settings['degree']} needs exactly one attribute, x has {len(xcols)}",
+            Context(file, dx.name), hint="use degree 1 or declare one x column",
+        )
+    if len(used) == 0:
+        raise DataError(
+            f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
+            hint="fill in the data or point the names at it",
+        )
+    if len(used) < p:
+        raise DataError(
+            f"{len(used)} usable rows but the model has {p} parameters", ctx,
+            hint="add rows or reduce the attributes or degree",
+        )
+    if settings["intercept"]:
+        for j, c in enumerate(xcols):
+            if np.all(X[:, j] == X[0, j]):
+                raise DataError(
+                    f"attribute '{c.name}' has the same value ({X[0, j]:g}) in every used row, "
+                    "so its effect cannot be told apart from the intercept",
+                    Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
+                    hint="drop the column from x",
+                )
+    new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
+    names = {role: d.name for role, d in decl.names.items()}
+    return ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+
+
+def _make_column(a: Area, col: int, header: bool, values: BookValues, offset: int) -> Column:
+    from .refs import col_letter
+
+    name = values.sheet(a.sheet).get(a.row1, col).text.strip() if header else col_letter(col)
+    return Column(name, a.sheet, col, a.row1 + offset)
+
+
+def _check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
+    seen: dict[str, Column] = {}
+    for c in cols:
+        key = c.name.casefold()
+        if key in seen:
+            first = seen[key]
+            raise DataError(
+                f"two attribute columns are both called '{c.name}' "
+                f"({cell_ref(first.first_row - 1, first.col)} and "
+                f"{cell_ref(c.first_row - 1, c.col)})",
+                Context(file, d.name, c.sheet, cell_ref(c.first_row - 1, c.col)),
+                hint="give each attribute column its own header",
+            )
+        seen[key] = c
+
+
+def _read_rows(
+    ycol: Column, xcols: list[Column], n: int, values: BookValues
+) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray]:
+    cols = [ycol] + xcols
+    sheets: list[SheetValues] = [values.sheet(c.sheet) for c in cols]
+    data = np.empty((n, len(cols)))
+    ok = np.ones(n, dtype=bool)
+    left: list[LeftOut] = []
+    for i in range(n):
+        for j, (c, sv) in enumerate(zip(cols, sheets)):
+            v = sv.get(c.row_of(i), c.col)
+            if v.kind != NUMBER:
+                ok[i] = False
+                role = "y" if j == 0 else f"'{c.name}'"
+                left.append(LeftOut(i, ycol.row_of(i),
+                                    f"{describe_value(v)} in {role} ({c.cell(i)})"))
+                break
+            data[i, j] = v.number
+    used = np.flatnonzero(ok)
+    return used, left, data[used, 0].copy(), data[used, 1:].copy()
+
+
+def _read_new(
+    decl: _Decl, pkg: Package, values: BookValues, file: str, xcols: list[Column]
+) -> NewRows:
+    d = decl.names["new"]
+    areas = _areas(d, pkg, file)
+    areas = _trim(areas, _last_row(areas, values))
+    rows = {a.n_rows for a in areas}
+    if len(rows) != 1:
+        raise DataError("the areas of the new rows have different numbers of rows",
+                        Context(file, d.name))
+    cols_ac = _columns(areas)
+    if len(cols_ac) != len(xcols):
+        raise DataError(
+            f"new rows have {len(cols_ac)} columns but x has {len(xcols)}",
+            Context(file, d.name, areas[0].sheet, areas[0].a1()),
+            hint="give the new rows the same columns as x, in the same order",
+        )
+    header = _header(cols_ac, values)
+    offset = 1 if header else 0
+    cols = [_make_column(a, c, header, values, offset) for a, c in cols_ac]
+    if header:
+        for c, xc in zip(cols, xcols):
+            if c.name.casefold() != xc.name.casefold():
+                raise DataError(
+                    f"new-row column '{c.name}' stands where x has '{xc.name}'",
+                    Context(file, d.name, c.sheet, cell_ref(c.first_row - 1, c.col)),
+                    hint="put the new-row columns in the order of x",
+                )
+    n = rows.pop() - offset
+    X = np.empty((n, len(cols)))
+    for i in range(n):
+        for j, c in enumerate(cols):
+            v = values.sheet(c.sheet).get(c.row_of(i), c.col)
+            if v.kind != NUMBER:
+                raise DataError(
+                    f"a new row holds {describe_value(v)} where a number is needed",
+                    Context(file, d.name, c.sheet, cell_ref(c.row_of(i), c.col)),
+                    hint="fill it in or shorten the range of new rows",
+                )
+            X[i, j] = v.number
+    if n == 0:
+        raise DataError("the new rows range holds no rows", Context(file, d.name))
+    return NewRows(cols, X)
+
+
+def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Settings:
+    d = decl.names.get("opts")
+    if d is None:
+        return parse_settings([], Context(file))
+    areas = _areas(d, pkg, file)
+    areas = _trim(areas, _last_row(areas, values))
+    if len(areas) != 1 or areas[0].n_cols != 2:
+        raise DeclarationError(
+            "settings must be one range of two columns (setting, value)", Context(file, d.name),
+        )
+    a = areas[0]
+    sv = values.sheet(a.sheet)
+    pairs = []
+    for r in range(a.row1, a.row2 + 1):
+        key, val = sv.get(r, a.col1), sv.get(r, a.col1 + 1)
+        if key.kind == BLANK and val.kind == BLANK:
+            continue
+        if r == a.row1 and key.text.strip().lower() == "setting" \
+                and val.text.strip().lower() == "value":
+            continue
+        raw: object = val.number if val.kind == NUMBER else val.text
+        if key.kind != TEXT or val.kind == BLANK:
+            raise DeclarationError(
+                "each settings row needs a setting name and a value",
+                Context(file, d.name, a.sheet, cell_ref(r, a.col1)),
+            )
+        pairs.append((key.text, raw, cell_ref(r, a.col1 + 1)))
+    return parse_settings(pairs, Context(file, d.name, a.sheet))

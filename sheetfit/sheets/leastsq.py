@@ -1,0 +1,282 @@
+"""Sheet plans for a least-squares model: coefficients with checks, fitted values, residuals.
+
+Every cached value is computed here the way its formula computes it (same
+operations, same order), so an engine that recalculates the book reproduces it.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..declare.model import ModelData
+from ..fit.leastsq import LeastSquaresResult
+from ..owned import sheet_title
+from .plan import SheetPlan, absolute
+
+__all__ = ["FIRST_ROW", "LeastSquaresSheets", "plan_least_squares"]
+
+#: Row (0-based) of the first data row on the fitted-value and residual sheets.
+FIRST_ROW = 4
+
+
+@dataclass
+class LeastSquaresSheets:
+    """The planned sheets of one least-squares model and the output names they carry."""
+
+    coef: SheetPlan
+    fitted: SheetPlan
+    resid: SheetPlan
+    names: list[tuple[str, str]]
+
+    @property
+    def sheets(self) -> list[SheetPlan]:
+        return [self.coef, self.fitted, self.resid]
+
+
+def _fsum_sq(v: np.ndarray) -> float:
+    return math.fsum(float(a) * float(a) for a in v)
+
+
+def _term_values(X: np.ndarray, degree: int) -> list[tuple[int, int]]:
+    """(attribute column, power) of each non-constant term, in coefficient order."""
+    if degree > 1:
+        return [(0, d) for d in range(1, degree + 1)]
+    return [(j, 1) for j in range(X.shape[1])]
+
+
+def _cosine(r: np.ndarray, t: np.ndarray) -> float:
+    """What =IF(SUMSQ(r)=0,0,SUMPRODUCT(r,t)/SQRT(SUMSQ(r)*SUMSQ(t))) evaluates to."""
+    ssr = _fsum_sq(r)
+    if ssr == 0:
+        return 0.0
+    return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * _fsum_sq(t))
+
+
+def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) -> LeastSquaresSheets:
+    """Plan the coefficient, fitted-value and residual sheets of a fitted model."""
+    tag, y = model.tag, model.y
+    coef = np.asarray(res.coef_, dtype=float)
+    intercept = bool(res.intercept)
+    degree = int(res.degree)
+    terms: list[str] = list(res.terms)
+    n = len(model.used)
+    p = len(coef)
+    specs = _term_values(model.X, degree)
+    tvals = [model.X[:, j] ** d if d > 1 else model.X[:, j] for j, d in specs]
+
+    cs = SheetPlan(sheet_title(tag, "coef"))
+    fs = SheetPlan(sheet_title(tag, "fitted"))
+    rs = SheetPlan(sheet_title(tag, "resid"))
+    first_coef = 4
+    coef_cell = [absolute(first_coef + k, 1) for k in range(p)]
+    coef_ref = [cs.ref(first_coef + k, 1) for k in range(p)]
+
+    # --- fitted-value sheet -------------------------------------------------------
+    last = FIRST_ROW + n - 1
+    fs.put(0, 0, f"Fitted values — model {tag}", style="title")
+    fs.put(1, 0, "Each fitted value is a formula: the coefficients on sheet "
+           f"'{cs.title}' times the term values from your data cells.", style="note")
+    head = ["data row", f"{y.name} (observed)"] + terms[int(intercept):] + [f"fitted {y.name}"]
+    for c, h in enumerate(head):
+        fs.put(3, c, h, style="head")
+    fit_col = 2 + len(specs)
+    fitted = np.empty(n)
+    for i, idx in enumerate(model.used):
+        r = FIRST_ROW + i
+        fs.put(r, 0, int(y.row_of(int(idx))), style="int")
+        fs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
+        parts, value = [], 0.0
+        if intercept:
+            parts.append(coef_ref[0])
+            value = float(coef[0])
+        for k, ((j, d), tv) in enumerate(zip(specs, tvals)):
+            src = model.xs[j].cell(int(idx))
+            term_ref = src if d == 1 else f"{src}^{d}"
+            fs.put(r, 2 + k, float(tv[i]), f"={term_ref}", "num")
+            ck = coef_ref[k + int(intercept)]
+            parts.append(f"{ck}*{term_ref}")
+            prod = float(coef[k + int(intercept)]) * float(tv[i])
+            value = prod if (k == 0 and not intercept) else value + prod
+        fitted[i] = value
+        fs.put(r, fit_col, value, "=" + "+".join(parts), "num")
+    fs.widths = {0: 9, fit_col: 16}
+    fs.freeze = (FIRST_ROW, 1)
+
+    # new rows to predict, to the right
+    names: list[tuple[str, str]] = []
+    side = fit_col + 2
+    if model.new is not None:
+        side = _plan_new(fs, model, coef, coef_ref, specs, intercept, side, names)
+    if model.left_out:
+        fs.put(3, side, "left-out data row", style="head")
+        fs.put(3, side + 1, "why it was left out of the fit", style="head")
+        for i, lo in enumerate(model.left_out):
+            fs.put(FIRST_ROW + i, side, lo.sheet_row, style="int")
+            fs.put(FIRST_ROW + i, side + 1, lo.reason)
+        fs.widths[side + 1] = 44
+
+    # --- residual sheet -------------------------------------------------------------
+    rs.put(0, 0, f"Residuals — model {tag}", style="title")
+    rs.put(1, 0, "residual = observed − fitted, each a formula.", style="note")
+    for c, h in enumerate(["data row", f"{y.name} (observed)", f"fitted {y.name}", "residual"]):
+        rs.put(3, c, h, style="head")
+    resid = np.empty(n)
+    for i, idx in enumerate(model.used):
+        r = FIRST_ROW + i
+        rs.put(r, 0, int(y.row_of(int(idx))), style="int")
+        rs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
+        rs.put(r, 2, float(fitted[i]), f"={fs.ref(r, fit_col, fixed=False)}", "num")
+        resid[i] = float(model.Y[i]) - float(fitted[i])
+        rs.put(r, 3, resid[i], f"=B{r + 1}-C{r + 1}", "num")
+    rs.widths = {0: 9, 3: 16}
+    rs.freeze = (FIRST_ROW, 1)
+    resid_rng = rs.col_range(3, FIRST_ROW, last)
+    y_rng = fs.col_range(1, FIRST_ROW, last)
+
+    # --- coefficient sheet ----------------------------------------------------------
+    xs = ", ".join(model.attribute_names)
+    cs.put(0, 0, f"Least-squares coefficients — model {tag}: {y.name} on {xs}", style="title")
+    cs.put(1, 0, f"Coefficients computed by sheetfit {version} ({res.method_note}). "
+           "The check beside each is a native formula, the cosine of the angle between the "
+           "residuals and that term's column: least squares makes it 0.", style="note")
+    heads = ["term", "coefficient", "check: cos(residuals, term column)"]
+    one_line = intercept and degree == 1 and len(model.xs) == 1
+    if one_line:
+        heads.append("check: slope = r × SD(y) / SD(x)")
+    for c, h in enumerate(heads):
+        cs.put(3, c, h, style="head")
+    ssr = _fsum_sq(resid)
+    for k, term in enumerate(terms):
+        r = first_coef + k
+        cs.put(r, 0, term, style="label")
+        cs.put(r, 1, float(coef[k]), style="coef")
+        if intercept and k == 0:
+            value = 0.0 if ssr == 0 else math.fsum(resid) / math.sqrt(ssr * n)
+            f = (f"=IF(SUMSQ({resid_rng})=0,0,SUM({resid_rng})/"
+                 f"SQRT(SUMSQ({resid_rng})*COUNT({resid_rng})))")
+        else:
+            t_rng = fs.col_range(2 + k - int(intercept), FIRST_ROW, last)
+            value = _cosine(resid, tvals[k - int(intercept)])
+            f = (f"=IF(SUMSQ({resid_rng})=0,0,SUMPRODUCT({resid_rng},{t_rng})/"
+                 f"SQRT(SUMSQ({resid_rng})*SUMSQ({t_rng})))")
+        cs.put(r, 2, value, f, "check")
+    if one_line:
+        x_rng = fs.col_range(2, FIRST_ROW, last)
+        xv, yv = tvals[0], model.Y
+        rr = float(np.corrcoef(xv, yv)[0, 1])
+        slope = rr * float(np.std(yv)) / float(np.std(xv))
+        cs.put(first_coef + 1, 3, slope,
+               f"=CORREL({y_rng},{x_rng})*STDEV.P({y_rng})/STDEV.P({x_rng})", "coef")
+    row = first_coef + p + 1
+    row = _plan_summary(cs, row, n, p, resid, model.Y, intercept, resid_rng, y_rng,
+                        coef_cell, one_line, fs, last, tvals)
+    row = _plan_range(cs, row + 1, model, specs, tvals, fs, last)
+    cs.widths = {0: 30, 1: 24, 2: 22, 3: 24}
+
+    coef_rng = cs.col_range(1, first_coef, first_coef + p - 1)
+    names = [
+        (f"sf_{tag}_coef", coef_rng),
+        (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
+        (f"sf_{tag}_resid", resid_rng),
+    ] + names
+    return LeastSquaresSheets(cs, fs, rs, names)
+
+
+def _plan_new(fs: SheetPlan, model: ModelData, coef: np.ndarray, coef_ref: list[str],
+              specs: list[tuple[int, int]], intercept: bool, side: int,
+              names: list[tuple[str, str]]) -> int:
+    new = model.new
+    assert new is not None
+    tag = model.tag
+    fs.put(3, side, "new row", style="head")
+    for j, c in enumerate(new.columns):
+        fs.put(3, side + 1 + j, c.name if c.name else model.xs[j].name, style="head")
+    pcol = side + 1 + len(new.columns)
+    fs.put(3, pcol, f"predicted {model.y.name}", style="head")
+    fs.put(2, side, "Predictions for the rows declared as new (formulas as for fitted values).",
+           style="note")
+    for i in range(new.n):
+        r = FIRST_ROW + i
+        fs.put(r, side, new.columns[0].row_of(i), style="int")
+        for j, c in enumerate(new.columns):
+            fs.put(r, side + 1 + j, float(new.X[i, j]), f"={c.cell(i)}", "num")
+        parts, value = [], 0.0
+        if intercept:
+            parts.append(coef_ref[0])
+            value = float(coef[0])
+        for k, (j, d) in enumerate(specs):
+            xv = float(new.X[i, j])
+            src = new.columns[j].cell(i)
+            term_ref = src if d == 1 else f"{src}^{d}"
+            parts.append(f"{coef_ref[k + int(intercept)]}*{term_ref}")
+            prod = float(coef[k + int(intercept)]) * (xv ** d if d > 1 else xv)
+            value = prod if (k == 0 and not intercept) else value + prod
+        fs.put(r, pcol, value, "=" + "+".join(parts), "num")
+    fs.widths[pcol] = 16
+    names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, FIRST_ROW + new.n - 1)))
+    return pcol + 2
+
+
+def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y: np.ndarray,
+                  intercept: bool, resid_rng: str, y_rng: str, coef_cell: list[str],
+                  one_line: bool, fs: SheetPlan, last: int, tvals: list[np.ndarray]) -> int:
+    cs.put(row, 0, "summary (native formulas)", style="head")
+    cs.put(row, 1, "value", style="head")
+    cs.put(row, 2, "what it is", style="head")
+    ssr = _fsum_sq(resid)
+    n_row, p_row = row + 1, row + 2
+    n_ref, p_ref = absolute(n_row, 1), absolute(p_row, 1)
+    coef_rng = f"{coef_cell[0]}:{coef_cell[-1]}"
+    lines: list[tuple[str, object, str, str, str]] = [
+        ("rows used (n)", n, f"=COUNT({resid_rng})", "int", "data rows in the fit"),
+        ("parameters (p)", p, f"=COUNT({coef_rng})", "int", "coefficients estimated"),
+        ("RMSE", math.sqrt(ssr / n), f"=SQRT(SUMSQ({resid_rng})/{n_ref})", "num",
+         "root mean squared residual (divides by n)"),
+        ("residual SD", math.sqrt(ssr / (n - p)) if n > p else "n/a",
+         f'=IF({n_ref}>{p_ref},SQRT(SUMSQ({resid_rng})/({n_ref}-{p_ref})),"n/a")', "num",
+         "standard error of the estimate (divides by n − p)"),
+    ]
+    if intercept:
+        mean = math.fsum(float(v) for v in Y) / len(Y)
+        dev = math.fsum((float(v) - mean) ** 2 for v in Y)
+        r2 = "n/a" if dev == 0 else 1 - ssr / dev
+        lines.append(("R²", r2, f'=IF(DEVSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/DEVSQ({y_rng}))',
+                      "ratio", "share of the variation of y about its mean that the fit explains"))
+    else:
+        tot = _fsum_sq(Y)
+        r2 = "n/a" if tot == 0 else 1 - ssr / tot
+        lines.append(("R² (uncentred)", r2,
+                      f'=IF(SUMSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/SUMSQ({y_rng}))', "ratio",
+                      ("no intercept, so R² is taken about zero, not about the mean of y; "
+                       "it is not comparable with an R² of a model with intercept")))
+    if one_line:
+        x_rng = fs.col_range(2, FIRST_ROW, last)
+        lines.append(("correlation r", float(np.corrcoef(tvals[0], Y)[0, 1]),
+                      f"=CORREL({y_rng},{x_rng})", "ratio", "Pearson correlation of y and x"))
+    for k, (label, value, formula, style, what) in enumerate(lines):
+        cs.put(row + 1 + k, 0, label, style="label")
+        cs.put(row + 1 + k, 1, value, formula, style)  # type: ignore[arg-type]
+        cs.put(row + 1 + k, 2, what, style="note")
+    return row + 1 + len(lines)
+
+
+def _plan_range(cs: SheetPlan, row: int, model: ModelData, specs: list[tuple[int, int]],
+                tvals: list[np.ndarray], fs: SheetPlan, last: int) -> int:
+    cs.put(row, 0, "relevant range", style="head")
+    cs.put(row, 1, "smallest", style="head")
+    cs.put(row, 2, "largest", style="head")
+    cs.put(row + 1, 0, "The fit describes the data only between these attribute values; "
+           "outside them it is an extrapolation.", style="note")
+    r = row + 2
+    for k, (j, d) in enumerate(specs):
+        if d != 1:
+            continue
+        rng = fs.col_range(2 + k, FIRST_ROW, last)
+        cs.put(r, 0, model.xs[j].name, style="label")
+        cs.put(r, 1, float(np.min(tvals[k])), f"=MIN({rng})", "num")
+        cs.put(r, 2, float(np.max(tvals[k])), f"=MAX({rng})", "num")
+        r += 1
+    return r

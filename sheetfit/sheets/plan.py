@@ -1,0 +1,100 @@
+"""A sheet plan: the cells of one owned sheet as plain data (address, formula, cached value, style).
+
+Plans are what tests inspect without writing a file; the renderer turns them into
+sheet parts. Rows and columns are 0-based here, as in the renderer.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from ..declare.refs import cell_ref
+from ..owned import quote_sheet
+
+__all__ = ["STYLES", "BookPlan", "Cell", "SheetPlan", "absolute", "area"]
+
+Scalar = float | int | str | bool | None
+
+#: Cell styles by key, as xlsxwriter format properties. Layout is data.
+STYLES: dict[str, dict[str, object]] = {
+    "text": {},
+    "title": {"bold": True, "font_size": 13},
+    "note": {"italic": True, "font_color": "#555555"},
+    "head": {"bold": True, "bottom": 1, "text_wrap": True, "valign": "top"},
+    "label": {"bold": True},
+    "num": {"num_format": "General"},
+    "coef": {"num_format": "0.000000000000000E+00"},
+    "check": {"num_format": "0.0E+00", "font_color": "#2E6B30"},
+    "int": {"num_format": "0"},
+    "ratio": {"num_format": "0.000000"},
+    "caution": {"font_color": "#8A4B00", "text_wrap": False},
+}
+
+
+@dataclass(frozen=True)
+class Cell:
+    """One planned cell; a formula cell carries its cached value too."""
+
+    row: int
+    col: int
+    value: Scalar
+    formula: str | None = None
+    style: str = "text"
+
+    @property
+    def address(self) -> str:
+        return cell_ref(self.row + 1, self.col + 1)
+
+
+@dataclass
+class SheetPlan:
+    """Every cell of one owned sheet, plus column widths and frozen panes."""
+
+    title: str
+    cells: list[Cell] = field(default_factory=list)
+    widths: dict[int, float] = field(default_factory=dict)
+    freeze: tuple[int, int] | None = None
+
+    def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
+            style: str = "text") -> Cell:
+        """Add a cell (a formula must start with '=') and return it."""
+        if formula is not None and not formula.startswith("="):
+            raise ValueError(f"formula without '=': {formula}")
+        if style not in STYLES:
+            raise KeyError(style)
+        cell = Cell(row, col, value, formula, style)
+        self.cells.append(cell)
+        return cell
+
+    def ref(self, row: int, col: int, fixed: bool = True) -> str:
+        """Formula reference to a cell of this sheet from another sheet."""
+        addr = absolute(row, col) if fixed else cell_ref(row + 1, col + 1)
+        return f"{quote_sheet(self.title)}!{addr}"
+
+    def col_range(self, col: int, row1: int, row2: int) -> str:
+        """Formula reference to rows row1..row2 of a column of this sheet, from anywhere."""
+        return area(self.title, row1, col, row2, col)
+
+    def formula_cells(self) -> list[Cell]:
+        return [c for c in self.cells if c.formula is not None]
+
+
+@dataclass
+class BookPlan:
+    """All owned sheets of one refresh, in order, and the output names to define."""
+
+    sheets: list[SheetPlan]
+    names: list[tuple[str, str]]
+
+
+def absolute(row: int, col: int) -> str:
+    """Absolute A1 address, e.g. (4, 1) -> $B$5."""
+    ref = cell_ref(row + 1, col + 1)
+    letters = ref.rstrip("0123456789")
+    return f"${letters}${ref[len(letters):]}"
+
+
+def area(title: str, row1: int, col1: int, row2: int, col2: int) -> str:
+    """Absolute reference to a rectangle of a sheet, e.g. 'sf a coef'!$B$5:$B$7."""
+    a, b = absolute(row1, col1), absolute(row2, col2)
+    return f"{quote_sheet(title)}!{a}" + ("" if a == b else f":{b}")
