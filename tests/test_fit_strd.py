@@ -8,8 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import sheetfit.fit.leastsq as leastsq
-from sheetfit.fit import LeastSquares
+from sheetfit.fit import LeastSquares, leastsq
 from sheetfit.fit.strd import StrdCase, lre, main, read_strd, strd_dir
 
 # (observations, parameters) as printed in each file's header (NIST StRD, lines 15-22).
@@ -40,8 +39,10 @@ ZERO_ABS_TOL = 1e-13
 def _folder() -> Path:
     folder = strd_dir()
     if folder is None:
-        pytest.fail("StRD folder not found: expected ../shared/reference/strd beside the repo "
-                    "or SHEETFIT_STRD_DIR")
+        pytest.fail(
+            "StRD folder not found: expected ../shared/reference/strd beside the repo "
+            "or SHEETFIT_STRD_DIR"
+        )
     return folder
 
 

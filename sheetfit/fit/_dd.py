@@ -9,6 +9,8 @@ exact rational arithmetic.
 
 from __future__ import annotations
 
+from typing import Any, TypeAlias
+
 import numpy as np
 
 __all__ = [
@@ -23,10 +25,13 @@ __all__ = [
     "two_sum",
 ]
 
+#: An array or a scalar: the error-free transformations work element-wise on either.
+_Num: TypeAlias = "np.ndarray | np.floating[Any] | float"
+
 _SPLIT = 134217729.0  # 2**27 + 1, Dekker's splitting constant for float64
 
 
-def two_sum(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def two_sum(a: _Num, b: _Num) -> tuple[Any, Any]:
     """s, e with s = fl(a + b) and s + e = a + b exactly."""
     s = a + b
     bb = s - a
@@ -40,7 +45,7 @@ def _split(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return hi, a - hi
 
 
-def two_prod(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def two_prod(a: np.ndarray, b: _Num) -> tuple[np.ndarray, np.ndarray]:
     """p, e with p = fl(a · b) and p + e = a · b exactly (barring overflow)."""
     p = a * b
     ah, al = _split(a)
