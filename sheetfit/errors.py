@@ -11,16 +11,16 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = [
-    "SheetfitError",
-    "DeclarationError",
-    "DataError",
-    "SettingError",
-    "PackageError",
     "CollinearError",
-    "Context",
-    "SheetfitCaution",
-    "ExtrapolationCaution",
     "ConditioningCaution",
+    "Context",
+    "DataError",
+    "DeclarationError",
+    "ExtrapolationCaution",
+    "PackageError",
+    "SettingError",
+    "SheetfitCaution",
+    "SheetfitError",
 ]
 
 
@@ -65,7 +65,7 @@ class SheetfitError(Exception):
             text += f" — {self.hint}"
         return text
 
-    def with_file(self, file: str) -> "SheetfitError":
+    def with_file(self, file: str) -> SheetfitError:
         """Return the same refusal with the file name filled in (if missing)."""
         if self.context.file:
             return self

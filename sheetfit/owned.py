@@ -9,16 +9,16 @@ from __future__ import annotations
 import re
 
 __all__ = [
-    "PREFIX",
-    "INPUT_ROLES",
-    "OUTPUT_ROLES",
-    "MARKER_NAME",
     "INDEX_SHEET",
+    "INPUT_ROLES",
+    "MARKER_NAME",
     "MAX_TAG",
+    "OUTPUT_ROLES",
+    "PREFIX",
     "SHEET_KINDS",
+    "quote_sheet",
     "sheet_title",
     "split_name",
-    "quote_sheet",
 ]
 
 #: Every declaration and output name starts with this prefix (case-insensitive).

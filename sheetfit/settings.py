@@ -6,12 +6,13 @@ allowed, what was given.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
-from typing import Any, Callable, Mapping
+from typing import Any
 
 from .errors import Context, SettingError
 
-__all__ = ["Rule", "RULES", "METHODS", "Settings", "parse_settings"]
+__all__ = ["METHODS", "RULES", "Rule", "Settings", "parse_settings"]
 
 #: Methods a model can use; the words are sheetfit's own.
 METHODS = ("least_squares",)

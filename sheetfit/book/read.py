@@ -18,7 +18,7 @@ import python_calamine
 
 from ..errors import Context, PackageError
 
-__all__ = ["Value", "SheetValues", "BookValues", "BLANK", "NUMBER", "TEXT", "ERROR", "OTHER"]
+__all__ = ["BLANK", "ERROR", "NUMBER", "OTHER", "TEXT", "BookValues", "SheetValues", "Value"]
 
 BLANK, NUMBER, TEXT, ERROR, OTHER = "blank", "number", "text", "error", "other"
 
@@ -27,7 +27,7 @@ _EPOCH_1904 = dt.datetime(1904, 1, 1)
 _ERROR_CELL = re.compile(
     rb"<(?:\w+:)?c\b(?=[^>]*\bt=\"e\")[^>]*?\br=\"([A-Z]+)([0-9]+)\"[^>]*>"
     rb"(?:.*?<(?:\w+:)?v>([^<]*)</(?:\w+:)?v>)?",
-    re.S,
+    re.DOTALL,
 )
 
 
@@ -89,7 +89,7 @@ class SheetValues:
     def last_used_row(self, col1: int, col2: int) -> int:
         """The last row holding any value (or error) in columns col1..col2; 0 if none."""
         last = 0
-        for (r, c) in self.errors:
+        for r, c in self.errors:
             if col1 <= c <= col2:
                 last = max(last, r)
         for i in range(len(self.rows) - 1, last - 1, -1):

@@ -32,6 +32,9 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
     formats: dict[str, Any] = {k: (wb.add_format(v) if v else None) for k, v in STYLES.items()}
     for sheet in plan.sheets:
         ws = wb.add_worksheet(sheet.title)
+        # printed for review: landscape, as wide as one page
+        ws.set_landscape()
+        ws.fit_to_pages(1, 0)
         for col, width in sheet.widths.items():
             ws.set_column(col, col, width)
         if sheet.freeze:

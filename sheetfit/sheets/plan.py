@@ -23,7 +23,7 @@ STYLES: dict[str, dict[str, object]] = {
     "head": {"bold": True, "bottom": 1, "text_wrap": True, "valign": "top"},
     "label": {"bold": True},
     "num": {"num_format": "General"},
-    "coef": {"num_format": "0.000000000000000E+00"},
+    "coef": {"num_format": "General"},
     "check": {"num_format": "0.0E+00", "font_color": "#2E6B30"},
     "int": {"num_format": "0"},
     "ratio": {"num_format": "0.000000"},
