@@ -26,7 +26,6 @@ from fractions import Fraction
 from functools import cached_property
 
 import numpy as np
-from scipy.linalg import solve_triangular
 
 from sheetfit.errors import CollinearError, DataError, SettingError
 from sheetfit.fit._dd import (
@@ -127,6 +126,7 @@ class _Solution:
     inv_diag: np.ndarray
     condition_number: float
     method_note: str
+    solver: str
 
 
 def _readonly(a: np.ndarray) -> np.ndarray:
@@ -240,6 +240,11 @@ class LeastSquaresResult:
     def condition_number(self) -> float:
         """2-norm condition number of the design with columns scaled to unit length."""
         return self._sol.condition_number
+
+    @cached_property
+    def solver(self) -> str:
+        """Which path solved it: "exact" (rational arithmetic) or "refined" (float + refinement)."""
+        return self._sol.solver
 
     @cached_property
     def method_note(self) -> str:
@@ -372,7 +377,7 @@ def _solve(
         j = int(np.flatnonzero(norms == 0)[0])
         raise CollinearError(f"attribute {terms[j]} is zero in every row", hint="remove it")
     scaled = design / norms
-    q, r = np.linalg.qr(scaled)
+    r = np.linalg.qr(scaled, mode="r")
     _, sv, vt = np.linalg.svd(r)
     cond = float(sv[0] / sv[-1]) if sv[-1] > 0 else math.inf
     if not sv[-1] > RANK_TOL * sv[0]:
@@ -386,7 +391,7 @@ def _solve(
     if degree > 1:  # the float64 powers are rounded; carry what rounding drops
         _, lo = dd_powers(X[:, 0], degree)
         design_lo = np.column_stack([np.zeros(n), lo]) if intercept else lo
-    return _solve_float(y, design, design_lo, norms, q, r, intercept, cond)
+    return _solve_float(y, design, design_lo, intercept, cond)
 
 
 def _solve_exact(
@@ -405,16 +410,13 @@ def _solve_exact(
         f"normal equations solved exactly in rational arithmetic on the float64 data "
         f"(rows × parameters = {n * len(cols)} ≤ {EXACT_LIMIT}); each statistic rounded once"
     )
-    return _Solution(s.coef, s.fitted, s.resid, s.ssr, s.tss, s.r2, s.inv_diag, cond, note)
+    return _Solution(s.coef, s.fitted, s.resid, s.ssr, s.tss, s.r2, s.inv_diag, cond, note, "exact")
 
 
 def _solve_float(
     y: np.ndarray,
     design: np.ndarray,
     design_lo: np.ndarray | None,
-    norms: np.ndarray,
-    q: np.ndarray,
-    r: np.ndarray,
     intercept: bool,
     cond: float,
 ) -> _Solution:
@@ -428,7 +430,7 @@ def _solve_float(
     except ZeroDivisionError:
         raise CollinearError("the attributes are collinear (singular normal equations)") from None
 
-    beta = solve_triangular(r, q.T @ y) / norms
+    beta = np.zeros(p)  # the first step is then the normal-equations solution itself
     steps, last, size = 0, math.inf, math.inf
     for steps in range(1, _MAX_REFINE + 1):
         hi, lo = dd_residual(y, design, beta, design_lo)
@@ -453,8 +455,8 @@ def _solve_float(
     r2 = 1.0 - ssr / tss if tss > 0 else math.nan
     inv_diag = np.array([float(g_inv[j][j]) for j in range(p)])
     note = (
-        f"QR on unit-scaled columns, then {steps} refinement step(s) with double-double "
-        f"residuals and a double-double XᵀX inverted exactly (last relative correction "
-        f"{size:.1e})"
+        f"normal equations with XᵀX accumulated in double-double and inverted exactly, "
+        f"{steps} refinement step(s) with double-double residuals (last relative correction "
+        f"{size:.1e}); rank checked by QR of the unit-scaled columns"
     )
-    return _Solution(beta, fitted, hi + 0.0, ssr, tss, r2, inv_diag, cond, note)
+    return _Solution(beta, fitted, hi + 0.0, ssr, tss, r2, inv_diag, cond, note, "refined")
