@@ -708,36 +708,32 @@ def _sheet_cells(
     arrays: list[tuple[int, int, int, int, str, str]] = []  # open array ranges, text, ref
     all_arrays: list[tuple[int, int, int, int, str, str]] = []
     row_index = -1
-    col_index = -1
-    for event, elem in SafeET.iterparse(stream, events=("start", "end")):
-        tag = _local(elem.tag)
-        if event == "start":
-            if tag == "row":
-                r = elem.get("r")
-                row_index = int(r) - 1 if r else row_index + 1
-                col_index = -1
+    # Whole rows are handled at their end event: cheaper than per-cell events, and the
+    # row number is known for cells that omit their own reference.
+    for _, row in SafeET.iterparse(stream, events=("end",)):
+        if _local(row.tag) != "row":
             continue
-        if tag == "row":
-            elem.clear()
-            continue
-        if tag != "c":
-            continue
-        ref = elem.get("r")
-        if ref:
-            col_index, row_index = _split_address(ref)
-        else:
-            col_index += 1
-        address = f"{column_letters(col_index)}{row_index + 1}"
-        f = v = None
-        for child in elem:
-            name = _local(child.tag)
-            if name == "f":
-                f = child
-            elif name == "v":
-                v = child
-        if f is None:
-            if arrays:
-                arrays[:] = [a for a in arrays if a[3] >= row_index]
+        r = row.get("r")
+        row_index = int(r) - 1 if r else row_index + 1
+        if arrays:
+            arrays[:] = [a for a in arrays if a[3] >= row_index]
+        col_index = -1
+        for elem in row:
+            if _local(elem.tag) != "c":
+                continue
+            ref = elem.get("r")
+            col_index = _split_address(ref)[0] if ref else col_index + 1
+            f = v = None
+            for child in elem:
+                name = _local(child.tag)
+                if name == "f":
+                    f = child
+                elif name == "v":
+                    v = child
+            if f is None and not arrays:
+                continue
+            address = f"{column_letters(col_index)}{row_index + 1}"
+            if f is None:
                 for c0, r0, c1, r1, text, aref in arrays:
                     if c0 <= col_index <= c1 and r0 <= row_index <= r1:
                         kind, value = _cached_value(elem, v, strings)
@@ -745,30 +741,29 @@ def _sheet_cells(
                             sheet, address, text, kind, value, f"array {aref}"
                         )
                         break
-            elem.clear()
-            continue
-        ftype = f.get("t", "normal")
-        text = f.text or ""
-        note = ""
-        if ftype == "shared":
-            si = f.get("si", "")
-            if text:
-                shared[si] = (text, col_index, row_index)
-            elif si in shared:
-                master, mcol, mrow = shared[si]
-                text = _shift_formula(master, col_index - mcol, row_index - mrow)
-                note = f"shared si={si} from {column_letters(mcol)}{mrow + 1}"
-            else:
-                note = f"shared si={si}, master not found"
-        elif ftype == "array":
-            aref = f.get("ref") or address
-            box = (*_split_range(aref), text, aref)
-            arrays.append(box)
-            all_arrays.append(box)
-            note = f"array {aref}"
-        kind, value = _cached_value(elem, v, strings)
-        found[address] = CachedCell(sheet, address, text, kind, value, note)
-        elem.clear()
+                continue
+            ftype = f.get("t", "normal")
+            text = f.text or ""
+            note = ""
+            if ftype == "shared":
+                si = f.get("si", "")
+                if text:
+                    shared[si] = (text, col_index, row_index)
+                elif si in shared:
+                    master, mcol, mrow = shared[si]
+                    text = _shift_formula(master, col_index - mcol, row_index - mrow)
+                    note = f"shared si={si} from {column_letters(mcol)}{mrow + 1}"
+                else:
+                    note = f"shared si={si}, master not found"
+            elif ftype == "array":
+                aref = f.get("ref") or address
+                box = (*_split_range(aref), text, aref)
+                arrays.append(box)
+                all_arrays.append(box)
+                note = f"array {aref}"
+            kind, value = _cached_value(elem, v, strings)
+            found[address] = CachedCell(sheet, address, text, kind, value, note)
+        row.clear()
     # Array members with no <c> element at all still show a value in the engine.
     for c0, r0, c1, r1, text, aref in all_arrays:
         for r in range(r0, r1 + 1):
