@@ -15,8 +15,10 @@ from engine.recalc import (
     Engine,
     EngineCrashed,
     EngineTimeout,
+    RecalcCell,
     assert_cached_values_hold,
     cached_formula_values,
+    compare_books,
     compare_to_cached,
 )
 
@@ -288,3 +290,18 @@ def test_missing_book_is_refused(engine: Engine, tmp_path: Path) -> None:
     """Asking for a book that does not exist fails before the engine is bothered."""
     with pytest.raises(FileNotFoundError, match="no such workbook"):
         engine.recalculate(tmp_path / "absent.xlsx")
+
+
+def test_cells_missing_on_either_side_are_mismatches() -> None:
+    """A formula the engine does not report, or one absent from the file, is a mismatch."""
+    cached = {("s", "A1"): CachedCell("s", "A1", "1+1", "n", 2.0)}
+    fresh = {("s", "B1"): RecalcCell("s", "B1", 3.0, None, 0, "=1+2")}
+    mismatches = compare_books(cached, fresh)
+    assert mismatches.checked == 2
+    assert [(m.address, m.reason) for m in mismatches] == [
+        ("A1", "the engine reports no formula here"),
+        ("B1", "formula cell missing from the file"),
+    ]
+    close = {("s", "A1"): RecalcCell("s", "A1", 2.0 + 1e-12, None, 0, "=1+1")}
+    assert compare_books(cached, close) == []
+    assert len(compare_books(cached, close, rel=1e-14, abs_=0.0)) == 1

@@ -33,7 +33,7 @@ import zipfile
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import IO, Any, Literal, Self
+from typing import IO, Any, Literal, NoReturn, Self
 
 from defusedxml import ElementTree as SafeET
 
@@ -491,7 +491,9 @@ class Engine:
             f"{_tail(run.worker_log_path)}"
         )
 
-    def _fail(self, run: _Running, kind: type[EngineError], message: str, elapsed: float) -> Any:
+    def _fail(
+        self, run: _Running, kind: type[EngineError], message: str, elapsed: float
+    ) -> NoReturn:
         """Kill the pair (the next request restarts it) and raise with both logs' tails."""
         _hard_stop(run, close_logs=False)
         details = self._diagnostics(run)
