@@ -10,10 +10,24 @@ from pathlib import Path
 from typing import Any
 
 import xlsxwriter
+from xlsxwriter.worksheet import Worksheet
 
 from ..sheets.plan import STYLES, BookPlan
 
 __all__ = ["render"]
+
+
+class _ExactWorksheet(Worksheet):  # type: ignore[misc]
+    """A worksheet that stores numbers with every digit (shortest round-trip form).
+
+    xlsxwriter writes plain numbers with 16 significant digits, which does not
+    round-trip every double: on an ill-conditioned fit (a degree-10 polynomial) the
+    lost 17th digit of the coefficients moves fitted-value formulas by ~1e-9.
+    """
+
+    def _xml_number_element(self, number: float, attributes: Any = ()) -> None:
+        attr = "".join(f' {k}="{self._escape_attributes(v)}"' for k, v in attributes)
+        self.fh.write(f"<c{attr}><v>{float(number)!r}</v></c>")
 
 
 def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
@@ -31,7 +45,7 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
     )
     formats: dict[str, Any] = {k: (wb.add_format(v) if v else None) for k, v in STYLES.items()}
     for sheet in plan.sheets:
-        ws = wb.add_worksheet(sheet.title)
+        ws = wb.add_worksheet(sheet.title, worksheet_class=_ExactWorksheet)
         # printed for review: landscape, as wide as one page
         ws.set_landscape()
         ws.fit_to_pages(1, 0)

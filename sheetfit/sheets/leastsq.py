@@ -47,12 +47,26 @@ def _term_values(X: np.ndarray, degree: int) -> list[tuple[int, int]]:
     return [(j, 1) for j in range(X.shape[1])]
 
 
-def _cosine(r: np.ndarray, t: np.ndarray) -> float:
-    """What =IF(SUMSQ(r)=0,0,SUMPRODUCT(r,t)/SQRT(SUMSQ(r)*SUMSQ(t))) evaluates to."""
+#: Residuals this small relative to y (|r| <= 1e-12 |y|) are rounding noise of an exact
+#: fit; their angle with a term column is arbitrary and differs between engines (one
+#: rounds y - fitted to 0, another to ±1 ulp), so the check reads 0 for them.
+EXACT_FIT = "1E-24"
+
+
+def _cosine(r: np.ndarray, t: np.ndarray, y: np.ndarray) -> float:
+    """What the check formula evaluates to: 0 for an exact fit, else cos(r, t)."""
     ssr = _fsum_sq(r)
-    if ssr == 0:
+    if ssr <= float(EXACT_FIT) * _fsum_sq(y):
         return 0.0
     return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * _fsum_sq(t))
+
+
+def _check_formula(r: str, t: str | None, y: str) -> str:
+    """Native check formula: cosine of the angle between residuals r and term column t."""
+    guard = f"SUMSQ({r})<={EXACT_FIT}*SUMSQ({y})"
+    if t is None:  # the intercept's column is all ones
+        return f"=IF({guard},0,SUM({r})/SQRT(SUMSQ({r})*COUNT({r})))"
+    return f"=IF({guard},0,SUMPRODUCT({r},{t})/SQRT(SUMSQ({r})*SUMSQ({t})))"
 
 
 def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) -> LeastSquaresSheets:
@@ -141,27 +155,25 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     cs.put(0, 0, f"Least-squares coefficients — model {tag}: {y.name} on {xs}", style="title")
     cs.put(1, 0, f"Coefficients computed by sheetfit {version} ({res.method_note}). "
            "The check beside each is a native formula, the cosine of the angle between the "
-           "residuals and that term's column: least squares makes it 0.", style="note")
+           "residuals and that term's column: least squares makes it 0 (it reads 0 outright when "
+           "the fit reproduces y to 12 digits).", style="note")
     heads = ["term", "coefficient", "check: cos(residuals, term column)"]
     one_line = intercept and degree == 1 and len(model.xs) == 1
     if one_line:
         heads.append("check: slope = r × SD(y) / SD(x)")
     for c, h in enumerate(heads):
         cs.put(3, c, h, style="head")
-    ssr = _fsum_sq(resid)
     for k, term in enumerate(terms):
         r = first_coef + k
         cs.put(r, 0, term, style="label")
         cs.put(r, 1, float(coef[k]), style="coef")
         if intercept and k == 0:
-            value = 0.0 if ssr == 0 else math.fsum(resid) / math.sqrt(ssr * n)
-            f = (f"=IF(SUMSQ({resid_rng})=0,0,SUM({resid_rng})/"
-                 f"SQRT(SUMSQ({resid_rng})*COUNT({resid_rng})))")
+            value = _cosine(resid, np.ones(n), model.Y)
+            f = _check_formula(resid_rng, None, y_rng)
         else:
             t_rng = fs.col_range(2 + k - int(intercept), FIRST_ROW, last)
-            value = _cosine(resid, tvals[k - int(intercept)])
-            f = (f"=IF(SUMSQ({resid_rng})=0,0,SUMPRODUCT({resid_rng},{t_rng})/"
-                 f"SQRT(SUMSQ({resid_rng})*SUMSQ({t_rng})))")
+            value = _cosine(resid, tvals[k - int(intercept)], model.Y)
+            f = _check_formula(resid_rng, t_rng, y_rng)
         cs.put(r, 2, value, f, "check")
     if one_line:
         x_rng = fs.col_range(2, FIRST_ROW, last)

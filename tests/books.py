@@ -1,0 +1,59 @@
+"""Build small user workbooks for tests with xlsxwriter (an independent writer)."""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import xlsxwriter
+
+Row = Sequence[Any]
+
+
+def make_book(
+    path: Path,
+    sheets: Mapping[str, Sequence[Row]],
+    names: Mapping[str, str] | None = None,
+    local_names: Mapping[tuple[str, str], str] | None = None,
+    errors: Mapping[tuple[str, str], str] | None = None,
+) -> Path:
+    """Write a book: sheets as rows from A1 (None = blank), workbook- and sheet-scoped names.
+
+    ``errors`` maps (sheet, cell) to an error formula such as "=1/0"; its cached value is
+    the matching error text.
+    """
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": dt.datetime(2026, 1, 1)})
+    for title, rows in sheets.items():
+        ws = wb.add_worksheet(title)
+        for r, row in enumerate(rows):
+            for c, v in enumerate(row):
+                if v is None:
+                    continue
+                if isinstance(v, bool):
+                    ws.write_boolean(r, c, v)
+                elif isinstance(v, (int, float)):
+                    ws.write_number(r, c, v)
+                else:
+                    ws.write_string(r, c, str(v))
+    for (title, cell), formula in (errors or {}).items():
+        cached = {"=1/0": "#DIV/0!", "=NA()": "#N/A"}.get(formula, "#VALUE!")
+        wb.get_worksheet_by_name(title).write_formula(cell, formula, None, cached)
+    for name, ref in (names or {}).items():
+        wb.define_name(name, ref if ref.startswith("=") else "=" + ref)
+    for (title, name), ref in (local_names or {}).items():
+        sheet = title if "'" in title or " " not in title else f"'{title}'"
+        wb.define_name(f"{sheet}!{name}", ref if ref.startswith("=") else "=" + ref)
+    wb.close()
+    return path
+
+
+def line_rows(n: int = 8, header: Sequence[str] = ("cost", "units")) -> list[list[Any]]:
+    """A header row and n rows of an exact-ish straight line with a little wobble."""
+    rows: list[list[Any]] = [list(header)]
+    for i in range(n):
+        x = 10.0 + 3 * i
+        rows.append([100.0 + 2.5 * x + (1.5 if i % 2 else -1.0), x])
+    return rows

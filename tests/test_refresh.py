@@ -1,0 +1,141 @@
+"""End to end: refresh a workbook, recalculate it in LibreOffice, check against references."""
+
+from __future__ import annotations
+
+import re
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import pytest
+import python_calamine
+from books import line_rows, make_book
+
+from sheetfit.fit.strd import lre, read_strd, strd_files
+from sheetfit.owned import sheet_title
+from sheetfit.refresh import refresh
+
+ROOT = Path(__file__).resolve().parents[1]
+EXAMPLE = ROOT / "example_books" / "delivery_costs.xlsx"
+STRD = strd_files()
+
+
+def _strd_book(case, path: Path) -> Path:
+    """A user book holding one StRD dataset as its data, declared as a model."""
+    cols = ["y"] + list(case.columns)
+    rows = [cols] + [[float(v) for v in r] for r in np.column_stack([case.y, case.X])]
+    opts = [["intercept", "yes" if case.intercept else "no"], ["degree", case.degree]]
+    last = len(rows)
+    return make_book(path, {"Data": rows, "Opts": opts}, {
+        "sf_strd_y": f"Data!$A$1:$A${last}",
+        "sf_strd_x": f"Data!$B$1:${chr(65 + len(case.columns))}${last}",
+        "sf_strd_opts": "Opts!$A$1:$B$2",
+    })
+
+
+def _sheet_rows(path: Path, title: str) -> list[list[object]]:
+    book = python_calamine.load_workbook(str(path))
+    return book.get_sheet_by_name(title).to_python(skip_empty_area=False)
+
+
+def test_example_book_recalculates_to_cached_values(engine, tmp_path: Path) -> None:
+    """Every formula of the refreshed example holds its cached value after LibreOffice recalc."""
+    out = tmp_path / "refreshed.xlsx"
+    refresh(EXAMPLE, out)
+    mismatches = engine_compare(engine, out)
+    assert mismatches.checked > 400
+    assert not mismatches, mismatches.report()
+
+
+def engine_compare(engine, path: Path):
+    from engine.recalc import compare_to_cached
+
+    # 1e-9 relative, 1e-12 absolute near 0: different summation orders in two engines
+    return compare_to_cached(path, engine, rel=1e-9, abs_=1e-12)
+
+
+@pytest.mark.parametrize("path", STRD, ids=[p.stem for p in STRD])
+def test_strd_book_coefficients_certified_and_formulas_hold(
+    path: Path, engine, tmp_path: Path
+) -> None:
+    """StRD data in a workbook: written coefficients LRE >= 13; every formula recalculates."""
+    # Source: NIST StRD linear regression datasets, certified values in each file.
+    case = read_strd(path)
+    out = _strd_book(case, tmp_path / f"{case.name}.xlsx")
+    refresh(out)
+    rows = _sheet_rows(out, sheet_title("strd", "coef"))
+    coef = [float(r[1]) for r in rows[4:4 + len(case.coef)]]
+    worst = min(lre(c, k) if k != 0 else (15.0 if abs(c) < 1e-13 else 0.0)
+                for c, k in zip(coef, case.coef))
+    assert worst >= 13, f"{case.name}: coefficient LRE {worst:.1f}"
+    mismatches = engine_compare(engine, out)
+    assert mismatches.checked > 3 * len(case.y)
+    assert not mismatches, mismatches.report()
+    # The summary formulas work from residuals the spreadsheet computes itself in
+    # float64, so they carry the rounding of the fitted-value formula: on Filip the
+    # ten polynomial terms cancel (each ~1e2-1e3, sum ~1), leaving residuals good to
+    # ~1e-9 relative. Tolerances: 1e-6 relative on the residual SD, 1e-9 absolute on R².
+    cells = engine.recalculate(out).sheet(sheet_title("strd", "coef")).cells
+    where = {str(r[0]): i + 1 for i, r in enumerate(rows) if r and r[0]}
+    sd = cells[f"B{where['residual SD']}"].value
+    r2 = cells[f"B{where['R²' if case.intercept else 'R² (uncentred)']}"].value
+    assert isinstance(sd, float) and isinstance(r2, float)
+    if case.resid_sd == 0:
+        assert abs(sd) < 1e-9
+    else:
+        assert sd == pytest.approx(case.resid_sd, rel=1e-6)
+    assert r2 == pytest.approx(case.r2, abs=1e-9)
+
+
+def _set_value(path: Path, part: str, cell: str, value: float) -> None:
+    """Edit one number cell in place, the way a user's edit would, without rewriting parts."""
+    src = path.read_bytes()
+    tmp = path.with_suffix(".edit")
+    with zipfile.ZipFile(path) as zin, zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = zin.read(info)
+            if info.filename == part:
+                pat = re.compile(rb'(<c r="' + cell.encode() + rb'"[^>]*><v>)[^<]*(</v>)')
+                data, n = pat.subn(rb"\g<1>" + repr(value).encode() + rb"\g<2>", data)
+                assert n == 1
+            zout.writestr(info, data)
+    assert src != tmp.read_bytes()
+    tmp.replace(path)
+
+
+def test_second_refresh_follows_edited_data_and_touches_nothing_else(tmp_path: Path) -> None:
+    """Editing data and refreshing again replaces the result sheets; other parts keep bytes."""
+    rows = line_rows(10)
+    p = make_book(tmp_path / "b.xlsx", {"Data": rows},
+                  {"sf_a_y": "Data!$A$1:$A$11", "sf_a_x": "Data!$B$1:$B$11"})
+    refresh(p)
+    _set_value(p, "xl/worksheets/sheet1.xml", "A4", 500.0)
+    before = {i.filename: z for i, z in _entries(p)}
+    refresh(p)
+    after = {i.filename: z for i, z in _entries(p)}
+    assert after["xl/worksheets/sheet1.xml"] == before["xl/worksheets/sheet1.xml"]
+    titles = [r[0] for r in _sheet_rows(p, sheet_title("a", "coef"))[4:6]]
+    assert titles == ["intercept", "units"]
+    y = np.array([r[0] for r in rows[1:]], dtype=float)
+    y[2] = 500.0
+    x = np.array([r[1] for r in rows[1:]], dtype=float)
+    slope, icept = np.polyfit(x, y, 1)  # numpy as the outside reference
+    coef = [float(r[1]) for r in _sheet_rows(p, sheet_title("a", "coef"))[4:6]]
+    assert coef == pytest.approx([icept, slope], rel=1e-12)
+    with zipfile.ZipFile(p) as z:
+        wb = z.read("xl/workbook.xml").decode()
+    assert wb.count("name=\"sf a coef\"") == 1
+
+
+def _entries(path: Path):
+    with zipfile.ZipFile(path) as z:
+        return [(i, z.read(i)) for i in z.infolist()]
+
+
+def test_out_leaves_input_untouched(tmp_path: Path) -> None:
+    """--out writes elsewhere; the input keeps every byte."""
+    p = make_book(tmp_path / "b.xlsx", {"Data": line_rows(8)},
+                  {"sf_a_y": "Data!$A$1:$A$9", "sf_a_x": "Data!$B$1:$B$9"})
+    before = p.read_bytes()
+    refresh(p, tmp_path / "out.xlsx")
+    assert p.read_bytes() == before and (tmp_path / "out.xlsx").exists()
