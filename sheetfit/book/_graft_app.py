@@ -81,8 +81,8 @@ def update_app(
         doc.insert(lpstrs[lo].start, new)
     else:
         doc.insert(t_vec[0].inner_end, new)
-    i4, count = groups[best]
-    doc.replace(i4.inner_start, i4.inner_end, str(count - dropped + len(added)))
+    count_span, count = groups[best]
+    doc.replace(count_span.inner_start, count_span.inner_end, str(count - dropped + len(added)))
     size = len(lpstrs) - dropped + len(added)
     doc.replace(
         t_vec[0].start, t_vec[0].tag_end, tx.set_attr(t_vec[0].start_tag, "size", str(size))

@@ -87,7 +87,7 @@ class _Section:
         self.items: list[Element] = (
             [] if holder is None else holder.findall(f"{{{NS_MAIN}}}{child}")
         )
-        self.keys = {}
+        self.keys: dict[tuple[object, ...], int] = {}
         for i, el in enumerate(self.items):
             self.keys.setdefault(canonical(el), i)
         self.new: list[Element] = []
