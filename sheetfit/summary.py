@@ -64,11 +64,17 @@ def fingerprint(model: ModelData) -> str:
     return h.hexdigest()[:16]
 
 
+def _rows(n: int, what: str = "row") -> str:
+    return f"{n} {what}" + ("" if n == 1 else "s")
+
+
 def _cautions(model: ModelData, res: LeastSquaresResult, extra: list[str]) -> list[str]:
     out: list[str] = []
     if model.left_out:
-        out.append(f"{len(model.left_out)} data rows were left out; sheet "
-                   f"'{sheet_title(model.tag, 'fitted')}' lists them with the reason")
+        n = len(model.left_out)
+        out.append(f"{_rows(n, 'data row')} left out of the fit; sheet "
+                   f"'{sheet_title(model.tag, 'fitted')}' lists {'it' if n == 1 else 'them'} "
+                   "with the reason")
     if res.r2_uncentred:
         out.append("no intercept: R² is uncentred (about zero) and reads higher than a "
                    "centred R²")
@@ -79,10 +85,12 @@ def _cautions(model: ModelData, res: LeastSquaresResult, extra: list[str]) -> li
         lo, hi = model.X.min(axis=0), model.X.max(axis=0)
         outside = np.flatnonzero(((model.new.X < lo) | (model.new.X > hi)).any(axis=1))
         if outside.size:
-            rows = ", ".join(str(model.new.columns[0].row_of(int(i))) for i in outside[:10])
+            first = model.new.columns[0]
+            rows = ", ".join(str(first.row_of(int(i))) for i in outside[:10])
             more = "…" if outside.size > 10 else ""
-            out.append(f"{outside.size} new rows lie outside the fitted range of the "
-                       f"attributes (sheet rows {rows}{more}): those predictions extrapolate")
+            out.append(f"{_rows(int(outside.size), 'new row')} outside the fitted range of the "
+                       f"attributes ('{first.sheet}' {'row' if outside.size == 1 else 'rows'} "
+                       f"{rows}{more}): extrapolated, read with care")
     out += extra
     return out
 

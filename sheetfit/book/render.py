@@ -51,6 +51,8 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
         ws.fit_to_pages(1, 0)
         for col, width in sheet.widths.items():
             ws.set_column(col, col, width)
+        for row, height in sheet.heights.items():
+            ws.set_row(row, height)
         if sheet.freeze:
             ws.freeze_panes(*sheet.freeze)
         for c in sheet.cells:

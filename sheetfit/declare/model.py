@@ -253,6 +253,11 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
             f"degree {settings['degree']} needs exactly one attribute, x has {len(xcols)}",
             Context(file, dx.name), hint="use degree 1 or declare one x column",
         )
+    if n_rows == 0:
+        raise DataError(
+            "the declared ranges hold no data rows yet", ctx,
+            hint="type or paste your rows under the headers",
+        )
     if len(used) == 0:
         raise DataError(
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,

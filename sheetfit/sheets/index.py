@@ -24,9 +24,9 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
     """Plan the index sheet for every model of the book."""
     s = SheetPlan(INDEX_SHEET)
     s.put(0, 0, "sheetfit — models in this workbook", style="title")
-    s.put(1, 0, f"Refreshed {refreshed} by sheetfit {version}. Sheets whose names start with "
-          "'sf ' are sheetfit's: they are replaced on every refresh, so keep your own work "
-          "elsewhere.", style="note")
+    s.note(1, 0, f"Refreshed {refreshed} by sheetfit {version}. Sheets whose names start with "
+           "'sf ' are sheetfit's: they are replaced on every refresh, so keep your own work "
+           "elsewhere.")
     heads = ["model", "method", "response", "attributes", "rows used", "rows left out",
              "new rows", "refreshed (UTC)", "tool version", "input fingerprint", "status",
              "cautions"]
@@ -46,11 +46,20 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
         s.put(r, 8, version)
         s.put(r, 9, m.fingerprint)
         s.put(r, 10, m.status)
-        s.put(r, 11, "; ".join(m.cautions) if m.cautions else "none")
+        s.put(r, 11, f"{len(m.cautions)}, listed below" if m.cautions else "none")
     r = 4 + len(summaries) + 1
-    s.put(r, 0, "cautions for every model", style="head")
+    s.put(r, 0, "model", style="head")
+    s.put(r, 1, "caution for this model", style="head")
+    r += 1
+    for m in summaries:
+        for text in m.cautions:
+            s.put(r, 0, m.tag, style="label")
+            s.put(r, 1, text, style="caution")
+            r += 1
+    r += 1
+    s.put(r, 0, "Cautions for every model", style="label")
     for k, text in enumerate(GENERAL_CAUTIONS):
         s.put(r + 1 + k, 0, text, style="caution")
-    s.widths = {0: 14, 1: 14, 2: 16, 3: 24, 7: 20, 9: 18, 11: 60}
+    s.widths = {0: 14, 1: 14, 2: 16, 3: 24, 7: 22, 9: 18, 11: 16}
     s.freeze = (4, 1)
     return s

@@ -7,6 +7,7 @@ operations, same order), so an engine that recalculates the book reproduces it.
 from __future__ import annotations
 
 import math
+import textwrap
 from dataclasses import dataclass
 
 import numpy as np
@@ -84,15 +85,22 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
     rs = SheetPlan(sheet_title(tag, "resid"))
-    first_coef = 4
+    coef_note = (
+        f"Coefficients computed by sheetfit {version} ({res.method_note}). The check beside "
+        "each is a native formula, the cosine of the angle between the residuals and that "
+        "term's column: least squares makes it 0 (it reads 0 outright when the fit reproduces "
+        "y to 12 digits)."
+    )
+    coef_head = len(textwrap.wrap(coef_note, 100)) + 2
+    first_coef = coef_head + 1
     coef_cell = [absolute(first_coef + k, 1) for k in range(p)]
     coef_ref = [cs.ref(first_coef + k, 1) for k in range(p)]
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
     fs.put(0, 0, f"Fitted values — model {tag}", style="title")
-    fs.put(1, 0, "Each fitted value is a formula: the coefficients on sheet "
-           f"'{cs.title}' times the term values from your data cells.", style="note")
+    fs.note(1, 0, "Each fitted value is a formula: the coefficients on sheet "
+            f"'{cs.title}' times the term values from your data cells.")
     head = ["data row", f"{y.name} (observed)"] + terms[int(intercept):] + [f"fitted {y.name}"]
     for c, h in enumerate(head):
         fs.put(3, c, h, style="head")
@@ -153,16 +161,13 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     # --- coefficient sheet ----------------------------------------------------------
     xs = ", ".join(model.attribute_names)
     cs.put(0, 0, f"Least-squares coefficients — model {tag}: {y.name} on {xs}", style="title")
-    cs.put(1, 0, f"Coefficients computed by sheetfit {version} ({res.method_note}). "
-           "The check beside each is a native formula, the cosine of the angle between the "
-           "residuals and that term's column: least squares makes it 0 (it reads 0 outright when "
-           "the fit reproduces y to 12 digits).", style="note")
-    heads = ["term", "coefficient", "check: cos(residuals, term column)"]
+    cs.note(1, 0, coef_note)
+    heads = ["term", "coefficient", "check: cos(residuals, term)"]
     one_line = intercept and degree == 1 and len(model.xs) == 1
     if one_line:
         heads.append("check: slope = r × SD(y) / SD(x)")
     for c, h in enumerate(heads):
-        cs.put(3, c, h, style="head")
+        cs.put(coef_head, c, h, style="head")
     for k, term in enumerate(terms):
         r = first_coef + k
         cs.put(r, 0, term, style="label")
@@ -186,7 +191,7 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     row = _plan_summary(cs, row, n, p, resid, model.Y, intercept, resid_rng, y_rng,
                         coef_cell, one_line, fs, last, tvals)
     row = _plan_range(cs, row + 1, model, specs, tvals, fs, last)
-    cs.widths = {0: 30, 1: 24, 2: 22, 3: 24}
+    cs.widths = {0: 24, 1: 22, 2: 30, 3: 30}
 
     coef_rng = cs.col_range(1, first_coef, first_coef + p - 1)
     names = [
@@ -280,8 +285,7 @@ def _plan_range(cs: SheetPlan, row: int, model: ModelData, specs: list[tuple[int
     cs.put(row, 0, "relevant range", style="head")
     cs.put(row, 1, "smallest", style="head")
     cs.put(row, 2, "largest", style="head")
-    cs.put(row + 1, 0, "The fit describes the data only between these attribute values; "
-           "outside them it is an extrapolation.", style="note")
+    cs.put(row + 1, 0, "Outside these values a prediction is an extrapolation.", style="note")
     r = row + 2
     for k, (j, d) in enumerate(specs):
         if d != 1:

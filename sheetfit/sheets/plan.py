@@ -6,6 +6,7 @@ sheet parts. Rows and columns are 0-based here, as in the renderer.
 
 from __future__ import annotations
 
+import textwrap
 from dataclasses import dataclass, field
 
 from ..declare.refs import cell_ref
@@ -53,6 +54,7 @@ class SheetPlan:
     title: str
     cells: list[Cell] = field(default_factory=list)
     widths: dict[int, float] = field(default_factory=dict)
+    heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
@@ -63,8 +65,17 @@ class SheetPlan:
         if style not in STYLES:
             raise KeyError(style)
         cell = Cell(row, col, value, formula, style)
+        if style == "head":  # column headers wrap onto two lines
+            self.heights.setdefault(row, 30.0)
         self.cells.append(cell)
         return cell
+
+    def note(self, row: int, col: int, text: str, width: int = 100) -> int:
+        """Put a note as lines of at most ``width`` characters; return the next free row."""
+        lines = textwrap.wrap(text, width)
+        for k, line in enumerate(lines):
+            self.put(row + k, col, line, style="note")
+        return row + len(lines)
 
     def ref(self, row: int, col: int, fixed: bool = True) -> str:
         """Formula reference to a cell of this sheet from another sheet."""
