@@ -145,3 +145,35 @@ def test_out_leaves_input_untouched(tmp_path: Path) -> None:
     before = p.read_bytes()
     refresh(p, tmp_path / "out.xlsx")
     assert p.read_bytes() == before and (tmp_path / "out.xlsx").exists()
+
+
+def test_output_names_work_from_the_users_own_formulas(engine, tmp_path: Path) -> None:
+    """A user's formulas over sf_<model>_coef / _resid / _pred evaluate after a refresh."""
+    import xlsxwriter
+
+    p = tmp_path / "mine.xlsx"
+    wb = xlsxwriter.Workbook(str(p))
+    data = wb.add_worksheet("Data")
+    rows = line_rows(8)
+    for r, row in enumerate(rows):
+        data.write_row(r, 0, row)
+    data.write_row(0, 3, ["units"])
+    data.write_column(1, 3, [40.0, 41.0])
+    mine = wb.add_worksheet("Mine")
+    # written before the names exist; cached values deliberately wrong (0)
+    mine.write_formula("A1", "=INDEX(sf_a_coef,2)", None, 0)
+    mine.write_formula("A2", "=SUMPRODUCT(sf_a_resid,sf_a_resid)", None, 0)
+    mine.write_formula("A3", "=INDEX(sf_a_pred,2)", None, 0)
+    wb.define_name("sf_a_y", "=Data!$A$1:$A$9")
+    wb.define_name("sf_a_x", "=Data!$B$1:$B$9")
+    wb.define_name("sf_a_new", "=Data!$D$1:$D$3")
+    wb.close()
+    refresh(p)
+    cells = engine.recalculate(p).sheet("Mine").cells
+    x = np.array([r[1] for r in rows[1:]])
+    y = np.array([r[0] for r in rows[1:]])
+    slope, icept = np.polyfit(x, y, 1)  # numpy as the outside reference
+    ssr = float(np.sum((y - (icept + slope * x)) ** 2))
+    assert cells["A1"].value == pytest.approx(slope, rel=1e-12)
+    assert cells["A2"].value == pytest.approx(ssr, rel=1e-9)
+    assert cells["A3"].value == pytest.approx(icept + slope * 41.0, rel=1e-12)

@@ -87,7 +87,9 @@ _AREA_RE = re.compile(
 
 def _split_top(text: str) -> list[str]:
     """Split on commas that are outside quotes (multi-area names)."""
-    parts, buf, quoted = [], [], False
+    parts: list[str] = []
+    buf: list[str] = []
+    quoted = False
     for ch in text:
         if ch == "'":
             quoted = not quoted
