@@ -70,6 +70,27 @@ def _check_formula(r: str, t: str | None, y: str) -> str:
     return f"=IF({guard},0,SUMPRODUCT({r},{t})/SQRT(SUMSQ({r})*SUMSQ({t})))"
 
 
+def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
+                specs: list[tuple[int, int]], cells: list[str], xs: np.ndarray,
+                ) -> tuple[str, float, list[tuple[str, float]]]:
+    """Formula and value of intercept + Σ coefficient × term for one row, in formula order.
+
+    ``cells`` are the row's attribute cell references and ``xs`` their values; returns
+    the formula, its value, and each term's (reference, value).
+    """
+    parts: list[str] = [coef_ref[0]] if intercept else []
+    value = float(coef[0]) if intercept else 0.0
+    terms = []
+    for k, (j, d) in enumerate(specs):
+        ref = cells[j] if d == 1 else f"{cells[j]}^{d}"
+        tv = float(xs[j]) ** d if d > 1 else float(xs[j])
+        terms.append((ref, tv))
+        parts.append(f"{coef_ref[k + int(intercept)]}*{ref}")
+        prod = float(coef[k + int(intercept)]) * tv
+        value = prod if (k == 0 and not intercept) else value + prod
+    return "=" + "+".join(parts), value, terms
+
+
 def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) -> LeastSquaresSheets:
     """Plan the coefficient, fitted-value and residual sheets of a fitted model."""
     tag, y = model.tag, model.y
@@ -110,20 +131,12 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
         r = FIRST_ROW + i
         fs.put(r, 0, int(y.row_of(int(idx))), style="int")
         fs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
-        parts, value = [], 0.0
-        if intercept:
-            parts.append(coef_ref[0])
-            value = float(coef[0])
-        for k, ((j, d), tv) in enumerate(zip(specs, tvals)):
-            src = model.xs[j].cell(int(idx))
-            term_ref = src if d == 1 else f"{src}^{d}"
-            fs.put(r, 2 + k, float(tv[i]), f"={term_ref}", "num")
-            ck = coef_ref[k + int(intercept)]
-            parts.append(f"{ck}*{term_ref}")
-            prod = float(coef[k + int(intercept)]) * float(tv[i])
-            value = prod if (k == 0 and not intercept) else value + prod
+        formula, value, terms_row = _prediction(
+            coef, coef_ref, intercept, specs, [c.cell(int(idx)) for c in model.xs], model.X[i])
+        for k, (ref, tv) in enumerate(terms_row):
+            fs.put(r, 2 + k, tv, f"={ref}", "num")
         fitted[i] = value
-        fs.put(r, fit_col, value, "=" + "+".join(parts), "num")
+        fs.put(r, fit_col, value, formula, "num")
     fs.widths = {0: 9, fit_col: 16}
     fs.freeze = (FIRST_ROW, 1)
 
@@ -220,18 +233,9 @@ def _plan_new(fs: SheetPlan, model: ModelData, coef: np.ndarray, coef_ref: list[
         fs.put(r, side, new.columns[0].row_of(i), style="int")
         for j, c in enumerate(new.columns):
             fs.put(r, side + 1 + j, float(new.X[i, j]), f"={c.cell(i)}", "num")
-        parts, value = [], 0.0
-        if intercept:
-            parts.append(coef_ref[0])
-            value = float(coef[0])
-        for k, (j, d) in enumerate(specs):
-            xv = float(new.X[i, j])
-            src = new.columns[j].cell(i)
-            term_ref = src if d == 1 else f"{src}^{d}"
-            parts.append(f"{coef_ref[k + int(intercept)]}*{term_ref}")
-            prod = float(coef[k + int(intercept)]) * (xv ** d if d > 1 else xv)
-            value = prod if (k == 0 and not intercept) else value + prod
-        fs.put(r, pcol, value, "=" + "+".join(parts), "num")
+        formula, value, _ = _prediction(
+            coef, coef_ref, intercept, specs, [c.cell(i) for c in new.columns], new.X[i])
+        fs.put(r, pcol, value, formula, "num")
     fs.widths[pcol] = 16
     names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, FIRST_ROW + new.n - 1)))
     return pcol + 2
