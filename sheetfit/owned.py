@@ -38,7 +38,15 @@ MARKER_NAME = "_sheetfit_owned"
 INDEX_SHEET = "sf index"
 
 #: Owned sheet kinds and the word used in their titles.
-SHEET_KINDS = {"coef": "coef", "fitted": "fitted", "resid": "resid"}
+SHEET_KINDS = {
+    "coef": "coef",
+    "fitted": "fitted",
+    "resid": "resid",
+    "std": "std",
+    "nbrs": "nbrs",
+    "summary": "summary",
+    "strip": "strip",
+}
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.
 MAX_TAG = 20

@@ -9,8 +9,10 @@ from __future__ import annotations
 import datetime as dt
 import tempfile
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from . import __version__
 from .book.graft import OutputName, graft
@@ -18,11 +20,13 @@ from .book.package import Package, open_package
 from .book.read import BookValues
 from .book.render import render
 from .declare.model import ModelData, find_models
-from .errors import Context, DataError, SheetfitCaution, SheetfitError
-from .fit.leastsq import LeastSquares, LeastSquaresResult
+from .errors import Context, DataError, SettingError, SheetfitCaution, SheetfitError
+from .fit.leastsq import LeastSquares
 from .sheets.index import plan_index
 from .sheets.leastsq import plan_least_squares
+from .sheets.neighbours import plan_neighbours
 from .sheets.plan import BookPlan, SheetPlan
+from .sheets.strip import plan_strip
 from .summary import ModelSummary, summarise
 
 __all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
@@ -44,14 +48,45 @@ class RefreshReport:
         return "\n".join([head] + [m.text() for m in self.models])
 
 
-def fit_model(model: ModelData) -> tuple[LeastSquaresResult, list[str]]:
+def _estimator(model: ModelData) -> Callable[[], Any]:
+    """The fit of a declared model by its method (numeric core only, no workbook)."""
+    st, names = model.settings, model.attribute_names
+    if st.method == "least_squares":
+        est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
+        return lambda: est.fit(model.X, model.Y, names=names)
+    if st.method.startswith("neighbour_"):
+        from .fit.neighbours import NeighbourMean, NeighbourVote
+    if st.method == "neighbour_mean":
+        nm = NeighbourMean(k=st["k"], standard_units=bool(st["standard_units"]))
+        return lambda: nm.fit(model.X, model.Y, names=names)
+    if st.method == "neighbour_vote":
+        nv = NeighbourVote(k=st["k"], standard_units=bool(st["standard_units"]))
+        return lambda: nv.fit(model.X, list(model.Y), names=names)
+    from .fit.strip import StripMean
+
+    sm = StripMean(width=float(st["width"]))
+    return lambda: sm.fit(model.X[:, 0], model.Y)
+
+
+#: Sheet planner per method: (model, result, version) -> object with .sheets and .names.
+PLANNERS: dict[str, Callable[[ModelData, Any, str], Any]] = {
+    "least_squares": plan_least_squares,
+    "neighbour_mean": plan_neighbours,
+    "neighbour_vote": plan_neighbours,
+    "strip_mean": plan_strip,
+}
+
+
+def fit_model(model: ModelData) -> tuple[Any, list[str]]:
     """Fit one declared model; refusals from the numeric core get the model's context."""
-    est = LeastSquares(intercept=bool(model.settings["intercept"]),
-                       degree=int(model.settings["degree"]))
+    run = _estimator(model)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", SheetfitCaution)
         try:
-            res = est.fit(model.X, model.Y, names=model.attribute_names)
+            res = run()
+        except SettingError as exc:
+            ctx = Context(model.file, model.names.get("opts", model.names.get("x")))
+            raise SettingError(exc.message, ctx, exc.hint) from None
         except DataError as exc:
             ctx = Context(model.file, model.names.get("x"), model.xs[0].sheet)
             raise type(exc)(exc.message, ctx, exc.hint) from None
@@ -60,14 +95,14 @@ def fit_model(model: ModelData) -> tuple[LeastSquaresResult, list[str]]:
 
 
 def plan_book(
-    fits: list[tuple[ModelData, LeastSquaresResult, list[str]]], refreshed: str
+    fits: list[tuple[ModelData, Any, list[str]]], refreshed: str
 ) -> tuple[BookPlan, list[ModelSummary]]:
     """Plans of every owned sheet (index first) and the output names, plus the summaries."""
     sheets: list[SheetPlan] = []
     names: list[tuple[str, str]] = []
     summaries = []
     for model, res, cautions in fits:
-        planned = plan_least_squares(model, res, __version__)
+        planned = PLANNERS[model.settings.method](model, res, __version__)
         sheets += planned.sheets
         names += planned.names
         summaries.append(summarise(model, res, cautions))

@@ -245,23 +245,42 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
     ycol = _make_column(ya, ya.col1, header, values, offset)
     xcols = [_make_column(a, c, header, values, offset) for a, c in x_cols]
     _check_headers(xcols, dx, file)
-    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values)
-    p = int(settings["intercept"]) + len(xcols) * int(settings["degree"])
+    method = settings.method
+    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values, method == "neighbour_vote")
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
-    if settings["degree"] > 1 and len(xcols) != 1:
+    if method == "strip_mean" and len(xcols) != 1:
         raise DataError(
-            f"degree {settings['degree']} needs exactly one attribute, x has {len(xcols)}",
-            Context(file, dx.name), hint="use degree 1 or declare one x column",
+            f"a strip mean uses one attribute, x has {len(xcols)}",
+            Context(file, dx.name), hint="declare one x column for this model",
         )
     if n_rows == 0:
         raise DataError(
             "the declared ranges hold no data rows yet", ctx,
             hint="type or paste your rows under the headers",
         )
+    _check_numeric_columns(xcols, n_rows, values, dx, file)
     if len(used) == 0:
         raise DataError(
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
             hint="fill in the data or point the names at it",
+        )
+    if method == "least_squares":
+        _check_least_squares(settings, xcols, used, X, n_rows, ctx, dx, file)
+    elif len(used) < 2:
+        raise DataError(f"{len(used)} usable row; {method} needs at least 2", ctx)
+    new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
+    names = {role: d.name for role, d in decl.names.items()}
+    return ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+
+
+def _check_least_squares(settings: Settings, xcols: list[Column], used: np.ndarray,
+                         X: np.ndarray, n_rows: int, ctx: Context, dx: DefinedName,
+                         file: str) -> None:
+    p = int(settings["intercept"]) + len(xcols) * int(settings["degree"])
+    if settings["degree"] > 1 and len(xcols) != 1:
+        raise DataError(
+            f"degree {settings['degree']} needs exactly one attribute, x has {len(xcols)}",
+            Context(file, dx.name), hint="use degree 1 or declare one x column",
         )
     if len(used) < p:
         raise DataError(
@@ -277,9 +296,23 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
                     Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
                     hint="drop the column from x",
                 )
-    new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
-    names = {role: d.name for role, d in decl.names.items()}
-    return ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+
+
+def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
+                           dx: DefinedName, file: str) -> None:
+    """An attribute column without a single number is a declaration mistake, not data."""
+    for c in xcols:
+        sv = values.sheet(c.sheet)
+        kinds = [sv.get(c.row_of(i), c.col) for i in range(n_rows)]
+        if not any(v.kind == NUMBER for v in kinds):
+            first = next((v for v in kinds if v.kind != BLANK), None)
+            what = describe_value(first) if first else "only blanks"
+            raise DataError(
+                f"attribute '{c.name}' holds no numbers ({what} ...); distances and "
+                "fits need numeric attributes",
+                Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
+                hint="code the attribute as numbers or leave it out of x",
+            )
 
 
 def _make_column(a: Area, col: int, header: bool, values: BookValues, offset: int) -> Column:
@@ -306,16 +339,23 @@ def _check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
 
 
 def _read_rows(
-    ycol: Column, xcols: list[Column], n: int, values: BookValues
+    ycol: Column, xcols: list[Column], n: int, values: BookValues, labels: bool = False
 ) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray]:
+    """Used row indices, left-out rows, y (floats, or labels when ``labels``) and X."""
     cols = [ycol] + xcols
     sheets: list[SheetValues] = [values.sheet(c.sheet) for c in cols]
     data = np.empty((n, len(cols)))
+    ylab: list[object] = [None] * n
     ok = np.ones(n, dtype=bool)
     left: list[LeftOut] = []
     for i in range(n):
         for j, (c, sv) in enumerate(zip(cols, sheets)):
             v = sv.get(c.row_of(i), c.col)
+            if j == 0 and labels and v.kind in (NUMBER, TEXT) and (v.kind == NUMBER
+                                                                   or v.text.strip()):
+                ylab[i] = v.number if v.kind == NUMBER else v.text
+                data[i, 0] = 0.0
+                continue
             if v.kind != NUMBER:
                 ok[i] = False
                 role = "y" if j == 0 else f"'{c.name}'"
@@ -324,7 +364,12 @@ def _read_rows(
                 break
             data[i, j] = v.number
     used = np.flatnonzero(ok)
-    return used, left, data[used, 0].copy(), data[used, 1:].copy()
+    if labels:
+        Y = np.empty(len(used), dtype=object)
+        Y[:] = [ylab[i] for i in used]
+    else:
+        Y = data[used, 0].copy()
+    return used, left, Y, data[used, 1:].copy()
 
 
 def _read_new(

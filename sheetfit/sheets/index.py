@@ -34,12 +34,12 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
         s.put(3, c, h, style="head")
     for i, m in enumerate(summaries):
         r = 4 + i
-        resid = f"'{sheet_title(m.tag, 'resid')}'"
+        fitted = f"'{sheet_title(m.tag, 'fitted')}'"
         s.put(r, 0, m.tag, style="label")
         s.put(r, 1, METHOD_WORDS.get(m.method, m.method))
         s.put(r, 2, m.response)
         s.put(r, 3, ", ".join(m.attributes))
-        s.put(r, 4, m.n_used, f"=COUNT({resid}!$D$5:$D${4 + m.n_used})", "int")
+        s.put(r, 4, m.n_used, f"=COUNT({fitted}!$A$5:$A${4 + m.n_used})", "int")
         s.put(r, 5, m.n_left_out, style="int")
         s.put(r, 6, m.n_new, style="int")
         s.put(r, 7, refreshed)

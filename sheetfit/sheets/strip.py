@@ -1,0 +1,202 @@
+"""Sheet plans for a strip-mean model (the graph of averages) in one attribute.
+
+The curve is a grid of centres, each with its strip's row count, sum and mean as
+native formulas; each data row looks its centre up (one MATCH or ROUND per row), so
+formula cost stays at grid size × rows for the curve and constant per row.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..declare.model import ModelData
+from ..declare.refs import col_letter
+from ..owned import sheet_title
+from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
+from .plan import SheetPlan, absolute
+
+__all__ = ["EDGE", "StripSheets", "plan_strip"]
+
+#: Relative allowance at a strip's edge: |x − c| <= width·(1 + 1e-12) counts as inside.
+EDGE = "(1+1E-12)"
+_EDGE = 1 + 1e-12
+_TABLE = 9  # header row (0-based) of the curve table
+
+
+@dataclass
+class StripSheets:
+    """The planned sheets of one strip-mean model and its output names."""
+
+    sheets: list[SheetPlan]
+    names: list[tuple[str, str]]
+
+
+def _inside(x: float, c: float, w: float) -> bool:
+    return abs(x - c) <= w * _EDGE
+
+
+def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
+    """Plan the curve, fitted-value and residual sheets of a strip mean."""
+    tag, y = model.tag, model.y
+    xname = model.xs[0].name
+    n = len(model.used)
+    x = [float(v) for v in model.X[:, 0]]
+    yv = [float(v) for v in model.Y]
+    w = float(model.settings["width"])
+    ss = SheetPlan(sheet_title(tag, "strip"))
+    fs = SheetPlan(sheet_title(tag, "fitted"))
+    last = FIRST_ROW + n - 1
+    xs = fs.col_range(2, FIRST_ROW, last)
+    ys = fs.col_range(1, FIRST_ROW, last)
+    even = res.grid_kind_ == "even"
+
+    ss.put(0, 0, f"Strip means — model {tag}: {y.name} by {xname}", style="title")
+    ss.note(1, 0, f"For each centre c, the mean of {y.name} over the rows with |{xname} − c| ≤ "
+            "width (a relative allowance of 1e-12 absorbs rounding at the edge). An empty strip "
+            f"is left blank, with the reason. Computed by sheetfit {version}.")
+    ss.put(4, 0, "width", style="label")
+    ss.put(4, 1, w, style="num")
+    ss.put(4, 2, "half-width of each strip (setting)", style="note")
+    ss.put(5, 0, "grid", style="label")
+    ss.put(5, 1, "evenly spaced" if even else "distinct values")
+    ss.put(5, 2, "101 centres from the smallest to the largest x" if even
+           else "one centre at each distinct x", style="note")
+    w_ref = absolute(4, 1)
+    lo = min(x)
+    step = (max(x) - lo) / 100 if even else 0.0
+    if even:
+        ss.put(6, 0, "lowest centre", style="label")
+        ss.put(6, 1, lo, f"=MIN({xs})", "num")
+        ss.put(7, 0, "step", style="label")
+        ss.put(7, 1, step, f"=(MAX({xs})-MIN({xs}))/100", "num")
+    heads = ["centre no.", "centre", "rows in strip", f"sum of {y.name}",
+             f"strip mean of {y.name}", "note"]
+    for c, h in enumerate(heads):
+        ss.put(_TABLE, c, h, style="head")
+    centres = [float(c) for c in res.centres_]
+    first = _TABLE + 1
+    counts, sums = [], []
+    for j, cval in enumerate(centres):
+        r = first + j
+        R = r + 1
+        ss.put(r, 0, j + 1, style="int")
+        if even:
+            cval = lo + j * step
+            ss.put(r, 1, cval, f"={absolute(6, 1)}+{j}*{absolute(7, 1)}", "num")
+        else:
+            ss.put(r, 1, cval, style="num")
+        members = [i for i in range(n) if _inside(x[i], cval, w)]
+        cnt, tot = len(members), math.fsum(yv[i] for i in members)
+        counts.append(cnt)
+        sums.append(tot)
+        cond = f"--(ABS({xs}-B{R})<={w_ref}*{EDGE})"
+        ss.put(r, 2, cnt, f"=SUMPRODUCT({cond})", "int")
+        ss.put(r, 3, tot, f"=SUMPRODUCT({cond},{ys})", "num")
+        ss.put(r, 4, tot / cnt if cnt else "", f'=IF(C{R}=0,"",D{R}/C{R})', "num")
+        ss.put(r, 5, "" if cnt else "empty strip: no rows within ± width",
+               f'=IF(C{R}=0,"empty strip: no rows within ± width","")', "note")
+    g_last = first + len(centres) - 1
+    col = {k: ss.col_range(c, first, g_last) for k, c in
+           (("no", 0), ("centre", 1), ("count", 2), ("sum", 3), ("mean", 4))}
+
+    # --- fitted-value sheet: one lookup per row ------------------------------------
+    fs.put(0, 0, f"Fitted values — model {tag}", style="title")
+    fs.note(1, 0, f"Each row's fitted value is the mean of the OTHER rows in its strip on sheet "
+            f"'{ss.title}' (leave-one-out: (sum − own {y.name}) / (rows − 1)).")
+    fh = ["data row", f"{y.name} (observed)", xname, "centre no.", "rows in strip",
+          f"sum of {y.name}", "in its strip (1/0)", f"fitted {y.name}", "note"]
+    for c, h in enumerate(fh):
+        fs.put(3, c, h, style="head")
+    fitted = np.full(n, np.nan)
+    refs = []
+    for i, idx in enumerate(model.used):
+        r = FIRST_ROW + i
+        R = r + 1
+        fs.put(r, 0, y.row_of(int(idx)), style="int")
+        fs.put(r, 1, yv[i], f"={y.cell(int(idx))}", "num")
+        fs.put(r, 2, x[i], f"={model.xs[0].cell(int(idx))}", "num")
+        j, f_idx = _lookup(x[i], centres, lo, step, even, col["centre"])
+        fs.put(r, 3, j + 1, f_idx.format(x=f"C{R}"), "int")
+        cnt, tot = counts[j], sums[j]
+        fs.put(r, 4, cnt, f"=INDEX({col['count']},D{R})", "int")
+        fs.put(r, 5, tot, f"=INDEX({col['sum']},D{R})", "num")
+        ins = _inside(x[i], lo + j * step if even else centres[j], w)
+        fs.put(r, 6, int(ins), f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_ref}*{EDGE},1,0)",
+               "int")
+        if ins:
+            value = (tot - yv[i]) / (cnt - 1) if cnt - 1 else None
+        else:
+            value = tot / cnt if cnt else None
+        if value is not None:
+            fitted[i] = value
+        fs.put(r, 7, "" if value is None else value,
+               f'=IF(G{R}=1,IF(E{R}-1=0,"",(F{R}-B{R})/(E{R}-1)),IF(E{R}=0,"",F{R}/E{R}))', "num")
+        fs.put(r, 8, "no other row within ± width" if value is None else "",
+               f'=IF(H{R}="","no other row within ± width","")', "note")
+        refs.append(fs.ref(r, 7, fixed=False))
+    fs.widths = {0: 9, 7: 16, 8: 26}
+    fs.freeze = (FIRST_ROW, 1)
+    names: list[tuple[str, str]] = []
+    side = len(fh) + 1
+    if model.new is not None:
+        side = _new_rows(fs, model, side, x, yv, w, xs, ys, w_ref, names)
+    plan_left_out(fs, model, side)
+
+    rs, resid = plan_residual_sheet(model, refs, fitted,
+                                    "residual = observed − fitted (leave-one-out strip mean); "
+                                    "blank where the row's strip holds no other row.")
+    # summary under the settings, on the curve sheet
+    r_rng = rs.col_range(3, FIRST_ROW, last)
+    ok = resid[~np.isnan(resid)]
+    ss.put(4, 4, "rows used", style="label")
+    ss.put(4, 5, n, f"=COUNT({ys})", "int")
+    ss.put(5, 4, "rows with a fitted value", style="label")
+    ss.put(5, 5, int(ok.size), f"=COUNT({r_rng})", "int")
+    ss.put(6, 4, "RMSE (leave-one-out)", style="label")
+    ss.put(6, 5, math.sqrt(fsum_sq(ok) / ok.size) if ok.size else "n/a",
+           f'=IF(F7=0,"n/a",SQRT(SUMSQ({r_rng})/F7))', "num")
+    ss.widths = {0: 14, 1: 14, 2: 14, 3: 16, 4: 24, 5: 34}
+    ss.freeze = (_TABLE + 1, 0)
+    names = [(f"sf_{tag}_fitted", fs.col_range(7, FIRST_ROW, last)),
+             (f"sf_{tag}_resid", r_rng)] + names
+    return StripSheets([ss, fs, rs], names)
+
+
+def _lookup(x: float, centres: list[float], lo: float, step: float, even: bool,
+            centre_rng: str) -> tuple[int, str]:
+    """The row's centre index (0-based) and the formula template that finds it."""
+    if not even:
+        return centres.index(x), f"=MATCH({{x}},{centre_rng},0)"
+    j = min(100, max(0, math.floor((x - lo) / step + 0.5)))
+    return j, f"=MIN(101,MAX(1,ROUND(({{x}}-{absolute(6, 1)})/{absolute(7, 1)},0)+1))"
+
+
+def _new_rows(fs: SheetPlan, model: ModelData, side: int, x: list[float], yv: list[float],
+              w: float, xs: str, ys: str, w_ref: str, names: list[tuple[str, str]]) -> int:
+    """Predictions for new rows: the mean of the rows within ± width of the new x itself."""
+    new = model.new
+    assert new is not None
+    fs.put(2, side, "New rows: the strip centred on each new x (one pass over the rows each).",
+           style="note")
+    for c, h in enumerate(["new row", model.xs[0].name, "rows in strip",
+                           f"predicted {model.y.name}"]):
+        fs.put(3, side + c, h, style="head")
+    xl, cl = col_letter(side + 2), col_letter(side + 3)
+    for i in range(new.n):
+        r = FIRST_ROW + i
+        R = r + 1
+        xv = float(new.X[i, 0])
+        fs.put(r, side, new.columns[0].row_of(i), style="int")
+        fs.put(r, side + 1, xv, f"={new.columns[0].cell(i)}", "num")
+        members = [k for k in range(len(x)) if _inside(x[k], xv, w)]
+        cond = f"--(ABS({xs}-{xl}{R})<={w_ref}*{EDGE})"
+        fs.put(r, side + 2, len(members), f"=SUMPRODUCT({cond})", "int")
+        mean = math.fsum(yv[k] for k in members) / len(members) if members else ""
+        fs.put(r, side + 3, mean, f'=IF({cl}{R}=0,"",SUMPRODUCT({cond},{ys})/{cl}{R})', "num")
+    names.append((f"sf_{model.tag}_pred",
+                  fs.col_range(side + 3, FIRST_ROW, FIRST_ROW + new.n - 1)))
+    return side + 5
