@@ -7,9 +7,8 @@ distributor's monthly delivery cost against the stops made and the distance driv
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import datetime as dt
+from pathlib import Path
 
 import numpy as np
 import xlsxwriter
@@ -92,12 +91,88 @@ def build_template(path: Path) -> None:
     wb.close()
 
 
+def build_field_jobs(path: Path) -> None:
+    """Example: past field-service jobs; estimate a new job from similar past jobs."""
+    rng = np.random.default_rng(20261202)
+    n = 60
+    hours = rng.integers(2, 41, n).astype(float)
+    km = rng.integers(5, 160, n).astype(float)
+    cost = np.round(180 + 42 * hours + 1.6 * km + rng.normal(0, 90, n) * np.sqrt(hours), 2)
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": CREATED})
+    bold = wb.add_format({"bold": True})
+    ws = wb.add_worksheet("Jobs")
+    ws.write_row(0, 0, ["job", "cost", "crew hours", "km to site"], bold)
+    for i in range(n):
+        ws.write_row(i + 1, 0, [f"J-{1001 + i}", float(cost[i]), hours[i], km[i]])
+    ws.set_column(0, 3, 13)
+    quotes = wb.add_worksheet("Quotes")
+    quotes.write_row(0, 0, ["quote", "crew hours", "km to site"], bold)
+    for i, (h, k) in enumerate([(6, 20), (18, 140), (33, 45)]):
+        quotes.write_row(i + 1, 0, [f"Q-{501 + i}", float(h), float(k)])
+    quotes.write_row(5, 0, ["setting", "value"], bold)
+    quotes.write_row(6, 0, ["method", "neighbour_mean"])
+    quotes.write_row(7, 0, ["k", "auto"])
+    quotes.write_row(9, 0, ["setting", "value"], bold)
+    quotes.write_row(10, 0, ["method", "strip_mean"])
+    quotes.write_row(11, 0, ["width", 3])
+    quotes.set_column(0, 2, 13)
+    wb.define_name("sf_similar_y", "=Jobs!$B:$B")
+    wb.define_name("sf_similar_x", "=Jobs!$C:$D")
+    wb.define_name("sf_similar_new", "=Quotes!$B$1:$C$4")
+    wb.define_name("sf_similar_opts", "=Quotes!$A$6:$B$8")
+    wb.define_name("sf_byhours_y", "=Jobs!$B:$B")
+    wb.define_name("sf_byhours_x", "=Jobs!$C:$C")
+    wb.define_name("sf_byhours_opts", "=Quotes!$A$10:$B$12")
+    wb.close()
+
+
+def build_open_invoices(path: Path) -> None:
+    """Example: which open invoices will probably be paid late, from similar past invoices."""
+    rng = np.random.default_rng(20261203)
+    n = 120
+    amount = np.round(rng.lognormal(7.5, 0.8, n), 2)
+    terms = rng.choice([14.0, 30.0, 60.0], n)
+    past = np.round(rng.gamma(2.0, 4.0, n), 1)
+    score = 0.25 * past + 0.00008 * amount - 0.03 * terms + rng.normal(0, 1.2, n)
+    outcome = np.where(score > 1.6, "late", "on time")
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": CREATED})
+    bold = wb.add_format({"bold": True})
+    ws = wb.add_worksheet("Paid")
+    ws.write_row(0, 0, ["invoice", "outcome", "amount", "credit days",
+                        "customer avg days late"], bold)
+    for i in range(n):
+        ws.write_row(i + 1, 0, [f"INV-{7001 + i}", str(outcome[i]), float(amount[i]),
+                                float(terms[i]), float(past[i])])
+    ws.set_column(0, 4, 15)
+    op = wb.add_worksheet("Open")
+    op.write_row(0, 0, ["invoice", "amount", "credit days", "customer avg days late"], bold)
+    for i in range(8):
+        op.write_row(i + 1, 0, [f"INV-{8101 + i}", float(np.round(rng.lognormal(7.5, 0.8), 2)),
+                                float(rng.choice([14.0, 30.0, 60.0])),
+                                float(np.round(rng.gamma(2.0, 4.0), 1))])
+    op.write_row(11, 0, ["setting", "value"], bold)
+    op.write_row(12, 0, ["method", "neighbour_vote"])
+    op.write_row(13, 0, ["k", 7])
+    op.write_row(14, 0, ["focus", "late"])
+    op.set_column(0, 3, 15)
+    wb.define_name("sf_late_y", "=Paid!$B:$B")
+    wb.define_name("sf_late_x", "=Paid!$C:$E")
+    wb.define_name("sf_late_new", "=Open!$B$1:$D$9")
+    wb.define_name("sf_late_opts", "=Open!$A$12:$B$15")
+    wb.close()
+
+
 def main() -> None:
     (ROOT / "example_books").mkdir(exist_ok=True)
     (ROOT / "templates").mkdir(exist_ok=True)
     build_delivery_costs(ROOT / "example_books" / "delivery_costs.xlsx")
+    build_field_jobs(ROOT / "example_books" / "field_jobs.xlsx")
+    build_open_invoices(ROOT / "example_books" / "open_invoices.xlsx")
     build_template(ROOT / "templates" / "cost_model_template.xlsx")
-    print("wrote example_books/delivery_costs.xlsx and templates/cost_model_template.xlsx")
+    print("wrote example_books/{delivery_costs,field_jobs,open_invoices}.xlsx and "
+          "templates/cost_model_template.xlsx")
 
 
 if __name__ == "__main__":
