@@ -69,14 +69,20 @@ _CHUNK = 4_000_000  # elements per block of candidate differences
 # ---------------------------------------------------------------- correctly rounded sums
 
 
-def _finish(hi: np.ndarray, lo: np.ndarray, mag: np.ndarray, m: int, A: np.ndarray) -> np.ndarray:
-    """Round hi + lo; rows where that cannot be proved the correctly rounded sum use fsum."""
+def _finish(
+    hi: np.ndarray, lo: np.ndarray, exact: np.ndarray, lost: np.ndarray, m: int, A: np.ndarray
+) -> np.ndarray:
+    """Round hi + lo; rows where that cannot be proved the correctly rounded sum use fsum.
+
+    hi + lo is the exact sum where ``exact`` holds (rounding hi + lo once is then what
+    fsum gives, halfway cases to even included); elsewhere lo is off by at most ``lost``.
+    """
     s, e = two_sum(hi, lo)
-    # lo carries the two-sum errors, each below eps/2·Σ|a|, added with rounding: the
-    # bound on what lo can be off by is far inside (m² + 4)·eps²·Σ|a|.
-    slack = (m * m + 4) * _EPS * _EPS * mag
-    gap = np.minimum(s - np.nextafter(s, -np.inf), np.nextafter(s, np.inf) - s) / 2
-    unsure = np.flatnonzero(~(gap - np.abs(e) > slack))
+    bound = lost * (1 + 4 * m * _EPS)
+    # s is the rounding of the exact sum if that lies within half the gap to either
+    # neighbouring float (compared doubled: half the smallest gap is not a float)
+    gap = np.minimum(s - np.nextafter(s, -np.inf), np.nextafter(s, np.inf) - s)
+    unsure = np.flatnonzero(~(exact | (2 * (np.abs(e) + bound) < gap)))
     out = np.asarray(s, dtype=np.float64)
     for i in unsure.tolist():
         out[i] = math.fsum(A[i, :m].tolist())
@@ -90,13 +96,13 @@ def _prefix_fsums(A: np.ndarray, ks: Sequence[int]) -> dict[int, np.ndarray]:
     r = A.shape[0]
     hi = np.zeros(r)
     lo = np.zeros(r)
-    mag = np.zeros(r)
+    lost = np.zeros(r)  # what adding the errors into lo has rounded away, in magnitude
     for c in range(max(want)):
         hi, e = two_sum(hi, A[:, c])
-        lo += e
-        mag += np.abs(A[:, c])
+        lo, e2 = two_sum(lo, e)
+        lost += np.abs(e2)
         if c + 1 in want:
-            out[c + 1] = A[:, 0].copy() if c == 0 else _finish(hi, lo, mag, c + 1, A)
+            out[c + 1] = _finish(hi, lo, lost == 0, lost, c + 1, A)
     return out
 
 
