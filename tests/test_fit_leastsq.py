@@ -19,8 +19,9 @@ def _rng() -> np.random.Generator:
 
 
 def test_public_names() -> None:
-    """The package exposes exactly the estimator and its result; the rest is private."""
-    assert sorted(sheetfit.fit.__all__) == ["LeastSquares", "LeastSquaresResult"]
+    """The package exposes exactly the estimators, the least-squares result and scaling."""
+    assert sorted(sheetfit.fit.__all__) == ["LeastSquares", "LeastSquaresResult", "NeighbourMean",
+                                            "NeighbourVote", "StripMean", "standard_units"]
     assert sheetfit.fit.LeastSquares is leastsq.LeastSquares
 
 

@@ -38,6 +38,14 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
     pass over the functions sheet plans use does the same job.
     """
 
+    def _xml_formula_element(self, formula: str, result: Any, attributes: Any = ()) -> None:
+        # xlsxwriter leaves an empty-text result untyped (an empty number); say it is text,
+        # so viewers that do not recalculate show a blank, as the formula would.
+        attributes = list(attributes)
+        if result == "" and all(k != "t" for k, _ in attributes):
+            attributes.append(("t", "str"))
+        super()._xml_formula_element(formula, result, attributes)
+
     def _prepare_formula(self, formula: str, expand_future_functions: bool = False) -> str:
         formula = formula.removeprefix("{").removeprefix("=").removesuffix("}")
         if "_xlfn." in formula or "." not in formula:

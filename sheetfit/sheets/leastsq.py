@@ -262,7 +262,7 @@ def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y:
     ]
     if intercept:
         mean = math.fsum(float(v) for v in Y) / len(Y)
-        dev = math.fsum((float(v) - mean) ** 2 for v in Y)
+        dev = math.fsum((float(v) - mean) * (float(v) - mean) for v in Y)
         r2 = "n/a" if dev == 0 else 1 - ssr / dev
         lines.append(("R²", r2, f'=IF(DEVSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/DEVSQ({y_rng}))',
                       "ratio", "share of the variation of y about its mean that the fit explains"))

@@ -74,7 +74,7 @@ def _std_sheet(model: ModelData, res: Any) -> tuple[SheetPlan, list[str], list[s
         rng = f"{col_letter(xcol + 1)}{_STD_FIRST + 1}:{col_letter(xcol + 1)}{last + 1}"
         col = model.X[:, j]
         mean = _mean([float(v) for v in col])
-        sd = math.sqrt(math.fsum((float(v) - mean) ** 2 for v in col) / n)
+        sd = math.sqrt(math.fsum((float(v) - mean) * (float(v) - mean) for v in col) / n)
         ss.put(3, xcol, mean, f"=AVERAGE({rng})", "num")
         ss.put(4, xcol, sd, f"=STDEV.P({rng})", "num")
         ss.put(5, xcol, c.name, style="head")
@@ -120,7 +120,8 @@ def _z_formula(data_cell: str, stat_col: int, on: bool) -> str:
 
 def _distance(za: np.ndarray, zb: np.ndarray) -> float:
     """What SQRT(SUMXMY2(a, b)) gives."""
-    return math.sqrt(math.fsum((float(a) - float(b)) ** 2 for a, b in zip(za, zb)))
+    return math.sqrt(math.fsum((float(a) - float(b)) * (float(a) - float(b))
+                               for a, b in zip(za, zb)))
 
 
 def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets:
@@ -135,7 +136,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
     focus = _focus(model, res) if vote else None
 
     ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k})", style="title")
-    row = ns.note(1, 0, TIE_RULE, width=120)
+    ns.note(1, 0, TIE_RULE, width=170)  # two lines, above the header in row 4
     heads = (["data row"] + [f"neighbour {m + 1} row" for m in range(k)]
              + [f"distance {m + 1}" for m in range(k)] + [f"{y.name} of {m + 1}" for m in range(k)])
     if vote:
@@ -143,7 +144,6 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
         heads += ["prediction", "votes for it", "score (share)", f"share {label_text(focus)}"]
     else:
         heads += ["prediction (mean)", "smallest", "median", "largest"]
-    assert row <= 3
     for c, h in enumerate(heads):
         ns.put(3, c, h, style="head")
     Z = res.Z_
@@ -354,7 +354,7 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, rs: S
     s.put(row, 2, "what it is", style="head")
     rmse = math.sqrt(fsum_sq(resid) / n)
     ymean = _mean(yv)
-    sdy = math.sqrt(math.fsum((v - ymean) ** 2 for v in yv) / n)
+    sdy = math.sqrt(math.fsum((v - ymean) * (v - ymean) for v in yv) / n)
     lines = [
         ("rows used (n)", n, f"=COUNT({r_rng})", "int", "data rows with a prediction"),
         ("RMSE", rmse, f"=SQRT(SUMSQ({r_rng})/B{row + 2})", "num",
@@ -376,7 +376,7 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, rs: S
 def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, fitted: list[Any],
                   focus: object, version: str, k: int) -> None:
     row = _settings_block(s, model, res, version, k)
-    s.put(5, 1, focus, style="text")
+    s.put(5, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
     s.put(5, 2, "given in the settings" if model.settings["focus"] is not None
           else "the rarest class (setting focus changes it)", style="note")
     s.put(6, 0, "standard units", style="label")

@@ -65,7 +65,8 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     ss.put(5, 1, "evenly spaced" if even else "distinct values")
     ss.put(5, 2, "101 centres from the smallest to the largest x" if even
            else "one centre at each distinct x", style="note")
-    w_ref = absolute(4, 1)
+    w_ref = absolute(4, 1)  # on the curve sheet itself
+    w_full = ss.ref(4, 1)  # from the fitted-value sheet
     lo = min(x)
     step = (max(x) - lo) / 100 if even else 0.0
     if even:
@@ -119,13 +120,13 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
         fs.put(r, 0, y.row_of(int(idx)), style="int")
         fs.put(r, 1, yv[i], f"={y.cell(int(idx))}", "num")
         fs.put(r, 2, x[i], f"={model.xs[0].cell(int(idx))}", "num")
-        j, f_idx = _lookup(x[i], centres, lo, step, even, col["centre"])
+        j, f_idx = _lookup(x[i], centres, lo, step, even, col["centre"], ss)
         fs.put(r, 3, j + 1, f_idx.format(x=f"C{R}"), "int")
         cnt, tot = counts[j], sums[j]
         fs.put(r, 4, cnt, f"=INDEX({col['count']},D{R})", "int")
         fs.put(r, 5, tot, f"=INDEX({col['sum']},D{R})", "num")
         ins = _inside(x[i], lo + j * step if even else centres[j], w)
-        fs.put(r, 6, int(ins), f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_ref}*{EDGE},1,0)",
+        fs.put(r, 6, int(ins), f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_full}*{EDGE},1,0)",
                "int")
         if ins:
             value = (tot - yv[i]) / (cnt - 1) if cnt - 1 else None
@@ -143,7 +144,7 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     names: list[tuple[str, str]] = []
     side = len(fh) + 1
     if model.new is not None:
-        side = _new_rows(fs, model, side, x, yv, w, xs, ys, w_ref, names)
+        side = _new_rows(fs, model, side, x, yv, w, xs, ys, w_full, names)
     plan_left_out(fs, model, side)
 
     rs, resid = plan_residual_sheet(model, refs, fitted,
@@ -158,7 +159,7 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     ss.put(5, 5, int(ok.size), f"=COUNT({r_rng})", "int")
     ss.put(6, 4, "RMSE (leave-one-out)", style="label")
     ss.put(6, 5, math.sqrt(fsum_sq(ok) / ok.size) if ok.size else "n/a",
-           f'=IF(F7=0,"n/a",SQRT(SUMSQ({r_rng})/F7))', "num")
+           f'=IF(F6=0,"n/a",SQRT(SUMSQ({r_rng})/F6))', "num")
     ss.widths = {0: 14, 1: 14, 2: 14, 3: 16, 4: 24, 5: 34}
     ss.freeze = (_TABLE + 1, 0)
     names = [(f"sf_{tag}_fitted", fs.col_range(7, FIRST_ROW, last)),
@@ -167,12 +168,12 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
 
 
 def _lookup(x: float, centres: list[float], lo: float, step: float, even: bool,
-            centre_rng: str) -> tuple[int, str]:
+            centre_rng: str, ss: SheetPlan) -> tuple[int, str]:
     """The row's centre index (0-based) and the formula template that finds it."""
     if not even:
         return centres.index(x), f"=MATCH({{x}},{centre_rng},0)"
     j = min(100, max(0, math.floor((x - lo) / step + 0.5)))
-    return j, f"=MIN(101,MAX(1,ROUND(({{x}}-{absolute(6, 1)})/{absolute(7, 1)},0)+1))"
+    return j, f"=MIN(101,MAX(1,ROUND(({{x}}-{ss.ref(6, 1)})/{ss.ref(7, 1)},0)+1))"
 
 
 def _new_rows(fs: SheetPlan, model: ModelData, side: int, x: list[float], yv: list[float],
