@@ -179,9 +179,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
     sheets = [summary, ss, ns, fs]
     if vote:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
-        _vote_summary(summary, model, res, fs, fitted, focus, version, k)
-        if model.new is not None:
-            _work_list(summary, model, res, ns, focus)
+        _vote_summary(summary, model, res, fs, ns, fitted, focus, version, k)
     else:
         rs, resid = plan_residual_sheet(
             model, fitted_refs, np.asarray(fitted, dtype=float),
@@ -203,7 +201,7 @@ def _neighbour_row(ns: SheetPlan, r: int, model: ModelData, nbrs: np.ndarray, zr
     for m, j in enumerate(nbrs):
         j = int(j)
         ns.put(r, 1 + m, y.row_of(int(model.used[j])), style="int")
-        ns.put(r, 1 + k + m, _distance(z, Z[j]), f"=SQRT(SUMXMY2({zref},{zrefs[j]}))", "num")
+        ns.put(r, 1 + k + m, _distance(z, Z[j]), f"=SQRT(SUMXMY2({zref},{zrefs[j]}))", "dist")
         label = model.Y[j]
         resp.append(label)
         ns.put(r, 1 + 2 * k + m, label if vote else float(label),
@@ -308,14 +306,15 @@ def _settings_block(s: SheetPlan, model: ModelData, res: Any, version: str, k: i
     return 7
 
 
-def _k_table(s: SheetPlan, row: int, res: Any, k: int, label: str, err_cell: str) -> int:
+def _k_table(s: SheetPlan, row: int, res: Any, k: int, label: str, err_cell: str,
+             style: str = "num") -> int:
     s.put(row, 0, "k", style="head")
     s.put(row, 1, f"leave-one-out {label}", style="head")
     s.put(row, 2, "", style="head")
     first = row + 1
     for i, (kk, err) in enumerate(res.k_table_):
         s.put(first + i, 0, int(kk), style="int")
-        s.put(first + i, 1, float(err), style="num")
+        s.put(first + i, 1, float(err), style=style)
         if int(kk) == k:
             s.put(first + i, 2, "◀ used", style="label")
     last = first + len(res.k_table_) - 1
@@ -373,8 +372,8 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, rs: S
     s.widths = {0: 34, 1: 18, 2: 40}
 
 
-def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, fitted: list[Any],
-                  focus: object, version: str, k: int) -> None:
+def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, ns: SheetPlan,
+                  fitted: list[Any], focus: object, version: str, k: int) -> None:
     row = _settings_block(s, model, res, version, k)
     s.put(5, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
     s.put(5, 2, "given in the settings" if model.settings["focus"] is not None
@@ -449,7 +448,9 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, fitte
               f'&{col_letter(2 + C)}{top + 1 + a}&" rows were "&${cls_col}{top + 1 + a}'
               f'&" in all."', "text")
     row = row + 2 + C
-    _k_table(s, row, res, k, "error rate", err_cell)
+    if model.new is not None:
+        row = _work_list(s, row, model, res, ns, focus)
+    _k_table(s, row, res, k, "error rate", err_cell, "ratio")
     s.widths = {0: 34, 1: 14, 2: 14}
 
 
@@ -460,29 +461,32 @@ def _index(classes: list[Any], label: object) -> int:
     raise KeyError(label)
 
 
-def _work_list(s: SheetPlan, model: ModelData, res: Any, ns: SheetPlan, focus: object) -> None:
+def _work_list(s: SheetPlan, top: int, model: ModelData, res: Any, ns: SheetPlan,
+               focus: object) -> int:
     """New rows ranked by the share of neighbours in the focus class (highest first)."""
     assert model.new is not None
     k = int(res.k_)
     pred = res.predict(model.new.X)
     shares = [sum(labels_equal(model.Y[int(j)], focus) for j in nb) / k for nb in pred.neighbours]
     order = sorted(range(model.new.n), key=lambda i: (-shares[i], i))
-    col = 6 + len(res.classes_)
-    s.put(3, col, f"work list: new rows by share of neighbours in {label_text(focus)}",
-          style="head")
-    s.put(4, col, "rank", style="head")
-    s.put(4, col + 1, "new row", style="head")
-    s.put(4, col + 2, f"share {label_text(focus)}", style="head")
-    s.put(4, col + 3, "prediction", style="head")
+    col = 0
+    s.put(top, col, f"work list: new rows by share of neighbours in {label_text(focus)}",
+          style="label")
+    s.put(top + 1, col, "rank", style="head")
+    s.put(top + 1, col + 1, "new row", style="head")
+    s.put(top + 1, col + 2, f"share {label_text(focus)}", style="head")
+    s.put(top + 1, col + 3, "prediction", style="head")
     start = FIRST_ROW + len(model.used) + 2
     pred_col = 1 + 4 * k
     for rank, i in enumerate(order, start=1):
-        r = 4 + rank
+        r = top + 1 + rank
         src = start + i
         s.put(r, col, rank, style="int")
         s.put(r, col + 1, model.new.columns[0].row_of(i), f"={ns.ref(src, 0, fixed=False)}",
               "int")
         s.put(r, col + 2, shares[i], f"={ns.ref(src, pred_col + 3, fixed=False)}", "ratio")
         s.put(r, col + 3, pred.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "text")
-    s.widths[col + 3] = 14
+    s.put(top + 2 + model.new.n, 0, "A ranked list, not a verdict: choose the cut-off from the "
+          "cost of a missed case against the cost of a needless follow-up.", style="note")
+    return top + 4 + model.new.n
 
