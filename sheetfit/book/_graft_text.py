@@ -11,6 +11,7 @@ defusedxml, so the text is known to be well-formed.
 
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass
 from xml.sax.saxutils import escape, quoteattr
@@ -142,6 +143,7 @@ def elements(
         pos = c.end()
 
 
+@functools.lru_cache(maxsize=64)
 def _attr_re(name: str) -> re.Pattern[str]:
     return re.compile(rf"(\s){re.escape(name)}\s*=\s*(\"[^\"]*\"|'[^']*')")
 
