@@ -44,7 +44,7 @@ def test_fitted_formula_points_at_coefficients_and_data(tmp_path: Path) -> None:
     assert first.value == pytest.approx(res.coef_[0] + res.coef_[1] * 1.0, rel=1e-15)
     assert cells["B5"].formula == "=Data!A2"
     resid = {c.address: c for c in _sheet(plan, "sf a resid").cells}
-    assert resid["D8"].formula == "=B8-C8"
+    assert resid["D8"].formula == "=IF(C8=\"\",\"\",B8-C8)"
     names = dict(plan.names)
     assert names["sf_a_coef"] == "'sf a coef'!$B$8:$B$9"
     assert names["sf_a_fitted"] == "'sf a fitted'!$D$5:$D$8"

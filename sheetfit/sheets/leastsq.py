@@ -15,12 +15,11 @@ import numpy as np
 from ..declare.model import ModelData
 from ..fit.leastsq import LeastSquaresResult
 from ..owned import sheet_title
+from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
 from .plan import SheetPlan, absolute
 
-__all__ = ["FIRST_ROW", "LeastSquaresSheets", "plan_least_squares"]
+__all__ = ["LeastSquaresSheets", "plan_least_squares"]
 
-#: Row (0-based) of the first data row on the fitted-value and residual sheets.
-FIRST_ROW = 4
 
 
 @dataclass
@@ -35,10 +34,6 @@ class LeastSquaresSheets:
     @property
     def sheets(self) -> list[SheetPlan]:
         return [self.coef, self.fitted, self.resid]
-
-
-def _fsum_sq(v: np.ndarray) -> float:
-    return math.fsum(float(a) * float(a) for a in v)
 
 
 def _term_values(X: np.ndarray, degree: int) -> list[tuple[int, int]]:
@@ -56,10 +51,10 @@ EXACT_FIT = "1E-24"
 
 def _cosine(r: np.ndarray, t: np.ndarray, y: np.ndarray) -> float:
     """What the check formula evaluates to: 0 for an exact fit, else cos(r, t)."""
-    ssr = _fsum_sq(r)
-    if ssr <= float(EXACT_FIT) * _fsum_sq(y):
+    ssr = fsum_sq(r)
+    if ssr <= float(EXACT_FIT) * fsum_sq(y):
         return 0.0
-    return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * _fsum_sq(t))
+    return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * fsum_sq(t))
 
 
 def _check_formula(r: str, t: str | None, y: str) -> str:
@@ -105,7 +100,6 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
-    rs = SheetPlan(sheet_title(tag, "resid"))
     coef_note = (
         f"Coefficients computed by sheetfit {version} ({res.method_note}). The check beside "
         "each is a native formula, the cosine of the angle between the residuals and that "
@@ -145,29 +139,12 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     side = fit_col + 2
     if model.new is not None:
         side = _plan_new(fs, model, coef, coef_ref, specs, intercept, side, names)
-    if model.left_out:
-        fs.put(3, side, "left-out data row", style="head")
-        fs.put(3, side + 1, "why it was left out of the fit", style="head")
-        for i, lo in enumerate(model.left_out):
-            fs.put(FIRST_ROW + i, side, lo.sheet_row, style="int")
-            fs.put(FIRST_ROW + i, side + 1, lo.reason)
-        fs.widths[side + 1] = 44
+    plan_left_out(fs, model, side)
 
     # --- residual sheet -------------------------------------------------------------
-    rs.put(0, 0, f"Residuals — model {tag}", style="title")
-    rs.put(1, 0, "residual = observed − fitted, each a formula.", style="note")
-    for c, h in enumerate(["data row", f"{y.name} (observed)", f"fitted {y.name}", "residual"]):
-        rs.put(3, c, h, style="head")
-    resid = np.empty(n)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        rs.put(r, 0, int(y.row_of(int(idx))), style="int")
-        rs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
-        rs.put(r, 2, float(fitted[i]), f"={fs.ref(r, fit_col, fixed=False)}", "num")
-        resid[i] = float(model.Y[i]) - float(fitted[i])
-        rs.put(r, 3, resid[i], f"=B{r + 1}-C{r + 1}", "num")
-    rs.widths = {0: 9, 3: 16}
-    rs.freeze = (FIRST_ROW, 1)
+    rs, resid = plan_residual_sheet(
+        model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted,
+        "residual = observed − fitted, each a formula.")
     resid_rng = rs.col_range(3, FIRST_ROW, last)
     y_rng = fs.col_range(1, FIRST_ROW, last)
 
@@ -247,7 +224,7 @@ def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y:
     cs.put(row, 0, "summary (native formulas)", style="head")
     cs.put(row, 1, "value", style="head")
     cs.put(row, 2, "what it is", style="head")
-    ssr = _fsum_sq(resid)
+    ssr = fsum_sq(resid)
     n_row, p_row = row + 1, row + 2
     n_ref, p_ref = absolute(n_row, 1), absolute(p_row, 1)
     coef_rng = f"{coef_cell[0]}:{coef_cell[-1]}"
@@ -267,7 +244,7 @@ def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y:
         lines.append(("R²", r2, f'=IF(DEVSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/DEVSQ({y_rng}))',
                       "ratio", "share of the variation of y about its mean that the fit explains"))
     else:
-        tot = _fsum_sq(Y)
+        tot = fsum_sq(Y)
         r2 = "n/a" if tot == 0 else 1 - ssr / tot
         lines.append(("R² (uncentred)", r2,
                       f'=IF(SUMSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/SUMSQ({y_rng}))', "ratio",
