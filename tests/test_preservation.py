@@ -393,3 +393,22 @@ def test_in_place_and_failure_leave_no_temp(tmp_path: Path, books: dict[str, Pat
     graft(p, books["rendered"], NAMES, p)
     assert [s.name for s in open_package(p).owned_sheets()] == list(TITLES)
     assert os.listdir(tmp_path) == ["book.xlsx"]
+
+
+def test_refresh_end_to_end_keeps_user_parts_and_repeats_exactly(user: Path, tmp_path: Path):
+    """The whole refresh (declare, fit, render, graft) on the rich book: user parts keep
+    their bytes, and refreshing the result again gives the same entries."""
+    import datetime as dt
+
+    from sheetfit.refresh import refresh
+
+    when = dt.datetime(2026, 1, 1, tzinfo=dt.UTC)
+    out, again = tmp_path / "out.xlsx", tmp_path / "again.xlsx"
+    refresh(user, out, now=when)
+    src, res = _entries(user), _entries(out)
+    for name, data in src.items():
+        if name not in {*SHARED, STYLES, APP}:
+            assert res[name] == data, f"{name} changed"
+    _check_invariants(out)
+    refresh(out, again, now=when)
+    assert _entries(again) == res
