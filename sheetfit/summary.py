@@ -111,6 +111,10 @@ def _neighbours(model: ModelData, res: Any) -> tuple[list[str], list[str]]:
     else:
         figures.append(f"leave-one-out RMSE {float(res.rmse_):.6g}")
     cautions = []
+    table_end = len(res.k_table_)
+    if not res.k_given_ and res.k_ == table_end and table_end < len(model.used) - 1:
+        cautions.append(f"k = {res.k_} was chosen at the end of the k table; a larger k may "
+                        "do as well or better (set k to try)")
     if not res.scaling_.on and len(model.xs) > 1:
         sd = model.X.std(axis=0)
         if sd.min() > 0 and sd.max() / sd.min() > 10:

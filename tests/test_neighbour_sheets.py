@@ -182,3 +182,22 @@ def test_vote_sheets_name_outputs(tmp_path: Path) -> None:
     for kind in ("summary", "std", "nbrs", "fitted"):
         assert f'name="{sheet_title("m", kind)}"' in wb
     assert "sf_m_fitted" in wb and "sf_m_resid" not in wb
+
+
+@settings(max_examples=10, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+                                                                 HealthCheck.function_scoped_fixture])
+@given(xs=st.lists(st.integers(0, 6), min_size=4, max_size=14), width=st.integers(1, 3),
+       new=st.integers(-2, 8))
+def test_property_strip_formulas_equal_python(engine, tmp_path_factory, xs, width, new) -> None:
+    """Integer x with integer widths put rows exactly on strip edges: formulas agree."""
+    if len(set(xs)) < 2:
+        xs = [*xs, max(xs) + 1]
+    rows = [["y", "x"]] + [[float(3 * v + (i % 3)), float(v)] for i, v in enumerate(xs)]
+    last = len(rows)
+    p = make_book(tmp_path_factory.mktemp("strip") / "s.xlsx",
+                  {"Data": rows, "Opts": [["method", "strip_mean"], ["width", width]],
+                   "New": [["x"], [float(new)]]},
+                  {"sf_s_y": f"Data!$A$1:$A${last}", "sf_s_x": f"Data!$B$1:$B${last}",
+                   "sf_s_opts": "Opts!$A$1:$B$2", "sf_s_new": "New!$A$1:$A$2"})
+    refresh(p)
+    _check_engine(engine, p)
