@@ -201,3 +201,11 @@ def test_property_strip_formulas_equal_python(engine, tmp_path_factory, xs, widt
                    "sf_s_opts": "Opts!$A$1:$B$2", "sf_s_new": "New!$A$1:$A$2"})
     refresh(p)
     _check_engine(engine, p)
+
+
+def test_refuse_focus_not_a_class(tmp_path: Path) -> None:
+    """A focus class that is not in y is refused, listing the classes (capitals count)."""
+    p = _book(tmp_path, _invoices(), [["method", "neighbour_vote"], ["focus", "Late"]])
+    with pytest.raises(SettingError, match=r"focus 'Late' is not one of the classes in y "
+                                           r"\(late, on time\)"):
+        refresh(p)

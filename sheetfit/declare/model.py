@@ -15,7 +15,8 @@ import numpy as np
 
 from ..book.package import DefinedName, Package
 from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
-from ..errors import Context, DataError, DeclarationError
+from ..errors import Context, DataError, DeclarationError, SettingError
+from ..labels import label_text, labels_equal
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, quote_sheet, split_name
 from ..settings import Settings, parse_settings
 from .refs import Area, RefError, cell_ref, parse_areas
@@ -264,6 +265,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
             hint="fill in the data or point the names at it",
         )
+    if method == "neighbour_vote" and settings["focus"] is not None:
+        _check_focus(settings["focus"], Y, file, decl.names["opts"])
     if method == "least_squares":
         _check_least_squares(settings, xcols, used, X, n_rows, ctx, dx, file)
     elif len(used) < 2:
@@ -296,6 +299,17 @@ def _check_least_squares(settings: Settings, xcols: list[Column], used: np.ndarr
                     Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
                     hint="drop the column from x",
                 )
+
+
+def _check_focus(focus: object, Y: np.ndarray, file: str, opts: DefinedName) -> None:
+    if not any(labels_equal(v, focus) for v in Y):
+        classes = sorted({label_text(v) for v in Y})
+        raise SettingError(
+            f"focus '{label_text(focus)}' is not one of the classes in y "
+            f"({', '.join(classes[:10])}{' ...' if len(classes) > 10 else ''})",
+            Context(file, opts.name),
+            hint="write the class exactly as in the data (capitals count)",
+        )
 
 
 def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,

@@ -11,14 +11,7 @@ from ..declare.model import ModelData
 from ..owned import sheet_title
 from .plan import SheetPlan
 
-__all__ = [
-    "FIRST_ROW",
-    "fsum_sq",
-    "label_text",
-    "labels_equal",
-    "plan_left_out",
-    "plan_residual_sheet",
-]
+__all__ = ["FIRST_ROW", "fsum_sq", "plan_left_out", "plan_residual_sheet"]
 
 #: Row (0-based) of the first data row on row-by-row sheets (fitted, residual, neighbours).
 FIRST_ROW = 4
@@ -27,20 +20,6 @@ FIRST_ROW = 4
 def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
     return math.fsum(float(a) * float(a) for a in v)
-
-
-def label_text(label: object) -> str:
-    """A class label as a spreadsheet shows it when joined into text (37 -> '37')."""
-    if isinstance(label, float):
-        return str(int(label)) if label.is_integer() and abs(label) < 1e15 else repr(label)
-    return str(label)
-
-
-def labels_equal(a: object, b: object) -> bool:
-    """What EXACT(a, b) says of two class labels: text case-sensitively, numbers by value."""
-    if isinstance(a, float) and isinstance(b, float):
-        return a == b
-    return label_text(a) == label_text(b)
 
 
 def plan_left_out(sheet: SheetPlan, model: ModelData, col: int) -> None:

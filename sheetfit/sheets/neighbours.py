@@ -16,15 +16,9 @@ import numpy as np
 
 from ..declare.model import ModelData
 from ..declare.refs import col_letter
+from ..labels import label_text, labels_equal
 from ..owned import sheet_title
-from .common import (
-    FIRST_ROW,
-    fsum_sq,
-    label_text,
-    labels_equal,
-    plan_left_out,
-    plan_residual_sheet,
-)
+from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
 from .plan import SheetPlan, absolute
 
 __all__ = ["TIE_RULE", "NeighbourSheets", "plan_neighbours"]
@@ -239,19 +233,11 @@ def _focus_ref(model: ModelData) -> str:
 
 
 def _focus(model: ModelData, res: Any) -> object:
-    given = model.settings["focus"]
+    """The class the work list ranks by: as given (checked in declare), else the rarest."""
     classes = list(res.classes_)
+    given = model.settings["focus"]
     if given is not None:
-        for c in classes:
-            if labels_equal(c, given):
-                return c
-        from ..errors import Context, SettingError
-
-        raise SettingError(
-            f"focus '{label_text(given)}' is not one of the classes in y "
-            f"({', '.join(label_text(c) for c in classes)})",
-            Context(model.file, model.names.get("opts")),
-        )
+        return next(c for c in classes if labels_equal(c, given))
     counts = [sum(labels_equal(v, c) for v in model.Y) for c in classes]
     return classes[counts.index(min(counts))]
 
