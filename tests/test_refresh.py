@@ -181,3 +181,18 @@ def test_output_names_work_from_the_users_own_formulas(engine, tmp_path: Path) -
     assert cells["A1"].value == pytest.approx(slope, rel=1e-12)
     assert cells["A2"].value == pytest.approx(ssr, rel=1e-9)
     assert cells["A3"].value == pytest.approx(icept + slope * 41.0, rel=1e-12)
+
+
+def test_awkward_sheet_names_are_quoted_in_formulas(engine, tmp_path: Path) -> None:
+    """Data on a sheet called "Jo's 2026 data (€)" still gives formulas that recalculate."""
+    title = "Jo's 2026 data (€)"
+    quoted = "'Jo''s 2026 data (€)'"
+    p = make_book(tmp_path / "odd.xlsx", {title: line_rows(8)},
+                  {"sf_odd_y": f"{quoted}!$A$1:$A$9", "sf_odd_x": f"{quoted}!$B$1:$B$9"})
+    refresh(p)
+    from engine.recalc import cached_formula_values
+
+    formulas = [c.formula for c in cached_formula_values(p).values()]
+    assert any(quoted in f for f in formulas)
+    mismatches = engine_compare(engine, p)
+    assert mismatches.checked > 30 and not mismatches, mismatches.report()
