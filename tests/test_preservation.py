@@ -412,3 +412,24 @@ def test_refresh_end_to_end_keeps_user_parts_and_repeats_exactly(user: Path, tmp
     _check_invariants(out)
     refresh(out, again, now=when)
     assert _entries(again) == res
+
+
+def test_refresh_after_libreoffice_resave_replaces_its_sheets(books: dict[str, Path],
+                                                              tmp_path: Path):
+    """Refresh, let LibreOffice re-save the book, refresh again: the owned sheets and names
+    are found and replaced, not duplicated, and the user's sheets are all still there."""
+    from sheetfit.refresh import refresh
+
+    first = tmp_path / "first.xlsx"
+    refresh(books["xlsxwriter"], first)
+    resaved = _soffice(first, tmp_path / "lo", "xlsx", "xlsx")
+    second = tmp_path / "second.xlsx"
+    refresh(resaved, second)
+    pkg = open_package(second)
+    titles = [s.name for s in pkg.sheets]
+    assert titles == ["Data", "More", "sf index", "sf demo coef", "sf demo fitted",
+                      "sf demo resid"]
+    outputs = sorted(d.name for d in pkg.defined_names if d.name.startswith("sf_demo_"))
+    assert outputs == ["sf_demo_coef", "sf_demo_fitted", "sf_demo_resid", "sf_demo_x",
+                       "sf_demo_y"]
+    assert len(pkg.owned_sheets()) == 4
