@@ -129,7 +129,8 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
     k_cell = summary.ref(4, 1)
     focus = _focus(model, res) if vote else None
 
-    ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k})", style="title")
+    ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k}); neighbour rows are rows of "
+           f"sheet '{y.sheet}'", style="title")
     ns.note(1, 0, TIE_RULE, width=170)  # two lines, above the header in row 4
     heads = (["data row"] + [f"neighbour {m + 1} row" for m in range(k)]
              + [f"distance {m + 1}" for m in range(k)] + [f"{y.name} of {m + 1}" for m in range(k)])
