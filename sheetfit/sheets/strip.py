@@ -7,6 +7,7 @@ formula cost stays at grid size × rows for the curve and constant per row.
 
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 from typing import Any
@@ -144,7 +145,8 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     names: list[tuple[str, str]] = []
     side = len(fh) + 1
     if model.new is not None:
-        side = _new_rows(fs, model, side, x, yv, w, xs, ys, w_full, names)
+        means = [t / c if c else "" for t, c in zip(sums, counts)]
+        side = _new_rows(fs, model, side, centres, means, lo, step, even, ss, col, names)
     plan_left_out(fs, model, side)
 
     rs, resid = plan_residual_sheet(model, refs, fitted,
@@ -176,28 +178,43 @@ def _lookup(x: float, centres: list[float], lo: float, step: float, even: bool,
     return j, f"=MIN(101,MAX(1,ROUND(({{x}}-{ss.ref(6, 1)})/{ss.ref(7, 1)},0)+1))"
 
 
-def _new_rows(fs: SheetPlan, model: ModelData, side: int, x: list[float], yv: list[float],
-              w: float, xs: str, ys: str, w_ref: str, names: list[tuple[str, str]]) -> int:
-    """Predictions for new rows: the mean of the rows within ± width of the new x itself."""
+def _new_rows(fs: SheetPlan, model: ModelData, side: int, centres: list[float],
+              means: list[Any], lo: float, step: float, even: bool, ss: SheetPlan,
+              col: dict[str, str], names: list[tuple[str, str]]) -> int:
+    """Predictions for new rows: the strip mean at the nearest centre (one lookup each)."""
     new = model.new
     assert new is not None
-    fs.put(2, side, "New rows: the strip centred on each new x (one pass over the rows each).",
+    fs.put(2, side, "New rows: the strip mean at the nearest centre (on a tie, the lower).",
            style="note")
-    for c, h in enumerate(["new row", model.xs[0].name, "rows in strip",
+    for c, h in enumerate(["new row", model.xs[0].name, "centre no.",
                            f"predicted {model.y.name}"]):
         fs.put(3, side + c, h, style="head")
-    xl, cl = col_letter(side + 2), col_letter(side + 3)
+    xl, il = col_letter(side + 2), col_letter(side + 3)
+    cen, g = col["centre"], len(centres)
     for i in range(new.n):
         r = FIRST_ROW + i
         R = r + 1
         xv = float(new.X[i, 0])
         fs.put(r, side, new.columns[0].row_of(i), style="int")
         fs.put(r, side + 1, xv, f"={new.columns[0].cell(i)}", "num")
-        members = [k for k in range(len(x)) if _inside(x[k], xv, w)]
-        cond = f"--(ABS({xs}-{xl}{R})<={w_ref}*{EDGE})"
-        fs.put(r, side + 2, len(members), f"=SUMPRODUCT({cond})", "int")
-        mean = math.fsum(yv[k] for k in members) / len(members) if members else ""
-        fs.put(r, side + 3, mean, f'=IF({cl}{R}=0,"",SUMPRODUCT({cond},{ys})/{cl}{R})', "num")
+        if even:
+            j, f_idx = _lookup(xv, centres, lo, step, True, cen, ss)
+            f_idx = f_idx.format(x=f"{xl}{R}")
+        else:
+            j = _nearest(xv, centres)
+            below = f"IFERROR(MATCH({xl}{R},{cen},1),1)"
+            f_idx = (f"=IF({below}<{g},IF(INDEX({cen},{below}+1)-{xl}{R}<{xl}{R}-INDEX({cen},"
+                     f"{below}),{below}+1,{below}),{below})")
+        fs.put(r, side + 2, j + 1, f_idx, "int")
+        fs.put(r, side + 3, means[j], f"=INDEX({col['mean']},{il}{R})", "num")
     names.append((f"sf_{model.tag}_pred",
                   fs.col_range(side + 3, FIRST_ROW, FIRST_ROW + new.n - 1)))
     return side + 5
+
+
+def _nearest(x: float, centres: list[float]) -> int:
+    """What the new-row lookup formula finds on a sorted distinct grid (0-based)."""
+    below = max(0, bisect.bisect_right(centres, x) - 1)
+    if below + 1 < len(centres) and centres[below + 1] - x < x - centres[below]:
+        return below + 1
+    return below
