@@ -2,15 +2,12 @@
 
 from __future__ import annotations
 
-import os
-import shutil
-import subprocess
-import tempfile
 import zipfile
 from pathlib import Path
 
 import pytest
 import xlsxwriter
+from books import soffice_convert
 
 from sheetfit.book.package import DefinedName, open_package
 from sheetfit.errors import PackageError
@@ -18,21 +15,7 @@ from sheetfit.errors import PackageError
 
 def _soffice_xlsx(src: Path, outdir: Path) -> Path:
     """Re-save ``src`` with LibreOffice (private profile); skip or fail (CI) if it is missing."""
-    exe = shutil.which("soffice")
-    if exe is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("soffice is not installed", pytrace=False)
-        pytest.skip("soffice is not installed")
-    outdir.mkdir(parents=True, exist_ok=True)
-    with tempfile.TemporaryDirectory() as profile:
-        subprocess.run(
-            [exe, "--headless", f"-env:UserInstallation=file://{profile}",
-             "--convert-to", "xlsx", "--outdir", str(outdir), str(src)],
-            capture_output=True, timeout=240, check=False,
-        )  # fmt: skip
-    out = outdir / (src.stem + ".xlsx")
-    assert out.exists(), "LibreOffice wrote no file"
-    return out
+    return soffice_convert(src, outdir, "xlsx")
 
 
 def _book(path: Path, date1904: bool = False) -> Path:

@@ -15,14 +15,13 @@ import os
 import re
 import shutil
 import struct
-import subprocess
-import tempfile
 import zipfile
 import zlib
 from pathlib import Path
 
 import pytest
 import xlsxwriter
+from books import soffice_convert
 from lxml import etree
 
 import sheetfit.book.graft as graft_mod
@@ -55,22 +54,10 @@ _PARSER = etree.XMLParser(resolve_entities=False, no_network=True)
 
 def _soffice(src: Path, outdir: Path, fmt: str, ext: str) -> Path:
     """Convert with LibreOffice (private profile); skip, or fail in CI, if it is missing."""
-    exe = shutil.which("soffice")
-    if exe is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("soffice is not installed", pytrace=False)
-        pytest.skip("soffice is not installed")
-    outdir.mkdir(parents=True, exist_ok=True)
-    with tempfile.TemporaryDirectory() as profile:
-        subprocess.run(
-            [exe, "--headless", f"-env:UserInstallation=file://{profile}",
-             "--convert-to", fmt, "--outdir", str(outdir), str(src)],
-            capture_output=True, timeout=240, check=False,
-        )  # fmt: skip
-    out = outdir / f"{src.stem}.{ext}"
+    out = soffice_convert(src, outdir, fmt)
     if ext == "csv":
         out = outdir / f"{src.stem}-{TITLES[0]}.csv"
-    assert out.exists(), f"LibreOffice wrote no {out.name}"
+        assert out.exists(), f"LibreOffice wrote no {out.name}"
     return out
 
 
