@@ -9,6 +9,12 @@ from pathlib import Path
 from typing import NoReturn
 
 import pytest
+from hypothesis import settings
+
+# Property tests draw the same examples on every run (seeded, as all test randomness
+# here is), and keep no example database between runs.
+settings.register_profile("sheetfit", derandomize=True, database=None)
+settings.load_profile("sheetfit")
 
 # The engine helper lives in tests/engine; make it importable as ``engine`` whatever
 # pytest's import mode is.
