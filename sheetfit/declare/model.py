@@ -19,7 +19,7 @@ from ..errors import Context, DataError, DeclarationError, SettingError
 from ..labels import label_text, labels_equal
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, quote_sheet, split_name
 from ..settings import Settings, parse_settings
-from .refs import Area, RefError, cell_ref, parse_areas
+from .refs import Area, RefError, cell_ref, col_letter, parse_areas
 
 __all__ = ["Column", "LeftOut", "ModelData", "NewRows", "describe_value", "find_models"]
 
@@ -330,8 +330,6 @@ def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
 
 
 def _make_column(a: Area, col: int, header: bool, values: BookValues, offset: int) -> Column:
-    from .refs import col_letter
-
     name = values.sheet(a.sheet).get(a.row1, col).text.strip() if header else col_letter(col)
     return Column(name, a.sheet, col, a.row1 + offset)
 

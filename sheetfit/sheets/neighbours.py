@@ -127,6 +127,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
     ns = SheetPlan(sheet_title(tag, "nbrs"))
     summary = SheetPlan(sheet_title(tag, "summary"))
     k_cell = summary.ref(4, 1)
+    focus_cell = summary.ref(5, 1)  # the focus class, on a vote's summary sheet
     focus = _focus(model, res) if vote else None
 
     ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k}); neighbour rows are rows of "
@@ -149,7 +150,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
         r = FIRST_ROW + i
         ns.put(r, 0, y.row_of(int(idx)), style="int")
         value = _neighbour_row(ns, r, model, res.neighbours_[i], zrefs[i], zrefs,
-                               Z[i], Z, k, k_cell, vote, focus)
+                               Z[i], Z, k, k_cell, focus_cell, vote, focus)
         fitted.append(value)
         fitted_refs.append(ns.ref(r, pred_col, fixed=False))
     names: list[tuple[str, str]] = []
@@ -164,7 +165,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
             r = start + i
             ns.put(r, 0, model.new.columns[0].row_of(i), style="int")
             _neighbour_row(ns, r, model, pred.neighbours[i], new_zrefs[i], zrefs,
-                           Zn[i], Z, k, k_cell, vote, focus)
+                           Zn[i], Z, k, k_cell, focus_cell, vote, focus)
         names.append((f"sf_{tag}_pred",
                       ns.col_range(pred_col, start, start + model.new.n - 1)))
     ns.widths = {0: 9}
@@ -189,7 +190,7 @@ def plan_neighbours(model: ModelData, res: Any, version: str) -> NeighbourSheets
 
 def _neighbour_row(ns: SheetPlan, r: int, model: ModelData, nbrs: np.ndarray, zref: str,
                    zrefs: list[str], z: np.ndarray, Z: np.ndarray, k: int, k_cell: str,
-                   vote: bool, focus: object) -> Any:
+                   focus_cell: str, vote: bool, focus: object) -> Any:
     """One row of the neighbours sheet; returns its prediction (the cached value)."""
     y = model.y
     resp: list[Any] = []
@@ -224,13 +225,9 @@ def _neighbour_row(ns: SheetPlan, r: int, model: ModelData, nbrs: np.ndarray, zr
     ns.put(r, c + 1, best, f"=MAX({vb})", "int")
     ns.put(r, c + 2, best / k, f"=MAX({vb})/{k_cell}", "ratio")
     share = sum(labels_equal(u, focus) for u in resp) / k
-    ns.put(r, c + 3, share, f"=SUMPRODUCT(--EXACT({block},{_focus_ref(model)}))/{k_cell}",
+    ns.put(r, c + 3, share, f"=SUMPRODUCT(--EXACT({block},{focus_cell}))/{k_cell}",
            "ratio")
     return pred
-
-
-def _focus_ref(model: ModelData) -> str:
-    return SheetPlan(sheet_title(model.tag, "summary")).ref(5, 1)
 
 
 def _focus(model: ModelData, res: Any) -> object:
@@ -294,7 +291,7 @@ def _settings_block(s: SheetPlan, model: ModelData, res: Any, version: str, k: i
 
 
 def _k_table(s: SheetPlan, row: int, res: Any, k: int, label: str, err_cell: str,
-             style: str = "num") -> int:
+             err_value: float, style: str = "num") -> int:
     s.put(row, 0, "k", style="head")
     s.put(row, 1, f"leave-one-out {label}", style="head")
     s.put(row, 2, "", style="head")
@@ -308,19 +305,12 @@ def _k_table(s: SheetPlan, row: int, res: Any, k: int, label: str, err_cell: str
     r = last + 1
     if k <= len(res.k_table_):
         s.put(r, 0, "check: table at k minus the formula above", style="note")
-        diff = float(res.k_table_[k - 1][1]) - _cached(s, err_cell)
+        diff = float(res.k_table_[k - 1][1]) - err_value
         s.put(r, 1, diff, f"=INDEX(B{first + 1}:B{last + 1},{absolute(4, 1)})-{err_cell}",
               "check")
     else:
         s.put(r, 0, f"k = {k} is beyond the table (it stops at {len(res.k_table_)})", style="note")
     return r + 2
-
-
-def _cached(s: SheetPlan, addr: str) -> float:
-    for c in s.cells:
-        if absolute(c.row, c.col) == addr:
-            return float(c.value)  # type: ignore[arg-type]
-    raise KeyError(addr)
 
 
 def _mean_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, rs: SheetPlan,
@@ -353,7 +343,7 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, rs: S
         s.put(row + 1 + i, 1, value, formula, style)
         s.put(row + 1 + i, 2, what, style="note")
     rmse_cell = absolute(row + 2, 1)
-    row = _k_table(s, row + len(lines) + 2, res, k, "RMSE", rmse_cell)
+    row = _k_table(s, row + len(lines) + 2, res, k, "RMSE", rmse_cell, rmse)
     s.put(row, 0, "Each prediction is read together with the spread of its neighbours' "
           "responses (smallest, median, largest) on the neighbours sheet.", style="note")
     s.widths = {0: 34, 1: 18, 2: 40}
@@ -379,7 +369,8 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, ns: S
     s.put(row + 1, 0, "rows used (n)", style="label")
     s.put(row + 1, 1, n, f"=COUNTA({obs})", "int")
     s.put(row + 2, 0, "error rate", style="label")
-    s.put(row + 2, 1, 1 - n_right / n, f"=1-SUM({right})/B{row + 2}", "ratio")
+    err_rate = 1 - n_right / n
+    s.put(row + 2, 1, err_rate, f"=1-SUM({right})/B{row + 2}", "ratio")
     err_cell = absolute(row + 2, 1)
     n_cell = absolute(row + 1, 1)
     row += 4
@@ -437,7 +428,7 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: Any, fs: SheetPlan, ns: S
     row = row + 2 + C
     if model.new is not None:
         row = _work_list(s, row, model, res, ns, focus)
-    _k_table(s, row, res, k, "error rate", err_cell, "ratio")
+    _k_table(s, row, res, k, "error rate", err_cell, err_rate, "ratio")
     s.widths = {0: 34, 1: 14, 2: 14}
 
 
