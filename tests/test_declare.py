@@ -240,3 +240,13 @@ def test_refuse_not_a_workbook(tmp_path: Path) -> None:
     with pytest.raises(Exception, match="notes.xlsx") as info:
         refresh(p)
     assert type(info.value).__name__ == "PackageError"
+
+
+def test_output_name_left_at_ref_error_is_replaced(tmp_path: Path) -> None:
+    """An output name whose result sheet was deleted by hand (#REF!) is sheetfit's: replaced."""
+    p = make_book(tmp_path / "b.xlsx", {"Data": line_rows(8)},
+                  {"sf_a_y": "Data!$A$1:$A$9", "sf_a_x": "Data!$B$1:$B$9",
+                   "sf_a_coef": "#REF!"})
+    refresh(p)
+    names = {d.name: d.text for d in open_package(p).defined_names}
+    assert names["sf_a_coef"] == "'sf a coef'!$B$8:$B$9"

@@ -45,11 +45,17 @@ def refers_to(text: str, titles: Iterable[str]) -> bool:
 
 
 def is_ours(d: DefinedName, owned: Sequence[str], removed_idx: set[int]) -> bool:
-    """A name sheetfit wrote last time: scoped to an owned sheet, or an output name into one."""
+    """A name sheetfit wrote last time: scoped to an owned sheet, or an output name into one.
+
+    An output name that reads #REF! (its owned sheet was deleted by hand) is ours too:
+    it points nowhere and is replaced by the fresh one.
+    """
     if d.local_sheet_id is not None:
         return d.local_sheet_id in removed_idx
     parts = split_name(d.name)
-    return parts is not None and parts[1] in OUTPUT_ROLES and refers_to(d.text, owned)
+    if parts is None or parts[1] not in OUTPUT_ROLES:
+        return False
+    return refers_to(d.text, owned) or "#REF!" in d.text.upper()
 
 
 def next_number(in_use: Iterable[str], stem: str) -> int:

@@ -39,7 +39,7 @@ from sheetfit.book._styles import StyleMap, merge_styles
 from sheetfit.book.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
 from sheetfit.errors import Context, DeclarationError, PackageError
 
-__all__ = ["GraftReport", "OutputName", "graft"]
+__all__ = ["GraftReport", "OutputName", "graft", "is_ours"]
 
 _CT_PART = "[Content_Types].xml"
 _APP_PART = "docProps/app.xml"

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..book.graft import is_ours
 from ..book.package import DefinedName, Package
 from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
 from ..errors import Context, DataError, DeclarationError, SettingError
@@ -108,7 +109,8 @@ class _Decl:
 
 
 def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
-    owned = {s.name.casefold() for s in pkg.owned_sheets()}
+    owned = pkg.owned_sheets()
+    titles, indices = [s.name for s in owned], {s.index for s in owned}
     decls: dict[str, _Decl] = {}
     for d in pkg.defined_names:
         parts = split_name(d.name)
@@ -117,7 +119,7 @@ def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
         tag, role = parts
         ctx = Context(file, d.name)
         if role in OUTPUT_ROLES:
-            if _refers_to_owned(d.text, owned):
+            if is_ours(d, titles, indices):  # the grafter's own rule: replaced on refresh
                 continue
             raise DeclarationError(
                 f"'{role}' is a role sheetfit writes (results), so this name of yours would be "
@@ -146,13 +148,6 @@ def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
             )
         decl.names[role] = d
     return decls
-
-
-def _refers_to_owned(text: str, owned: set[str]) -> bool:
-    try:
-        return all(a.sheet.casefold() in owned for a in parse_areas(text))
-    except RefError:
-        return "#REF!" in text.upper()
 
 
 def find_models(pkg: Package, values: BookValues, file: str) -> list[ModelData]:
