@@ -31,7 +31,7 @@ INPUT_ROLES = ("y", "x", "new", "opts")
 OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
-#: name survives a LibreOffice re-save (ENGINE_NOTES.md, grafting item 2).
+#: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
 MARKER_NAME = "_sheetfit_owned"
 
 #: Title of the one index sheet per book.

@@ -63,7 +63,7 @@ def soffice_convert(src: Path, outdir: Path, fmt: str = "xlsx") -> Path:
     """Convert (re-save) ``src`` with LibreOffice on a private profile; return the output.
 
     Skips when LibreOffice is missing, and fails instead under CI=true. The exit code of
-    a conversion says nothing (ENGINE_NOTES.md), so the output file is what is checked.
+    a conversion says nothing (docs/engine-facts.md, E4), so the output file is what is checked.
     """
     import os
     import shutil

@@ -1,4 +1,4 @@
-"""Session fixtures shared by the whole test suite: the recalculation engine and reference data."""
+"""Session fixtures shared by the whole test suite: the recalculation engine."""
 
 from __future__ import annotations
 
@@ -24,8 +24,6 @@ if str(_TESTS) not in sys.path:
 
 from engine.recalc import INSTALL_HINT, Engine, find_engine
 
-REFERENCE_DIR = _TESTS.parent.parent / "shared" / "reference"
-
 
 def _unavailable(message: str) -> NoReturn:
     """Fail in CI (where the dependency must be installed), skip elsewhere."""
@@ -42,14 +40,6 @@ def engine() -> Iterator[Engine]:
         _unavailable(f"LibreOffice Calc is required in CI: {INSTALL_HINT}")
     with Engine(info) as running:
         yield running
-
-
-@pytest.fixture(scope="session")
-def reference_dir() -> Path:
-    """The shared reference data directory (NIST StRD files and others)."""
-    if not REFERENCE_DIR.is_dir():
-        _unavailable(f"shared reference data not found at {REFERENCE_DIR}")
-    return REFERENCE_DIR
 
 
 def pytest_collection_modifyitems(items: list[pytest.Item]) -> None:

@@ -11,7 +11,7 @@ import pytest
 import sheetfit.fit
 from sheetfit.errors import CollinearError, DataError, SettingError
 from sheetfit.fit import LeastSquares, LeastSquaresResult, leastsq
-from sheetfit.fit.strd import reference_dir
+from reference.strd import REFERENCE_DIR
 
 
 def _rng() -> np.random.Generator:
@@ -177,11 +177,8 @@ def test_condition_number_of_scaled_design() -> None:
 
 
 def _anscombe() -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    ref = reference_dir()
-    if ref is None:
-        pytest.fail("reference folder not found: expected ../shared/reference beside the repo")
     sets: dict[str, tuple[list[float], list[float]]] = {}
-    with open(ref / "anscombe.csv", newline="") as fh:
+    with open(REFERENCE_DIR / "anscombe.csv", newline="") as fh:
         for row in csv.DictReader(fh):
             xs, ys = sets.setdefault(row["set"], ([], []))
             xs.append(float(row["x"]))

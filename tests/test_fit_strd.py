@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from sheetfit.fit import LeastSquares, leastsq
-from sheetfit.fit.strd import StrdCase, lre, main, read_strd, strd_dir
+from reference.strd import StrdCase, lre, main, read_strd, strd_dir
 
 # (observations, parameters) as printed in each file's header (NIST StRD, lines 15-22).
 DATASETS = {
@@ -26,7 +26,7 @@ DATASETS = {
     "Wampler5": (21, 6),
 }
 
-# Required agreement: 13 significant digits (the project's accuracy promise, DESIGN.md).
+# Required agreement: 13 significant digits (the project's accuracy promise, README.md "Accuracy").
 # The certified values carry 15 digits; the float64 data themselves limit Pontius and
 # Wampler2 to about 13.2-13.5 digits even in exact arithmetic.
 MIN_LRE = 13.0
@@ -40,8 +40,7 @@ def _folder() -> Path:
     folder = strd_dir()
     if folder is None:
         pytest.fail(
-            "StRD folder not found: expected ../shared/reference/strd beside the repo "
-            "or SHEETFIT_STRD_DIR"
+            "StRD folder not found: expected tests/reference/strd (or SHEETFIT_STRD_DIR)"
         )
     return folder
 

@@ -11,7 +11,7 @@ import pytest
 import python_calamine
 from books import line_rows, make_book
 
-from sheetfit.fit.strd import lre, read_strd, strd_files
+from reference.strd import lre, read_strd, strd_files
 from sheetfit.owned import sheet_title
 from sheetfit.refresh import refresh
 

@@ -2,7 +2,7 @@
 
 The extended properties list part titles in groups whose labels are localised
 ("Worksheets", "Arbeitsblätter"); the worksheet group is found by the titles
-it holds, not by its label (ENGINE_NOTES.md, grafting item 9).
+it holds, not by its label (docs/engine-facts.md, P9).
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Which parts go with the owned sheets, and what calcChain keeps (ENGINE_NOTES.md items 2, 10).
+"""Which parts go with the owned sheets, and what calcChain keeps (docs/engine-facts.md P2, P10).
 
 A part goes when it is reachable through an owned sheet's relationships and
 no part that stays refers to it; a removed part's own rels part goes with it.

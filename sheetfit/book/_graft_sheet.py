@@ -5,7 +5,7 @@ string cells become inline-string cells so the user's sharedStrings part is
 never touched; style indices (``c@s``, ``row@s``, ``col@style``,
 ``cfRule@dxfId``) are remapped onto the user's styles part; ``tabSelected`` is
 dropped so the user's active tab stays the only selected one
-(ENGINE_NOTES.md, grafting item 5).
+(docs/engine-facts.md, P5).
 """
 
 from __future__ import annotations

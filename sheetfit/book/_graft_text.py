@@ -1,7 +1,7 @@
 """Byte-minimal edits of a shared XML part: locate elements in its text, splice at offsets.
 
 Re-serialising a user's part with an XML library reorders namespace
-declarations and turns UTF-16 into UTF-8 (ENGINE_NOTES.md, grafting item 13),
+declarations and turns UTF-16 into UTF-8 (docs/engine-facts.md, P13),
 so shared parts are edited as text: elements are located by a scanner that
 ignores comments, CDATA and processing instructions, and edits replace exact
 spans. Everything outside the spans keeps its characters, and the part keeps

@@ -1,4 +1,4 @@
-"""Splice edits into the workbook part, its rels and the content types (ENGINE_NOTES.md 2, 6, 7).
+"""Splice edits into the workbook part, its rels and the content types (docs/engine-facts.md P2, P6, P7).
 
 Each function takes the part's bytes and returns new bytes in which only the
 owned entries were removed or added; everything else keeps its characters.

@@ -1,7 +1,7 @@
 """Merge the rendered book's cell formats into the user's styles part (append with dedupe).
 
 A rendered sheet's style indices point into the rendered styles part; they are
-remapped onto the user's (ENGINE_NOTES.md, grafting items 5 and 8). Fonts,
+remapped onto the user's (docs/engine-facts.md, P5 and P8). Fonts,
 fills, borders, number formats, cell formats and differential formats are
 appended only when the user's part has no equal entry, so a second graft
 adds nothing. Entries are compared by a canonical form that ignores

@@ -4,8 +4,8 @@ The write-back of a refresh: previously owned sheets (found by their marker
 name) are removed with everything only they use, then the rendered sheets are
 added at the end of the book. Shared parts are edited by splicing text so they
 only gain or lose owned entries; every other zip entry keeps its bytes. The
-result replaces the target atomically (ENGINE_NOTES.md, "Grafting owned
-sheets into a user's package").
+result replaces the target atomically (docs/engine-facts.md,
+section P).
 """
 
 from __future__ import annotations

@@ -1,8 +1,8 @@
 """Read-only view of a user's xlsx package: sheets, defined names, date system.
 
 Nothing here writes. The user's XML is parsed with defusedxml (no entity
-expansion, no network); parts may be UTF-8 or UTF-16 (ENGINE_NOTES.md,
-grafting item 1).
+expansion, no network); parts may be UTF-8 or UTF-16 (docs/engine-facts.md,
+P1).
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """Read cell values of a user's workbook fast (cached values of formula cells included).
 
 python-calamine reads the values (about 8x faster than openpyxl on 1M cells,
-ENGINE_NOTES.md) but shows error cells as empty strings, so error cells are found
+docs/engine-facts.md R1) but shows error cells as empty strings, so error cells are found
 separately with one regular-expression pass over the sheet's XML.
 """
 

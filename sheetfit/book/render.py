@@ -19,7 +19,7 @@ __all__ = ["render"]
 
 
 #: Functions with dotted names need the _xlfn. prefix in the file, or engines show #NAME?
-#: (ENGINE_NOTES.md). Only functions sheet plans may use are listed.
+#: (docs/engine-facts.md, F1). Only functions sheet plans may use are listed.
 _DOTTED = re.compile(
     r"(?<![\w.])((?:STDEV|VAR)\.[PS]|T\.(?:DIST(?:\.2T|\.RT)?|INV(?:\.2T)?)|F\.(?:DIST|INV)(?:\.RT)?"
     r"|NORM\.S?\.?(?:DIST|INV)|CHISQ\.(?:DIST|INV)(?:\.RT)?|PERCENTILE\.(?:INC|EXC)"

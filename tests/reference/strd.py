@@ -1,10 +1,11 @@
 """Reader for the NIST StRD linear least-squares files, and a table of how closely we match them.
 
-The files are NIST's originals (CRLF, certified values from line 31, data from
+Development tooling, not part of the shipped package: the tests use the reader, and
+``python tests/reference/strd.py [DIR]`` prints the accuracy table quoted in README.md.
+The files (in ``tests/reference/strd/``, sources in ``tests/reference/README.md``) are NIST's originals (CRLF, certified values from line 31, data from
 line 61, Fortran exponents such as ``0.4E-03``, trailing dots such as ``557.``,
 the word ``Infinity``). :func:`read_strd` turns one file into float64 arrays, the
-model it certifies and the certified values; ``python -m sheetfit.fit.strd [DIR]``
-fits every file in DIR and prints the log relative error (LRE) of each certified
+model it certifies and the certified values; the command fits every file in DIR and prints the log relative error (LRE) of each certified
 quantity.
 """
 
@@ -26,7 +27,7 @@ __all__ = [
     "lre",
     "main",
     "read_strd",
-    "reference_dir",
+    "REFERENCE_DIR",
     "strd_dir",
     "strd_files",
 ]
@@ -129,26 +130,15 @@ def read_strd(path: str | os.PathLike[str]) -> StrdCase:
     )
 
 
-def reference_dir(start: str | os.PathLike[str] | None = None) -> Path | None:
-    """Find the shared reference folder: ``<repo>/../shared/reference``, searched upward."""
-    here = Path(start) if start is not None else Path.cwd()
-    candidates = [here, *here.resolve().parents, *Path(__file__).resolve().parents]
-    for base in candidates:
-        ref = base.parent / "shared" / "reference"
-        if (base / "pyproject.toml").exists() and ref.is_dir():
-            return ref
-    return None
+#: This folder: the reference data the tests check against live beside this reader.
+REFERENCE_DIR = Path(__file__).resolve().parent
 
 
-def strd_dir(start: str | os.PathLike[str] | None = None) -> Path | None:
-    """Folder of the StRD ``*.dat`` files: ``$SHEETFIT_STRD_DIR`` or the shared reference."""
+def strd_dir() -> Path | None:
+    """Folder of the StRD ``*.dat`` files: ``$SHEETFIT_STRD_DIR`` or ``tests/reference/strd``."""
     env = os.environ.get(STRD_ENV)
-    if env:
-        return Path(env) if Path(env).is_dir() else None
-    ref = reference_dir(start)
-    if ref is None or not (ref / "strd").is_dir():
-        return None
-    return ref / "strd"
+    folder = Path(env) if env else REFERENCE_DIR / "strd"
+    return folder if folder.is_dir() else None
 
 
 def strd_files(directory: str | os.PathLike[str] | None = None) -> list[Path]:
@@ -189,12 +179,12 @@ def case_lre(case: StrdCase) -> dict[str, float]:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Print the LRE table for every StRD file in DIR (default: the shared reference folder)."""
+    """Print the LRE table for every StRD file in DIR (default: tests/reference/strd)."""
     args = sys.argv[1:] if argv is None else argv
     folder = Path(args[0]) if args else strd_dir()
     files = strd_files(folder) if folder is not None else []
     if not files:
-        where = folder if folder is not None else "../shared/reference/strd"
+        where = folder if folder is not None else REFERENCE_DIR / "strd"
         print(
             f"no StRD files (*.dat) found in {where}; pass the folder as an argument "
             f"or set {STRD_ENV}",
