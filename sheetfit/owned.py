@@ -16,7 +16,6 @@ __all__ = [
     "OUTPUT_ROLES",
     "PREFIX",
     "SHEET_KINDS",
-    "quote_sheet",
     "sheet_title",
     "split_name",
 ]
@@ -65,12 +64,3 @@ def split_name(name: str) -> tuple[str, str] | None:
     if not m:
         return None
     return m.group("tag"), m.group("role").lower()
-
-
-def quote_sheet(title: str) -> str:
-    """Sheet title as it appears in a formula reference (quoted when needed)."""
-    if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", title) and not re.fullmatch(
-        r"[A-Za-z]{1,3}[0-9]+", title
-    ):
-        return title
-    return "'" + title.replace("'", "''") + "'"

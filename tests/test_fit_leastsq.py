@@ -7,11 +7,11 @@ import math
 
 import numpy as np
 import pytest
+from reference.strd import REFERENCE_DIR
 
 import sheetfit.fit
 from sheetfit.errors import CollinearError, DataError, SettingError
 from sheetfit.fit import LeastSquares, LeastSquaresResult, leastsq
-from reference.strd import REFERENCE_DIR
 
 
 def _rng() -> np.random.Generator:

@@ -7,9 +7,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from reference.strd import StrdCase, lre, main, read_strd, strd_dir
 
 from sheetfit.fit import LeastSquares, leastsq
-from reference.strd import StrdCase, lre, main, read_strd, strd_dir
 
 # (observations, parameters) as printed in each file's header (NIST StRD, lines 15-22).
 DATASETS = {

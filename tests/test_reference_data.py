@@ -9,7 +9,7 @@ import pytest
 from reference.strd import REFERENCE_DIR
 
 _LISTED = re.findall(r"^([0-9a-f]{64})  (\S+)$",
-                     (REFERENCE_DIR / "README.md").read_text(encoding="utf-8"), re.M)
+                     (REFERENCE_DIR / "README.md").read_text(encoding="utf-8"), re.MULTILINE)
 
 
 def test_every_reference_file_is_listed() -> None:

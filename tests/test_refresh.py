@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 import python_calamine
 from books import line_rows, make_book
-
 from reference.strd import lre, read_strd, strd_files
+
 from sheetfit.owned import sheet_title
 from sheetfit.refresh import refresh
 

@@ -11,9 +11,10 @@ import re
 from collections.abc import Iterable, Sequence
 from typing import Protocol
 
+from sheetfit.a1 import quote_sheet
 from sheetfit.book import _graft_text as tx
 from sheetfit.book.package import NS_REL, DefinedName, Package, SheetEntry
-from sheetfit.owned import MARKER_NAME, OUTPUT_ROLES, quote_sheet, split_name
+from sheetfit.owned import MARKER_NAME, OUTPUT_ROLES, split_name
 
 __all__ = [
     "edit_content_types",

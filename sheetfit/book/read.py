@@ -16,6 +16,7 @@ from typing import Any
 
 import python_calamine
 
+from ..a1 import col_index
 from ..errors import Context, PackageError
 
 __all__ = ["BLANK", "ERROR", "NUMBER", "OTHER", "TEXT", "BookValues", "SheetValues", "Value"]
@@ -38,13 +39,6 @@ class Value:
     kind: str
     number: float = float("nan")
     text: str = ""
-
-
-def _col_number(letters: bytes) -> int:
-    n = 0
-    for ch in letters:
-        n = n * 26 + ch - 64
-    return n
 
 
 @dataclass
@@ -133,7 +127,7 @@ class BookValues:
                 f"cannot read the values of this sheet ({exc})", Context(str(self.path), sheet=name)
             ) from exc
         errors = {
-            (int(m.group(2)), _col_number(m.group(1))): (m.group(3) or b"#N/A").decode()
+            (int(m.group(2)), col_index(m.group(1))): (m.group(3) or b"#N/A").decode()
             for m in _ERROR_CELL.finditer(xml)
         }
         return SheetValues(name, rows, errors, self.date1904)

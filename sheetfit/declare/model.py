@@ -13,14 +13,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..a1 import cell_ref, col_letter, quote_sheet
 from ..book.graft import is_ours
 from ..book.package import DefinedName, Package
 from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
 from ..errors import Context, DataError, DeclarationError, SettingError
 from ..labels import label_text, labels_equal
-from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, quote_sheet, split_name
+from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, split_name
 from ..settings import Settings, parse_settings
-from .refs import Area, RefError, cell_ref, col_letter, parse_areas
+from .refs import Area, RefError, parse_areas
 
 __all__ = ["Column", "LeftOut", "ModelData", "NewRows", "describe_value", "find_models"]
 

@@ -5,11 +5,9 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-__all__ = ["MAX_ROW", "Area", "RefError", "cell_ref", "col_index", "col_letter", "parse_areas"]
+from ..a1 import MAX_COL, MAX_ROW, cell_ref, col_index, col_letter
 
-#: Last row of an xlsx sheet; a whole-column reference ends here until trimmed.
-MAX_ROW = 1_048_576
-MAX_COL = 16_384
+__all__ = ["Area", "RefError", "parse_areas"]
 
 
 class RefError(ValueError):
@@ -48,28 +46,6 @@ class Area:
             return f"{col_letter(self.col1)}:{col_letter(self.col2)}"
         a, b = cell_ref(self.row1, self.col1), cell_ref(self.row2, self.col2)
         return a if a == b else f"{a}:{b}"
-
-
-def col_letter(col: int) -> str:
-    """Column letters for a 1-based column number (1 -> A, 27 -> AA)."""
-    out = ""
-    while col:
-        col, rem = divmod(col - 1, 26)
-        out = chr(65 + rem) + out
-    return out
-
-
-def col_index(letters: str) -> int:
-    """1-based column number for column letters."""
-    n = 0
-    for ch in letters.upper():
-        n = n * 26 + ord(ch) - 64
-    return n
-
-
-def cell_ref(row: int, col: int) -> str:
-    """A1 address of a 1-based row and column, e.g. (5, 3) -> C5."""
-    return f"{col_letter(col)}{row}"
 
 
 _SHEET = r"(?:'(?P<qs>(?:[^']|'')+)'|(?P<ps>[^'!,()\s]+))"

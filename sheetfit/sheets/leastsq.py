@@ -12,11 +12,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..a1 import absolute
 from ..declare.model import ModelData
 from ..fit.leastsq import LeastSquaresResult
 from ..owned import sheet_title
 from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
-from .plan import SheetPlan, absolute
+from .plan import SheetPlan
 
 __all__ = ["LeastSquaresSheets", "plan_least_squares"]
 

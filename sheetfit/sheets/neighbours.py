@@ -14,12 +14,12 @@ from typing import Any
 
 import numpy as np
 
+from ..a1 import absolute, col_letter
 from ..declare.model import ModelData
-from ..declare.refs import col_letter
 from ..labels import label_text, labels_equal
 from ..owned import sheet_title
 from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
-from .plan import SheetPlan, absolute
+from .plan import SheetPlan
 
 __all__ = ["TIE_RULE", "NeighbourSheets", "plan_neighbours"]
 

@@ -9,10 +9,9 @@ from __future__ import annotations
 import textwrap
 from dataclasses import dataclass, field
 
-from ..declare.refs import cell_ref
-from ..owned import quote_sheet
+from ..a1 import absolute, area, cell_ref, quote_sheet
 
-__all__ = ["STYLES", "BookPlan", "Cell", "SheetPlan", "absolute", "area"]
+__all__ = ["STYLES", "BookPlan", "Cell", "SheetPlan"]
 
 Scalar = float | int | str | bool | None
 
@@ -97,16 +96,3 @@ class BookPlan:
 
     sheets: list[SheetPlan]
     names: list[tuple[str, str]]
-
-
-def absolute(row: int, col: int) -> str:
-    """Absolute A1 address, e.g. (4, 1) -> $B$5."""
-    ref = cell_ref(row + 1, col + 1)
-    letters = ref.rstrip("0123456789")
-    return f"${letters}${ref[len(letters):]}"
-
-
-def area(title: str, row1: int, col1: int, row2: int, col2: int) -> str:
-    """Absolute reference to a rectangle of a sheet, e.g. 'sf a coef'!$B$5:$B$7."""
-    a, b = absolute(row1, col1), absolute(row2, col2)
-    return f"{quote_sheet(title)}!{a}" + ("" if a == b else f":{b}")

@@ -22,12 +22,12 @@ from pathlib import Path
 import numpy as np
 
 __all__ = [
+    "REFERENCE_DIR",
     "StrdCase",
     "case_lre",
     "lre",
     "main",
     "read_strd",
-    "REFERENCE_DIR",
     "strd_dir",
     "strd_files",
 ]
