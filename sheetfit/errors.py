@@ -52,10 +52,14 @@ class Context:
 class SheetfitError(Exception):
     """Base of every refusal: the input cannot be used as it is."""
 
-    def __init__(self, message: str, context: Context | None = None, hint: str | None = None):
+    def __init__(self, message: str, context: Context | None = None, hint: str | None = None,
+                 *, column: int | None = None):
         self.message = message
         self.context = context or Context()
         self.hint = hint
+        #: For a refusal of the numbers themselves: which attribute column (0-based) it
+        #: concerns, so the layer that knows the cells can name them.
+        self.column = column
         super().__init__(self.render())
 
     def render(self) -> str:
@@ -65,14 +69,18 @@ class SheetfitError(Exception):
             text += f" — {self.hint}"
         return text
 
+    def with_context(self, context: Context) -> SheetfitError:
+        """The same refusal (same class, message and hint) at another place."""
+        new = type(self).__new__(type(self))
+        SheetfitError.__init__(new, self.message, context, self.hint, column=self.column)
+        return new
+
     def with_file(self, file: str) -> SheetfitError:
         """Return the same refusal with the file name filled in (if missing)."""
         if self.context.file:
             return self
-        ctx = Context(file, self.context.name, self.context.sheet, self.context.cell)
-        new = type(self).__new__(type(self))
-        SheetfitError.__init__(new, self.message, ctx, self.hint)
-        return new
+        c = self.context
+        return self.with_context(Context(file, c.name, c.sheet, c.cell))
 
 
 class DeclarationError(SheetfitError, LookupError):

@@ -90,15 +90,15 @@ def _common_cautions(model: ModelData) -> list[str]:
 
 
 def _least_squares(model: ModelData, res: Any) -> tuple[list[str], list[str]]:
-    r2 = "R² (uncentred)" if res.r2_uncentred else "R²"
-    coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms, res.coef_))
-    figures = [coefs, f"{r2} {float(res.r2):.6f}, RMSE {float(res.rmse):.6g}"]
+    r2 = "R² (uncentred)" if res.r2_uncentred_ else "R²"
+    coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms_, res.coef_))
+    figures = [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
     cautions = []
-    if res.r2_uncentred:
+    if res.r2_uncentred_:
         cautions.append("no intercept: R² is uncentred (about zero) and reads higher than a "
                         "centred R²")
-    if res.df_resid < 10:
-        cautions.append(f"only {res.df_resid} residual degrees of freedom: R² and the residual "
+    if res.df_resid_ < 10:
+        cautions.append(f"only {res.df_resid_} residual degrees of freedom: R² and the residual "
                         "SD are unstable")
     return figures, cautions
 

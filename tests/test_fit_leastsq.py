@@ -38,11 +38,11 @@ def test_constructor_only_stores_settings() -> None:
 def test_refuses_constant_column_with_intercept() -> None:
     """A constant attribute cannot sit beside an intercept; the message names it."""
     X = np.column_stack([np.arange(6.0), np.full(6, 4.0)])
-    with pytest.raises(DataError, match=r"attribute stops is constant \(every row is 4\)"):
+    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(4\) in every row"):
         LeastSquares().fit(X, np.arange(6.0) ** 2, names=["km", "stops"])
     # Without an intercept the same column is an ordinary term.
     res = LeastSquares(intercept=False).fit(X, np.arange(6.0) ** 2, names=["km", "stops"])
-    assert res.terms == ["km", "stops"]
+    assert res.terms_ == ["km", "stops"]
 
 
 def test_refuses_collinear_attributes() -> None:
@@ -75,7 +75,7 @@ def test_refuses_numerically_collinear_attributes() -> None:
 def test_refuses_too_few_rows() -> None:
     """Fewer rows than parameters is refused, saying how many are needed."""
     X = np.array([[1.0, 2.0], [2.0, 1.0]])
-    with pytest.raises(DataError, match=r"2 rows of data but the model has 3 parameters"):
+    with pytest.raises(DataError, match=r"2 usable rows but the model has 3 parameters"):
         LeastSquares().fit(X, np.array([1.0, 2.0]))
 
 
@@ -110,11 +110,11 @@ def test_polynomial_terms_and_design() -> None:
     x = np.linspace(-1.0, 2.0, 9)
     y = 1.0 - 2.0 * x + 0.5 * x**3
     res = LeastSquares(degree=3).fit(x.reshape(-1, 1), y, names=["temp"])
-    assert res.terms == ["intercept", "temp", "temp^2", "temp^3"]
-    np.testing.assert_array_equal(res.design, np.column_stack([np.ones(9), x, x**2, x**3]))
+    assert res.terms_ == ["intercept", "temp", "temp^2", "temp^3"]
+    np.testing.assert_array_equal(res.design_, np.column_stack([np.ones(9), x, x**2, x**3]))
     # Closed form: y is an exact cubic, so the coefficients are its own (to rounding).
     np.testing.assert_allclose(res.coef_, [1.0, -2.0, 0.0, 0.5], rtol=0, atol=1e-14)
-    assert (res.n, res.p, res.df_resid) == (9, 4, 5)
+    assert (res.n_, res.p_, res.df_resid_) == (9, 4, 5)
 
 
 def test_predict_uses_fitted_coefficients() -> None:
@@ -139,18 +139,18 @@ def test_residuals_orthogonal_to_design() -> None:
     y = X @ np.array([1.0, 2.0, 3.0]) + rng.normal(size=50)
     res = LeastSquares().fit(X, y)
     # Each residual is rounded once (relative 1.1e-16), so Xᵀr is zero up to ~n·eps·|X||r|.
-    bound = 50 * 2.3e-16 * np.abs(res.design).T @ np.abs(res.resid)
-    assert np.all(np.abs(res.design.T @ res.resid) <= bound + 1e-300)
-    assert res.ssr == pytest.approx(float(np.sum(res.resid**2)), rel=1e-14)
-    assert res.rmse == pytest.approx(math.sqrt(res.ssr / 50), rel=1e-15)
+    bound = 50 * 2.3e-16 * np.abs(res.design_).T @ np.abs(res.resid_)
+    assert np.all(np.abs(res.design_.T @ res.resid_) <= bound + 1e-300)
+    assert res.ssr_ == pytest.approx(float(np.sum(res.resid_**2)), rel=1e-14)
+    assert res.rmse_ == pytest.approx(math.sqrt(res.ssr_ / 50), rel=1e-15)
 
 
 def test_as_many_rows_as_parameters() -> None:
     """n == p fits exactly; the residual SD and standard errors are undefined (nan)."""
     res = LeastSquares().fit(np.array([1.0, 3.0]), np.array([2.0, 8.0]))
     np.testing.assert_allclose(res.coef_, [-1.0, 3.0], rtol=0, atol=1e-15)
-    assert math.isnan(res.resid_sd)
-    assert np.all(np.isnan(res.coef_se))
+    assert math.isnan(res.resid_sd_)
+    assert np.all(np.isnan(res.coef_se_))
 
 
 def test_float_path_agrees_with_exact_path(monkeypatch: pytest.MonkeyPatch) -> None:
@@ -161,19 +161,19 @@ def test_float_path_agrees_with_exact_path(monkeypatch: pytest.MonkeyPatch) -> N
     exact = LeastSquares().fit(X, y)
     monkeypatch.setattr(leastsq, "EXACT_LIMIT", 0)
     floated = LeastSquares().fit(X, y)
-    assert (exact.solver, floated.solver) == ("exact", "refined")
+    assert (exact.solver_, floated.solver_) == ("exact", "refined")
     # Both are accurate to a few units of float64 rounding; 1e-14 allows ~45 ulps.
     np.testing.assert_allclose(floated.coef_, exact.coef_, rtol=1e-14)
-    np.testing.assert_allclose(floated.coef_se, exact.coef_se, rtol=1e-14)
-    assert floated.r2 == pytest.approx(exact.r2, rel=1e-14)
-    assert floated.ssr == pytest.approx(exact.ssr, rel=1e-14)
+    np.testing.assert_allclose(floated.coef_se_, exact.coef_se_, rtol=1e-14)
+    assert floated.r2_ == pytest.approx(exact.r2_, rel=1e-14)
+    assert floated.ssr_ == pytest.approx(exact.ssr_, rel=1e-14)
 
 
 def test_condition_number_of_scaled_design() -> None:
     """Orthogonal unit columns have condition number 1; scaling a column does not change it."""
     X = np.array([[1.0, 0.0], [0.0, 1.0], [-1.0, 0.0], [0.0, -1.0]]) * np.array([1.0, 1e6])
     res = LeastSquares(intercept=False).fit(X, np.array([1.0, 2.0, 3.0, 4.0]))
-    assert res.condition_number == pytest.approx(1.0, rel=1e-12)
+    assert res.condition_number_ == pytest.approx(1.0, rel=1e-12)
 
 
 def _anscombe() -> dict[str, tuple[np.ndarray, np.ndarray]]:
@@ -201,5 +201,5 @@ def test_anscombe_quartet(which: str) -> None:
     res = LeastSquares().fit(x, y, names=["x"])
     assert res.coef_[0] == pytest.approx(3.00, abs=0.005)
     assert res.coef_[1] == pytest.approx(0.500, abs=0.0005)
-    assert res.r2 == pytest.approx(0.816**2, abs=0.001)
+    assert res.r2_ == pytest.approx(0.816**2, abs=0.001)
     assert isinstance(res, LeastSquaresResult)

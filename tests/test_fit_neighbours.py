@@ -13,6 +13,7 @@ from sklearn.preprocessing import StandardScaler
 
 from sheetfit.errors import DataError, SettingError
 from sheetfit.fit import neighbours as nb
+from sheetfit.fit._sums import prefix_fsums
 from sheetfit.fit.neighbours import (
     NeighbourMean,
     NeighbourVote,
@@ -105,7 +106,7 @@ def test_standard_units_off_is_identity() -> None:
 def test_constant_attribute_refused_in_standard_units() -> None:
     """A constant attribute has no standard units; the message names it."""
     X = np.array([[1.0, 5.0], [2.0, 5.0], [7.0, 5.0]])
-    with pytest.raises(DataError, match=r"attribute 'stops' has the same value in every row"):
+    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(5\) in every row"):
         standard_units(X, names=["km", "stops"])
     with pytest.raises(DataError, match=r"attribute 'stops' .* so it has no standard units"):
         NeighbourMean(k=1).fit(X, np.arange(3.0), names=["km", "stops"])
@@ -418,12 +419,12 @@ def test_refuses_mixed_label_types() -> None:
 def test_refuses_non_finite_values() -> None:
     """Attributes and (for the mean) the response must be finite numbers."""
     X = np.array([[0.0, 1.0], [1.0, np.nan], [2.0, 0.0]])
-    with pytest.raises(DataError, match=r"row 2: attribute 2 is not a finite number"):
+    with pytest.raises(DataError, match=r"row 2: attribute x2 is not a finite number"):
         NeighbourMean(k=1).fit(X, np.arange(3.0))
     with pytest.raises(DataError, match=r"row 3: the response is not a finite number"):
         NeighbourMean(k=1).fit(np.arange(3.0), np.array([1.0, 2.0, np.inf]))
     res = NeighbourMean(k=1).fit(np.arange(3.0), np.arange(3.0))
-    with pytest.raises(DataError, match=r"new row 1: attribute 1 is not a finite number"):
+    with pytest.raises(DataError, match=r"new row 1: attribute x1 is not a finite number"):
         res.predict(np.array([np.nan]))
     with pytest.raises(DataError, match=r"class 'c' is not one of the classes"):
         NeighbourVote(k=1).fit(np.arange(4.0), ["a", "b"] * 2).share("c")
@@ -448,7 +449,7 @@ def test_row_sums_are_correctly_rounded(rows: list[list[float]]) -> None:
     """The vectorised row sums equal math.fsum (correct rounding), cancellation included."""
     A = np.array(rows)
     A[:, 4] = -A[:, 0]  # force heavy cancellation in every row
-    got = nb._prefix_fsums(A, list(range(1, 9)))
+    got = prefix_fsums(A, list(range(1, 9)))
     for k, sums in got.items():
         assert sums.tolist() == [math.fsum(r[:k]) for r in A.tolist()]
 

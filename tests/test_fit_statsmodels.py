@@ -47,18 +47,18 @@ def test_matches_statsmodels(case: str) -> None:
     ours = LeastSquares(intercept=intercept, degree=degree).fit(X, y)
     ref = sm.OLS(y, _sm_design(X, intercept, degree)).fit()
 
-    assert (ours.solver == "refined") == case.endswith("float path")
+    assert (ours.solver_ == "refined") == case.endswith("float path")
     np.testing.assert_allclose(ours.coef_, ref.params, rtol=RTOL)
-    np.testing.assert_allclose(ours.coef_se, ref.bse, rtol=RTOL)
-    assert ours.resid_sd == pytest.approx(np.sqrt(ref.scale), rel=RTOL)
-    assert ours.ssr == pytest.approx(ref.ssr, rel=RTOL)
+    np.testing.assert_allclose(ours.coef_se_, ref.bse, rtol=RTOL)
+    assert ours.resid_sd_ == pytest.approx(np.sqrt(ref.scale), rel=RTOL)
+    assert ours.ssr_ == pytest.approx(ref.ssr, rel=RTOL)
     # statsmodels takes R² about zero when the design has no constant column; so do we.
     assert ref.k_constant == int(intercept)
-    assert ours.r2_uncentred is (not intercept)
-    assert ours.r2 == pytest.approx(ref.rsquared, rel=RTOL)
+    assert ours.r2_uncentred_ is (not intercept)
+    assert ours.r2_ == pytest.approx(ref.rsquared, rel=RTOL)
     scale = np.max(np.abs(y))
-    np.testing.assert_allclose(ours.fitted, ref.fittedvalues, rtol=0, atol=RTOL * scale)
-    np.testing.assert_allclose(ours.resid, ref.resid, rtol=0, atol=RTOL * scale)
+    np.testing.assert_allclose(ours.fitted_, ref.fittedvalues, rtol=0, atol=RTOL * scale)
+    np.testing.assert_allclose(ours.resid_, ref.resid, rtol=0, atol=RTOL * scale)
 
     X_new, _ = _data(7, attrs, seed=99)
     expected = ref.predict(_sm_design(X_new, intercept, degree))
@@ -69,5 +69,5 @@ def test_uncentred_r2_differs_from_centred() -> None:
     """Without intercept R² is about zero: 1 − ssr/Σy², which is not 1 − ssr/Σ(y−ȳ)²."""
     X, y = _data(30, 2, seed=5)
     res = LeastSquares(intercept=False).fit(X, y)
-    assert res.r2 == pytest.approx(1 - res.ssr / np.sum(y**2), rel=1e-12)
-    assert abs(res.r2 - (1 - res.ssr / np.sum((y - y.mean()) ** 2))) > 1e-3
+    assert res.r2_ == pytest.approx(1 - res.ssr_ / np.sum(y**2), rel=1e-12)
+    assert abs(res.r2_ - (1 - res.ssr_ / np.sum((y - y.mean()) ** 2))) > 1e-3

@@ -83,18 +83,18 @@ def test_certified_values(name: str, path: str, monkeypatch: pytest.MonkeyPatch)
     res = LeastSquares(intercept=case.intercept, degree=case.degree).fit(
         case.X, case.y, names=list(case.columns)
     )
-    assert res.solver == ("refined" if path == "float" else "exact")
-    assert res.p == DATASETS[name][1]
-    assert res.intercept is case.intercept
-    assert res.r2_uncentred is (not case.intercept)
-    for term, est, cert in zip(res.terms, res.coef_, case.coef, strict=True):
+    assert res.solver_ == ("refined" if path == "float" else "exact")
+    assert res.p_ == DATASETS[name][1]
+    assert res.intercept_ is case.intercept
+    assert res.r2_uncentred_ is (not case.intercept)
+    for term, est, cert in zip(res.terms_, res.coef_, case.coef, strict=True):
         _check(float(est), float(cert), f"{name} coefficient {term}")
-    for term, est, cert in zip(res.terms, res.coef_se, case.coef_sd, strict=True):
+    for term, est, cert in zip(res.terms_, res.coef_se_, case.coef_sd, strict=True):
         _check(float(est), float(cert), f"{name} standard error of {term}")
-    _check(res.resid_sd, case.resid_sd, f"{name} residual SD")
-    _check(res.r2, case.r2, f"{name} R²")
-    _check(res.ssr, case.ss_residual, f"{name} residual sum of squares")
-    assert res.df_resid == case.df_residual
+    _check(res.resid_sd_, case.resid_sd, f"{name} residual SD")
+    _check(res.r2_, case.r2, f"{name} R²")
+    _check(res.ssr_, case.ss_residual, f"{name} residual sum of squares")
+    assert res.df_resid_ == case.df_residual
 
 
 def test_lre_closed_forms() -> None:

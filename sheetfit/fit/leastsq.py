@@ -29,7 +29,9 @@ from functools import cached_property
 
 import numpy as np
 
-from sheetfit.errors import CollinearError, DataError, SettingError
+from sheetfit.errors import CollinearError
+from sheetfit.fit import checks
+from sheetfit.fit._arrays import readonly
 from sheetfit.fit._dd import (
     dd_dot,
     dd_gram,
@@ -41,15 +43,13 @@ from sheetfit.fit._dd import (
 )
 from sheetfit.fit._exact import ExactColumn, exact_inverse, exact_solve, scaled_integers
 
-__all__ = ["DEGREE_RANGE", "EXACT_LIMIT", "RANK_TOL", "LeastSquares", "LeastSquaresResult"]
+__all__ = ["EXACT_LIMIT", "RANK_TOL", "LeastSquares", "LeastSquaresResult"]
 
 #: Problems with rows × parameters up to this are solved in exact rational arithmetic.
 EXACT_LIMIT = 5000
 #: A scaled design whose smallest/largest singular value ratio is at or below this is
 #: treated as rank deficient (about 450 float64 epsilons: the columns cannot be told apart).
 RANK_TOL = 1e-13
-#: Allowed polynomial degrees (inclusive).
-DEGREE_RANGE = (1, 10)
 _MAX_REFINE = 8
 _EPS = float(np.finfo(np.float64).eps)
 
@@ -61,46 +61,21 @@ class LeastSquares:
         self.intercept = intercept
         self.degree = degree
 
-    def _check_settings(self) -> None:
-        if not isinstance(self.intercept, bool | np.bool_):
-            raise SettingError(
-                f"setting intercept: allowed true or false, given {self.intercept!r}"
-            )
-        lo, hi = DEGREE_RANGE
-        deg = self.degree
-        if isinstance(deg, bool) or not isinstance(deg, int | np.integer) or not lo <= deg <= hi:
-            raise SettingError(
-                f"setting degree: allowed a whole number from {lo} to {hi}, given {deg!r}"
-            )
-
     def fit(
         self, X: np.ndarray, y: np.ndarray, names: Sequence[str] | None = None
     ) -> LeastSquaresResult:
         """Fit y on the attribute columns of X and return the fitted result."""
-        self._check_settings()
-        intercept, degree = bool(self.intercept), int(self.degree)
-        X, y, names = _check_arrays(X, y, names)
-        n, m = X.shape
-        if degree > 1 and m != 1:
-            raise DataError(
-                f"degree {degree} needs exactly one attribute, given {m} ({', '.join(names)})",
-                hint="use degree 1 with several attributes, or one attribute for a polynomial",
-            )
+        intercept = checks.check_flag("intercept", self.intercept)
+        degree = checks.check_degree(self.degree)
+        X, names = checks.as_table(X, names)
+        y = checks.response(y, X.shape[0])
+        if degree > 1:
+            checks.one_attribute(X, names, f"degree {degree}")
         terms = _term_names(names, intercept, degree)
-        p = len(terms)
-        if n < p:
-            raise DataError(
-                f"{n} rows of data but the model has {p} parameters ({', '.join(terms)})",
-                hint=f"supply at least {p} rows or fewer terms",
-            )
+        checks.enough_rows_for_terms(X.shape[0], terms)
         if intercept:
-            for j, name in enumerate(names):
-                if n and np.all(X[:, j] == X[0, j]):
-                    raise DataError(
-                        f"attribute {name} is constant (every row is {X[0, j]:g}); "
-                        "with an intercept it cannot be estimated",
-                        hint="remove it, or fit without intercept",
-                    )
+            checks.not_constant(X, names, "its effect cannot be told apart from the intercept",
+                                hint="drop it from x, or fit without intercept")
         design = _design(X, intercept, degree)
         sol = _solve(X, y, design, intercept, degree, terms, is_poly=degree > 1)
         return LeastSquaresResult(
@@ -131,11 +106,6 @@ class _Solution:
     solver: str
 
 
-def _readonly(a: np.ndarray) -> np.ndarray:
-    a.setflags(write=False)
-    return a
-
-
 class LeastSquaresResult:
     """A fitted least-squares model: coefficients, and statistics computed on first use."""
 
@@ -151,160 +121,114 @@ class LeastSquaresResult:
         y: np.ndarray,
         solution: _Solution,
     ) -> None:
-        self.coef_ = _readonly(np.array(coef, dtype=np.float64))
-        self.terms = list(terms)
-        self.names = list(names)
-        self.intercept = intercept
-        self.degree = degree
-        self.design = _readonly(design)
-        self.y = _readonly(y)
+        self.coef_ = readonly(np.array(coef, dtype=np.float64))
+        self.terms_ = list(terms)
+        self.names_ = list(names)
+        self.intercept_ = intercept
+        self.degree_ = degree
+        self.design_ = readonly(design)
+        self.y_ = readonly(y)
         self._sol = solution
 
     def __repr__(self) -> str:
-        coefs = ", ".join(f"{t}={c:.6g}" for t, c in zip(self.terms, self.coef_, strict=True))
-        return f"LeastSquaresResult(n={self.n}, {coefs}, r2={self.r2:.6g})"
+        coefs = ", ".join(f"{t}={c:.6g}" for t, c in zip(self.terms_, self.coef_, strict=True))
+        return f"LeastSquaresResult(n={self.n_}, {coefs}, r2={self.r2_:.6g})"
 
     @cached_property
-    def n(self) -> int:
+    def n_(self) -> int:
         """Number of rows fitted."""
-        return int(self.design.shape[0])
+        return int(self.design_.shape[0])
 
     @cached_property
-    def p(self) -> int:
+    def p_(self) -> int:
         """Number of parameters (intercept included)."""
-        return int(self.design.shape[1])
+        return int(self.design_.shape[1])
 
     @cached_property
-    def df_resid(self) -> int:
+    def df_resid_(self) -> int:
         """Residual degrees of freedom, n − p."""
-        return self.n - self.p
+        return self.n_ - self.p_
 
     @cached_property
-    def fitted(self) -> np.ndarray:
+    def fitted_(self) -> np.ndarray:
         """Fitted values Xβ (each accurate to float64 rounding)."""
-        return _readonly(self._sol.fitted)
+        return readonly(self._sol.fitted)
 
     @cached_property
-    def resid(self) -> np.ndarray:
+    def resid_(self) -> np.ndarray:
         """Residuals y − Xβ (each accurate to float64 rounding)."""
-        return _readonly(self._sol.resid)
+        return readonly(self._sol.resid)
 
     @cached_property
-    def ssr(self) -> float:
+    def ssr_(self) -> float:
         """Residual sum of squares Σ resid²."""
         return self._sol.ssr
 
     @cached_property
-    def tss(self) -> float:
+    def tss_(self) -> float:
         """Total sum of squares: about the mean with intercept, about zero without."""
         return self._sol.tss
 
     @cached_property
-    def ess(self) -> float:
+    def ess_(self) -> float:
         """Explained (regression) sum of squares, tss − ssr."""
-        return self.tss - self.ssr
+        return self.tss_ - self.ssr_
 
     @cached_property
-    def rmse(self) -> float:
+    def rmse_(self) -> float:
         """Root mean squared residual, sqrt(ssr / n)."""
-        return math.sqrt(self.ssr / self.n)
+        return math.sqrt(self.ssr_ / self.n_)
 
     @cached_property
-    def resid_sd(self) -> float:
+    def resid_sd_(self) -> float:
         """Residual standard deviation sqrt(ssr / (n − p)); nan when n == p."""
-        return math.sqrt(self.ssr / self.df_resid) if self.df_resid > 0 else math.nan
+        return math.sqrt(self.ssr_ / self.df_resid_) if self.df_resid_ > 0 else math.nan
 
     @cached_property
-    def r2_uncentred(self) -> bool:
+    def r2_uncentred_(self) -> bool:
         """True when R² is taken about zero (no intercept), False when about the mean."""
-        return not self.intercept
+        return not self.intercept_
 
     @cached_property
-    def r2(self) -> float:
+    def r2_(self) -> float:
         """R² = 1 − ssr / tss (uncentred when there is no intercept)."""
         return self._sol.r2
 
     @cached_property
-    def xtx_inv_diag(self) -> np.ndarray:
+    def xtx_inv_diag_(self) -> np.ndarray:
         """Diagonal of (XᵀX)⁻¹, the unscaled variances of the coefficients."""
-        return _readonly(self._sol.inv_diag)
+        return readonly(self._sol.inv_diag)
 
     @cached_property
-    def coef_se(self) -> np.ndarray:
+    def coef_se_(self) -> np.ndarray:
         """Standard errors of the coefficients, resid_sd · sqrt(diag (XᵀX)⁻¹)."""
-        return _readonly(
-            np.sqrt(self.ssr / self.df_resid * self.xtx_inv_diag)
-            if self.df_resid > 0
-            else np.full(self.p, math.nan)
+        return readonly(
+            np.sqrt(self.ssr_ / self.df_resid_ * self.xtx_inv_diag_)
+            if self.df_resid_ > 0
+            else np.full(self.p_, math.nan)
         )
 
     @cached_property
-    def condition_number(self) -> float:
+    def condition_number_(self) -> float:
         """2-norm condition number of the design with columns scaled to unit length."""
         return self._sol.condition_number
 
     @cached_property
-    def solver(self) -> str:
+    def solver_(self) -> str:
         """Which path solved it: "exact" (rational arithmetic) or "refined" (float + refinement)."""
         return self._sol.solver
 
     @cached_property
-    def method_note(self) -> str:
+    def method_note_(self) -> str:
         """How the solution was obtained and checked, in one sentence."""
         return self._sol.method_note
 
     def predict(self, X_new: np.ndarray) -> np.ndarray:
         """Fitted values for new attribute rows (same columns as in fit); never refits."""
-        X_new = np.asarray(X_new, dtype=np.float64)
-        if X_new.ndim == 1:
-            X_new = X_new.reshape(-1, 1) if len(self.names) == 1 else X_new.reshape(1, -1)
-        if X_new.ndim != 2 or X_new.shape[1] != len(self.names):
-            raise DataError(
-                f"new rows need {len(self.names)} attribute columns ({', '.join(self.names)}), "
-                f"given shape {X_new.shape}"
-            )
-        bad = ~np.isfinite(X_new)
-        if bad.any():
-            i, j = np.argwhere(bad)[0]
-            raise DataError(f"new row {i + 1}: attribute {self.names[j]} is not a finite number")
-        d = _design(X_new, self.intercept, self.degree)
+        X_new = checks.new_rows(X_new, self.names_)
+        d = _design(X_new, self.intercept_, self.degree_)
         hi, lo = dd_residual(np.zeros(d.shape[0]), d, -self.coef_)
         return hi + lo
-
-
-def _check_arrays(
-    X: np.ndarray, y: np.ndarray, names: Sequence[str] | None
-) -> tuple[np.ndarray, np.ndarray, list[str]]:
-    X = np.array(X, dtype=np.float64)
-    y = np.array(y, dtype=np.float64)
-    if X.ndim == 1:
-        X = X.reshape(-1, 1)
-    if X.ndim != 2 or y.ndim != 1:
-        raise DataError(
-            f"attributes must be a table and the response one column, "
-            f"given shapes {X.shape} and {y.shape}"
-        )
-    if X.shape[0] != y.shape[0]:
-        raise DataError(
-            f"the response has {y.shape[0]} rows but the attributes have "
-            f"{X.shape[0]}; they must cover the same rows"
-        )
-    m = X.shape[1]
-    if m == 0:
-        raise DataError("no attribute columns given")
-    names = [f"x{j + 1}" for j in range(m)] if names is None else [str(s) for s in names]
-    if len(names) != m:
-        raise DataError(f"{len(names)} attribute names given for {m} attribute columns")
-    if len(set(names)) != m:
-        raise DataError(f"attribute names repeat: {', '.join(names)}")
-    bad_y = np.flatnonzero(~np.isfinite(y))
-    if bad_y.size:
-        raise DataError(f"row {bad_y[0] + 1}: the response is not a finite number ({y[bad_y[0]]})")
-    bad = np.argwhere(~np.isfinite(X))
-    if bad.size:
-        i, j = bad[0]
-        raise DataError(f"row {i + 1}: attribute {names[j]} is not a finite number ({X[i, j]})")
-    return X, y, names
 
 
 def _term_names(names: list[str], intercept: bool, degree: int) -> list[str]:

@@ -20,6 +20,8 @@ from functools import cached_property
 import numpy as np
 
 from sheetfit.errors import DataError, SettingError
+from sheetfit.fit import checks
+from sheetfit.fit._arrays import divide, readonly
 
 __all__ = ["EDGE_ALLOWANCE", "EVEN_CENTRES", "MAX_DISTINCT", "StripMean", "StripMeanResult"]
 
@@ -32,23 +34,6 @@ EVEN_CENTRES = 101
 _GRIDS = ("auto", "distinct", "even")
 
 
-def _readonly(a: np.ndarray) -> np.ndarray:
-    a.setflags(write=False)
-    return a
-
-
-def _column(v: np.ndarray, what: str) -> np.ndarray:
-    a = np.array(v, dtype=np.float64)
-    if a.ndim == 2 and a.shape[1] == 1:
-        a = a[:, 0]
-    if a.ndim != 1:
-        raise DataError(f"{what} must be one column of numbers, given shape {a.shape}")
-    bad = np.flatnonzero(~np.isfinite(a))
-    if bad.size:
-        raise DataError(f"row {bad[0] + 1}: {what} is not a finite number ({a[bad[0]]})")
-    return a
-
-
 class StripMean:
     """Graph of averages: the mean of y in a strip of half-width ``width`` around each centre."""
 
@@ -57,29 +42,21 @@ class StripMean:
         self.centres = centres
 
     def _check_settings(self) -> tuple[float, str]:
-        w = self.width
-        ok = isinstance(w, int | float | np.integer | np.floating) and not isinstance(w, bool)
-        if not ok or not math.isfinite(float(w)) or float(w) <= 0:
-            raise SettingError(f"setting width: allowed a positive number, given {w!r}")
+        w = checks.check_positive("width", self.width)
         if self.centres not in _GRIDS:
             raise SettingError(
                 f"setting centres: allowed {', '.join(_GRIDS)}, given {self.centres!r}"
             )
-        return float(w), str(self.centres)
+        return w, str(self.centres)
 
     def fit(self, x: np.ndarray, y: np.ndarray) -> StripMeanResult:
         """Strip counts, sums and means on the grid, and each row's leave-one-out fit."""
         width, kind = self._check_settings()
-        x = _column(x, "the attribute")
-        y = _column(y, "the response")
-        n = x.shape[0]
-        if y.shape[0] != n:
-            raise DataError(
-                f"the response has {y.shape[0]} rows but the attribute has {n}; "
-                "they must cover the same rows"
-            )
-        if n == 0:
-            raise DataError("no rows to average")
+        X, names = checks.as_table(x)
+        checks.one_attribute(X, names, "a strip mean")
+        x = X[:, 0]
+        y = checks.response(y, x.shape[0], "the attribute has")
+        checks.enough_rows(x.shape[0], 1, "a strip mean")
         distinct = np.unique(x)
         if kind == "auto":
             kind = "distinct" if distinct.size <= MAX_DISTINCT else "even"
@@ -153,16 +130,16 @@ class StripMeanResult:
         count: np.ndarray,
         total: np.ndarray,
     ) -> None:
-        self.x_ = _readonly(x)
-        self.y_ = _readonly(y)
+        self.x_ = readonly(x)
+        self.y_ = readonly(y)
         self.width_ = width
         self.allowance_ = allowance
         self.grid_kind_ = grid_kind
         self.lo_ = lo
         self.step_ = step
-        self.centres_ = _readonly(centres)
-        self.count_ = _readonly(count)
-        self.sum_ = _readonly(total)
+        self.centres_ = readonly(centres)
+        self.count_ = readonly(count)
+        self.sum_ = readonly(total)
 
     def __repr__(self) -> str:
         return (
@@ -178,29 +155,29 @@ class StripMeanResult:
     @cached_property
     def mean_(self) -> np.ndarray:
         """Mean of y in each strip, sum_ / count_; nan for an empty strip."""
-        return _readonly(_divide(self.sum_, self.count_))
+        return readonly(divide(self.sum_, self.count_))
 
     @cached_property
     def row_centre_(self) -> np.ndarray:
         """Index of each row's lookup centre (its own x, or the nearest even centre)."""
-        return _readonly(self.centre_index(self.x_))
+        return readonly(self.centre_index(self.x_))
 
     @cached_property
     def in_strip_(self) -> np.ndarray:
         """Whether each row lies in the strip at its own lookup centre."""
-        return _readonly(np.abs(self.x_ - self.centres_[self.row_centre_]) <= self.allowance_)
+        return readonly(np.abs(self.x_ - self.centres_[self.row_centre_]) <= self.allowance_)
 
     @cached_property
     def fitted_(self) -> np.ndarray:
         """Leave-one-out strip mean: (sum − y) / (count − 1) inside the strip, else the mean."""
         g = self.row_centre_
-        loo = _divide(self.sum_[g] - self.y_, self.count_[g] - 1)
-        return _readonly(np.where(self.in_strip_, loo, self.mean_[g]))
+        loo = divide(self.sum_[g] - self.y_, self.count_[g] - 1)
+        return readonly(np.where(self.in_strip_, loo, self.mean_[g]))
 
     @cached_property
     def resid_(self) -> np.ndarray:
         """Residuals y − fitted_ (nan where a row has no fitted value)."""
-        return _readonly(self.y_ - self.fitted_)
+        return readonly(self.y_ - self.fitted_)
 
     @cached_property
     def n_fitted_(self) -> int:
@@ -217,7 +194,7 @@ class StripMeanResult:
         """Lookup centre of each x: on the even grid floor((x − lo) / step + 0.5) within
         0 … 100; on the distinct grid the equal centre, else the nearest (the lower on a tie).
         """
-        x = _column(x_new, "the new attribute value")
+        x = checks.new_rows(x_new, ["x"])[:, 0]
         if self.grid_kind_ == "even":
             j = np.floor((x - self.lo_) / self.step_ + 0.5)
             return np.clip(j, 0, EVEN_CENTRES - 1).astype(np.int64)
@@ -230,11 +207,3 @@ class StripMeanResult:
     def predict(self, x_new: np.ndarray) -> np.ndarray:
         """Strip mean at each new x's lookup centre (all training rows count); never refits."""
         return self.mean_[self.centre_index(x_new)]
-
-
-def _divide(num: np.ndarray, den: np.ndarray) -> np.ndarray:
-    """num / den element by element, nan where den is 0."""
-    out = np.full(np.shape(num), math.nan)
-    ok = den != 0
-    out[ok] = num[ok] / den[ok]
-    return out

@@ -91,9 +91,9 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     """Plan the coefficient, fitted-value and residual sheets of a fitted model."""
     tag, y = model.tag, model.y
     coef = np.asarray(res.coef_, dtype=float)
-    intercept = bool(res.intercept)
-    degree = int(res.degree)
-    terms: list[str] = list(res.terms)
+    intercept = bool(res.intercept_)
+    degree = int(res.degree_)
+    terms: list[str] = list(res.terms_)
     n = len(model.used)
     p = len(coef)
     specs = _term_values(model.X, degree)
@@ -102,7 +102,7 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
     coef_note = (
-        f"Coefficients computed by sheetfit {version} ({res.method_note}). The check beside "
+        f"Coefficients computed by sheetfit {version} ({res.method_note_}). The check beside "
         "each is a native formula, the cosine of the angle between the residuals and that "
         "term's column: least squares makes it 0 (it reads 0 outright when the fit reproduces "
         "y to 12 digits)."

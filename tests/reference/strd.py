@@ -170,9 +170,9 @@ def case_lre(case: StrdCase) -> dict[str, float]:
     )
     out = {
         "coef": min(lre(e, c) for e, c in zip(res.coef_, case.coef, strict=True)),
-        "se": min(lre(e, c) for e, c in zip(res.coef_se, case.coef_sd, strict=True)),
-        "resid_sd": lre(res.resid_sd, case.resid_sd),
-        "r2": lre(res.r2, case.r2),
+        "se": min(lre(e, c) for e, c in zip(res.coef_se_, case.coef_sd, strict=True)),
+        "resid_sd": lre(res.resid_sd_, case.resid_sd),
+        "r2": lre(res.r2_, case.r2),
     }
     out["min"] = min(out.values())
     return out
