@@ -9,7 +9,6 @@ from __future__ import annotations
 import datetime as dt
 import tempfile
 import warnings
-from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -21,12 +20,9 @@ from .book.read import BookValues
 from .book.render import render
 from .declare.model import ModelData, find_models
 from .errors import Context, DataError, SettingError, SheetfitCaution, SheetfitError
-from .fit.leastsq import LeastSquares
+from .methods import REGISTRY, Fitted
 from .sheets.index import plan_index
-from .sheets.leastsq import plan_least_squares
-from .sheets.neighbours import plan_neighbours
 from .sheets.plan import BookPlan, SheetPlan
-from .sheets.strip import plan_strip
 from .summary import ModelSummary, summarise
 
 __all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
@@ -48,64 +44,45 @@ class RefreshReport:
         return "\n".join([head] + [m.text() for m in self.models])
 
 
-def _estimator(model: ModelData) -> Callable[[], Any]:
-    """The fit of a declared model by its method (numeric core only, no workbook)."""
-    st, names = model.settings, model.attribute_names
-    if st.method == "least_squares":
-        est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
-        return lambda: est.fit(model.X, model.Y, names=names)
-    if st.method.startswith("neighbour_"):
-        from .fit.neighbours import NeighbourMean, NeighbourVote
-    if st.method == "neighbour_mean":
-        nm = NeighbourMean(k=st["k"], standard_units=bool(st["standard_units"]))
-        return lambda: nm.fit(model.X, model.Y, names=names)
-    if st.method == "neighbour_vote":
-        nv = NeighbourVote(k=st["k"], standard_units=bool(st["standard_units"]))
-        return lambda: nv.fit(model.X, list(model.Y), names=names)
-    from .fit.strip import StripMean
-
-    sm = StripMean(width=float(st["width"]))
-    return lambda: sm.fit(model.X[:, 0], model.Y)
+def _place(exc: SheetfitError, model: ModelData) -> SheetfitError:
+    """Put a refusal from the numeric core on the model's cells: name, sheet, cell span."""
+    if isinstance(exc, SettingError):
+        return exc.with_context(Context(model.file, model.names.get("opts", model.names.get("x"))))
+    x_name = model.names.get("x")
+    if exc.column is not None and 0 <= exc.column < len(model.xs):
+        col = model.xs[exc.column]
+        return exc.with_context(Context(model.file, x_name, col.sheet,
+                                        col.span(0, model.n_rows - 1)))
+    return exc.with_context(Context(model.file, x_name, model.xs[0].sheet))
 
 
-#: Sheet planner per method: (model, result, version) -> object with .sheets and .names.
-PLANNERS: dict[str, Callable[[ModelData, Any, str], Any]] = {
-    "least_squares": plan_least_squares,
-    "neighbour_mean": plan_neighbours,
-    "neighbour_vote": plan_neighbours,
-    "strip_mean": plan_strip,
-}
-
-
-def fit_model(model: ModelData) -> tuple[Any, list[str]]:
-    """Fit one declared model; refusals from the numeric core get the model's context."""
-    run = _estimator(model)
+def fit_model(model: ModelData) -> Fitted[Any]:
+    """Fit one declared model and predict its new rows; refusals get the model's cells."""
+    method = REGISTRY[model.settings.method]
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", SheetfitCaution)
         try:
-            res = run()
-        except SettingError as exc:
-            ctx = Context(model.file, model.names.get("opts", model.names.get("x")))
-            raise SettingError(exc.message, ctx, exc.hint) from None
-        except DataError as exc:
-            ctx = Context(model.file, model.names.get("x"), model.xs[0].sheet)
-            raise type(exc)(exc.message, ctx, exc.hint) from None
+            res = method.fit(model)
+            new = res.predict(model.new.X) if model.new is not None else None
+        except (SettingError, DataError) as exc:
+            raise _place(exc, model) from None
     cautions = [str(w.message) for w in caught if issubclass(w.category, SheetfitCaution)]
-    return res, cautions
+    return Fitted(res, new, cautions)
 
 
 def plan_book(
-    fits: list[tuple[ModelData, Any, list[str]]], refreshed: str
+    fits: list[tuple[ModelData, Fitted[Any]]], refreshed: str
 ) -> tuple[BookPlan, list[ModelSummary]]:
     """Plans of every owned sheet (index first) and the output names, plus the summaries."""
     sheets: list[SheetPlan] = []
     names: list[tuple[str, str]] = []
     summaries = []
-    for model, res, cautions in fits:
-        planned = PLANNERS[model.settings.method](model, res, __version__)
+    for model, fitted in fits:
+        method = REGISTRY[model.settings.method]
+        planned = method.plan(model, fitted, __version__)
         sheets += planned.sheets
         names += planned.names
-        summaries.append(summarise(model, res, cautions))
+        summaries.append(summarise(model, method, fitted))
     return BookPlan([plan_index(summaries, refreshed, __version__)] + sheets, names), summaries
 
 
@@ -126,8 +103,8 @@ def refresh(book: str | Path, out: str | Path | None = None,
     file = source.name
     try:
         pkg = open_package(source)
-        models = find_models(pkg, _values(pkg, source), file)
-        fits = [(m, *fit_model(m)) for m in models]
+        models = find_models(pkg, _values(pkg, source), file, REGISTRY)
+        fits = [(m, fit_model(m)) for m in models]
         stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
         plan, summaries = plan_book(fits, stamp)
         with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:

@@ -1,7 +1,8 @@
-"""Model settings declared as data: name, allowed values, default, methods, one parser.
+"""Model settings declared as data: name, allowed values, default, one parser.
 
-Every message about a bad setting has the same shape: which setting, what is
-allowed, what was given.
+Each method's record (sheetfit.methods) lists the rules it accepts; this module knows
+no method by name. Every message about a bad setting has the same shape: which
+setting, what is allowed, what was given.
 """
 
 from __future__ import annotations
@@ -9,21 +10,30 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Protocol
 
 from .errors import Context, SettingError
+from .fit.checks import K_LIMIT
 
-__all__ = ["METHODS", "REQUIRED", "RULES", "Rule", "Settings", "parse_settings"]
-
-#: Methods a model can use; the words are sheetfit's own.
-METHODS = ("least_squares", "strip_mean", "neighbour_mean", "neighbour_vote")
-_NEIGHBOUR = ("neighbour_mean", "neighbour_vote")
+__all__ = [
+    "MethodSettings",
+    "Rule",
+    "Settings",
+    "all_rules",
+    "choice",
+    "integer",
+    "k_value",
+    "label",
+    "parse_settings",
+    "positive",
+    "yes_no",
+]
 
 _TRUE = {"yes", "true", "1", "on"}
 _FALSE = {"no", "false", "0", "off"}
 
 
-def _yes_no(raw: Any) -> bool:
+def yes_no(raw: Any) -> bool:
     word = str(raw).strip().lower()
     if isinstance(raw, float) and raw in (0.0, 1.0):
         word = str(int(raw))
@@ -34,7 +44,7 @@ def _yes_no(raw: Any) -> bool:
     raise ValueError
 
 
-def _integer(lo: int, hi: int) -> Callable[[Any], int]:
+def integer(lo: int, hi: int) -> Callable[[Any], int]:
     def parse(raw: Any) -> int:
         value = float(raw)
         if value != int(value) or not lo <= value <= hi:
@@ -44,20 +54,20 @@ def _integer(lo: int, hi: int) -> Callable[[Any], int]:
     return parse
 
 
-def _k(raw: Any) -> int | None:
+def k_value(raw: Any) -> int | None:
     if isinstance(raw, str) and raw.strip().lower() == "auto":
         return None
-    return _integer(1, 10_000)(raw)
+    return integer(1, K_LIMIT)(raw)
 
 
-def _positive(raw: Any) -> float:
+def positive(raw: Any) -> float:
     value = float(raw)
     if not (math.isfinite(value) and value > 0):
         raise ValueError
     return value
 
 
-def _choice(options: tuple[str, ...]) -> Callable[[Any], str]:
+def choice(options: tuple[str, ...]) -> Callable[[Any], str]:
     def parse(raw: Any) -> str:
         word = str(raw).strip().lower().replace(" ", "_").replace("-", "_")
         if word not in options:
@@ -67,7 +77,7 @@ def _choice(options: tuple[str, ...]) -> Callable[[Any], str]:
     return parse
 
 
-def _label(raw: Any) -> str | float:
+def label(raw: Any) -> str | float:
     if isinstance(raw, float):
         return raw
     text = str(raw)
@@ -78,40 +88,40 @@ def _label(raw: Any) -> str | float:
 
 @dataclass(frozen=True)
 class Rule:
-    """One setting: its name, allowed values (in words), default, methods, and parser."""
+    """One setting: its name, allowed values (in words), default, parser and meaning."""
 
     name: str
     allowed: str
     default: Any
     parse: Callable[[Any], Any]
     meaning: str
-    methods: tuple[str, ...] = METHODS
 
 
-RULES: dict[str, Rule] = {
-    r.name: r
-    for r in (
-        Rule("method", " or ".join(METHODS), "least_squares", _choice(METHODS),
-             "how the model is fitted"),
-        Rule("intercept", "yes or no", True, _yes_no,
-             "whether the model has a constant term", ("least_squares",)),
-        Rule("degree", "a whole number from 1 to 10", 1, _integer(1, 10),
-             "polynomial degree in the one attribute (2 adds x^2, ...)", ("least_squares",)),
-        Rule("k", "a whole number of at least 1, or auto", None, _k,
-             "how many nearest neighbours; auto picks the k with the smallest "
-             "leave-one-out error", _NEIGHBOUR),
-        Rule("standard_units", "yes or no", True, _yes_no,
-             "measure distances in standard units (z = (x - mean) / SD)", _NEIGHBOUR),
-        Rule("focus", "one of the classes in y", None, _label,
-             "the class a work list ranks new rows by (default: the rarest class)",
-             ("neighbour_vote",)),
-        Rule("width", "a number greater than 0", None, _positive,
-             "half-width of each strip: rows with |x - centre| <= width", ("strip_mean",)),
-    )
-}
+class MethodSettings(Protocol):
+    """What the settings parser needs to know of a method: its word and its rules."""
 
-#: Settings a method cannot do without.
-REQUIRED = {"strip_mean": ("width",)}
+    @property
+    def word(self) -> str: ...
+
+    @property
+    def rules(self) -> tuple[Rule, ...]: ...
+
+    @property
+    def required(self) -> tuple[str, ...]: ...
+
+
+def _method_rule(methods: Mapping[str, MethodSettings]) -> Rule:
+    words = tuple(methods)
+    return Rule("method", " or ".join(words), words[0], choice(words), "how the model is fitted")
+
+
+def all_rules(methods: Mapping[str, MethodSettings]) -> dict[str, Rule]:
+    """Every setting a book may use: method first, then each method's own, in registry order."""
+    rules = {"method": _method_rule(methods)}
+    for m in methods.values():
+        for r in m.rules:
+            rules.setdefault(r.name, r)
+    return rules
 
 
 @dataclass(frozen=True)
@@ -129,23 +139,25 @@ class Settings:
         return str(self.values["method"])
 
 
-def parse_settings(pairs: list[tuple[str, Any, str]], context: Context) -> Settings:
+def parse_settings(pairs: list[tuple[str, Any, str]], context: Context,
+                   methods: Mapping[str, MethodSettings]) -> Settings:
     """Parse (setting, raw value, cell address) triples into Settings, refusing bad ones.
 
-    ``context`` names the file, the ``opts`` defined name and the sheet; the cell of
-    the offending pair is filled in.
+    ``methods`` is the method registry. ``context`` names the file, the ``opts`` defined
+    name and the sheet; the cell of the offending pair is filled in.
     """
-    values = {name: rule.default for name, rule in RULES.items()}
+    rules = all_rules(methods)
+    values = {name: rule.default for name, rule in rules.items()}
     given: dict[str, str] = {}
     for key, raw, cell in pairs:
         name = str(key).strip().lower().replace(" ", "_")
         where = Context(context.file, context.name, context.sheet, cell)
-        rule = RULES.get(name)
+        rule = rules.get(name)
         if rule is None:
             raise SettingError(
                 f"unknown setting '{key}'",
                 where,
-                hint="known settings: " + ", ".join(RULES),
+                hint="known settings: " + ", ".join(rules),
             )
         if name in given:
             raise SettingError(f"setting '{rule.name}' is given twice", where)
@@ -156,19 +168,21 @@ def parse_settings(pairs: list[tuple[str, Any, str]], context: Context) -> Setti
                 f"setting '{rule.name}' must be {rule.allowed}, not '{raw}'", where
             ) from None
         given[name] = cell
-    method = values["method"]
+    method = methods[values["method"]]
+    own = {r.name for r in method.rules} | {"method"}
     for name, cell in given.items():
-        if method not in RULES[name].methods:
+        if name not in own:
+            users = [m.word for m in methods.values() if any(r.name == name for r in m.rules)]
             raise SettingError(
-                f"setting '{name}' does not apply to method {method}",
+                f"setting '{name}' does not apply to method {method.word}",
                 Context(context.file, context.name, context.sheet, cell),
-                hint=f"it applies to {' and '.join(RULES[name].methods)}",
+                hint=f"it applies to {' and '.join(users)}",
             )
-    for name in REQUIRED.get(method, ()):
+    for name in method.required:
         if name not in given:
-            rule = RULES[name]
+            rule = rules[name]
             raise SettingError(
-                f"method {method} needs the setting '{name}' ({rule.meaning})",
+                f"method {method.word} needs the setting '{name}' ({rule.meaning})",
                 Context(context.file, context.name, context.sheet),
                 hint=f"add a row '{name}' with {rule.allowed}",
             )

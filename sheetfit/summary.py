@@ -9,17 +9,11 @@ from typing import Any
 import numpy as np
 
 from .declare.model import ModelData
+from .fit.results import Fitted
+from .methods.base import Method
 from .owned import sheet_title
 
-__all__ = ["METHOD_WORDS", "ModelSummary", "fingerprint", "summarise"]
-
-METHOD_WORDS = {
-    "least_squares": "least squares",
-    "strip_mean": "strip mean",
-    "neighbour_mean": "neighbour mean",
-    "neighbour_vote": "neighbour vote",
-}
-
+__all__ = ["ModelSummary", "fingerprint", "summarise"]
 
 @dataclass
 class ModelSummary:
@@ -27,6 +21,7 @@ class ModelSummary:
 
     tag: str
     method: str
+    title: str
     response: str
     attributes: list[str]
     n_used: int
@@ -40,7 +35,7 @@ class ModelSummary:
     def text(self) -> str:
         """A few plain lines for the command line."""
         lines = [
-            (f"model {self.tag}: {METHOD_WORDS.get(self.method, self.method)}, "
+            (f"model {self.tag}: {self.title}, "
              f"{self.response} on {', '.join(self.attributes)}"),
             (f"  rows used {self.n_used}, left out {self.n_left_out}"
              + (f", predicted {self.n_new} new" if self.n_new else "")),
@@ -89,74 +84,19 @@ def _common_cautions(model: ModelData) -> list[str]:
     return out
 
 
-def _least_squares(model: ModelData, res: Any) -> tuple[list[str], list[str]]:
-    r2 = "R² (uncentred)" if res.r2_uncentred_ else "R²"
-    coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms_, res.coef_))
-    figures = [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
-    cautions = []
-    if res.r2_uncentred_:
-        cautions.append("no intercept: R² is uncentred (about zero) and reads higher than a "
-                        "centred R²")
-    if res.df_resid_ < 10:
-        cautions.append(f"only {res.df_resid_} residual degrees of freedom: R² and the residual "
-                        "SD are unstable")
-    return figures, cautions
-
-
-def _neighbours(model: ModelData, res: Any) -> tuple[list[str], list[str]]:
-    how = "given" if res.k_given_ else "chosen by leave-one-out error"
-    figures = [f"k = {res.k_} ({how}), standard units {'on' if res.scaling_.on else 'off'}"]
-    if model.settings.method == "neighbour_vote":
-        figures.append(f"leave-one-out error rate {float(res.error_rate_):.4f}")
-    else:
-        figures.append(f"leave-one-out RMSE {float(res.rmse_):.6g}")
-    cautions = []
-    table_end = len(res.k_table_)
-    if not res.k_given_ and res.k_ == table_end and table_end < len(model.used) - 1:
-        cautions.append(f"k = {res.k_} was chosen at the end of the k table; a larger k may "
-                        "do as well or better (set k to try)")
-    if not res.scaling_.on and len(model.xs) > 1:
-        sd = model.X.std(axis=0)
-        if sd.min() > 0 and sd.max() / sd.min() > 10:
-            cautions.append(f"standard units are off and the attributes' spreads differ "
-                            f"{sd.max() / sd.min():.0f}-fold: the widest attribute dominates "
-                            "the distances")
-    return figures, cautions
-
-
-def _strip(model: ModelData, res: Any) -> tuple[list[str], list[str]]:
-    figures = [(f"width {float(model.settings['width']):g}, {len(res.centres_)} centres "
-                f"({res.grid_kind_} grid), leave-one-out RMSE {float(res.rmse_):.6g}")]
-    cautions = []
-    empty = int(np.sum(np.asarray(res.count_) == 0))
-    if empty:
-        cautions.append(f"{_rows(empty, 'strip')} empty: no rows within ± width (left blank)")
-    unfitted = len(model.used) - int(res.n_fitted_)
-    if unfitted:
-        cautions.append(f"{_rows(unfitted)} with no other row in its strip: no fitted value")
-    return figures, cautions
-
-
-_BY_METHOD = {
-    "least_squares": _least_squares,
-    "neighbour_mean": _neighbours,
-    "neighbour_vote": _neighbours,
-    "strip_mean": _strip,
-}
-
-
-def summarise(model: ModelData, res: Any, extra: list[str]) -> ModelSummary:
-    """The summary of a fitted model; ``extra`` holds cautions raised during the fit."""
-    figures, cautions = _BY_METHOD[model.settings.method](model, res)
+def summarise(model: ModelData, method: Method[Any], fitted: Fitted[Any]) -> ModelSummary:
+    """The summary of a fitted model: its method's figures, then every caution."""
+    res = fitted.result
     return ModelSummary(
         tag=model.tag,
-        method=model.settings.method,
+        method=method.word,
+        title=method.title,
         response=model.y.name,
         attributes=model.attribute_names,
         n_used=len(model.used),
         n_left_out=len(model.left_out),
         n_new=0 if model.new is None else model.new.n,
         fingerprint=fingerprint(model),
-        figures=figures,
-        cautions=_common_cautions(model) + cautions + extra,
+        figures=method.figures(model, res),
+        cautions=_common_cautions(model) + method.cautions(model, res) + fitted.cautions,
     )

@@ -11,12 +11,13 @@ from books import line_rows, make_book
 from sheetfit.book.package import open_package
 from sheetfit.declare.model import find_models
 from sheetfit.errors import DataError, DeclarationError, SettingError
+from sheetfit.methods import REGISTRY
 from sheetfit.refresh import _values, refresh
 
 
 def _models(path: Path):
     pkg = open_package(path)
-    return find_models(pkg, _values(pkg, path), path.name)
+    return find_models(pkg, _values(pkg, path), path.name, REGISTRY)
 
 
 def _digest(path: Path) -> str:

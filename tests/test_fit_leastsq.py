@@ -38,7 +38,7 @@ def test_constructor_only_stores_settings() -> None:
 def test_refuses_constant_column_with_intercept() -> None:
     """A constant attribute cannot sit beside an intercept; the message names it."""
     X = np.column_stack([np.arange(6.0), np.full(6, 4.0)])
-    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(4\) in every row"):
+    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(4\) in every used row"):
         LeastSquares().fit(X, np.arange(6.0) ** 2, names=["km", "stops"])
     # Without an intercept the same column is an ordinary term.
     res = LeastSquares(intercept=False).fit(X, np.arange(6.0) ** 2, names=["km", "stops"])

@@ -106,7 +106,7 @@ def test_standard_units_off_is_identity() -> None:
 def test_constant_attribute_refused_in_standard_units() -> None:
     """A constant attribute has no standard units; the message names it."""
     X = np.array([[1.0, 5.0], [2.0, 5.0], [7.0, 5.0]])
-    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(5\) in every row"):
+    with pytest.raises(DataError, match=r"attribute 'stops' has the same value \(5\) in every used row"):
         standard_units(X, names=["km", "stops"])
     with pytest.raises(DataError, match=r"attribute 'stops' .* so it has no standard units"):
         NeighbourMean(k=1).fit(X, np.arange(3.0), names=["km", "stops"])

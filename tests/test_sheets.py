@@ -15,16 +15,17 @@ import sheetfit
 from sheetfit.book.package import open_package
 from sheetfit.book.render import render
 from sheetfit.declare.model import find_models
+from sheetfit.methods import REGISTRY
 from sheetfit.refresh import _values, fit_model, plan_book
 
 
 def _plan(tmp_path: Path, rows, names):
     p = make_book(tmp_path / "b.xlsx", {"Data": rows}, names)
     pkg = open_package(p)
-    (model,) = find_models(pkg, _values(pkg, p), p.name)
-    res, cautions = fit_model(model)
-    plan, _ = plan_book([(model, res, cautions)], "2026-01-01 00:00:00 UTC")
-    return plan, model, res
+    (model,) = find_models(pkg, _values(pkg, p), p.name, REGISTRY)
+    fitted = fit_model(model)
+    plan, _ = plan_book([(model, fitted)], "2026-01-01 00:00:00 UTC")
+    return plan, model, fitted.result
 
 
 def _sheet(plan, title):

@@ -2,14 +2,17 @@
 
 A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts),
 workbook- or sheet-scoped. This module checks everything that comes out of the
-named ranges (one place, one wording): references, lengths, headers, values,
-rows enough for the parameters, constant columns. Messages name the file, the
-defined name, the sheet and the cell.
+named ranges (one place, one wording): references, lengths, headers, values, settings.
+Messages name the file, the defined name, the sheet and the cell. What the numbers themselves must satisfy (enough
+rows, no constant attribute, ...) is checked by the numeric core (``sheetfit.fit.checks``)
+and placed on the cells by the refresh.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from typing import Protocol
 
 import numpy as np
 
@@ -17,13 +20,20 @@ from ..a1 import cell_ref, col_letter, quote_sheet
 from ..book.graft import is_ours
 from ..book.package import DefinedName, Package
 from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
-from ..errors import Context, DataError, DeclarationError, SettingError
-from ..labels import label_text, labels_equal
+from ..errors import Context, DataError, DeclarationError
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, split_name
-from ..settings import Settings, parse_settings
+from ..settings import MethodSettings, Settings, parse_settings
 from .refs import Area, RefError, parse_areas
 
-__all__ = ["Column", "LeftOut", "ModelData", "NewRows", "describe_value", "find_models"]
+__all__ = [
+    "Column",
+    "LeftOut",
+    "MethodReading",
+    "ModelData",
+    "NewRows",
+    "describe_value",
+    "find_models",
+]
 
 
 @dataclass(frozen=True)
@@ -151,8 +161,28 @@ def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
     return decls
 
 
-def find_models(pkg: Package, values: BookValues, file: str) -> list[ModelData]:
-    """Every model declared in the book, checked and read, in order of model name."""
+class MethodReading(MethodSettings, Protocol):
+    """What reading a declaration needs to know of its method (a registry record)."""
+
+    @property
+    def title(self) -> str: ...
+
+    @property
+    def labels(self) -> bool: ...
+
+    @property
+    def max_attributes(self) -> int | None: ...
+
+    @property
+    def check(self) -> Callable[[ModelData], None] | None: ...
+
+
+def find_models(pkg: Package, values: BookValues, file: str,
+                methods: Mapping[str, MethodReading]) -> list[ModelData]:
+    """Every model declared in the book, checked and read, in order of model name.
+
+    ``methods`` is the method registry (sheetfit.methods.REGISTRY).
+    """
     decls = _collect(pkg, file)
     if not decls:
         raise DeclarationError(
@@ -161,7 +191,7 @@ def find_models(pkg: Package, values: BookValues, file: str) -> list[ModelData]:
             hint="define names sf_<model>_y and sf_<model>_x pointing at the response "
             "and attribute cells",
         )
-    return [_read_model(decls[k], pkg, values, file) for k in sorted(decls)]
+    return [_read_model(decls[k], pkg, values, file, methods) for k in sorted(decls)]
 
 
 def _areas(d: DefinedName, pkg: Package, file: str) -> list[Area]:
@@ -207,7 +237,8 @@ def _header(cols: list[tuple[Area, int]], values: BookValues) -> bool:
     return all(values.sheet(a.sheet).get(a.row1, c).kind == TEXT for a, c in cols)
 
 
-def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> ModelData:
+def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
+                methods: Mapping[str, MethodReading]) -> ModelData:
     tag = decl.tag
     for role in ("y", "x"):
         if role not in decl.names:
@@ -217,7 +248,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
                 hint=f"define sf_{tag}_{role}",
             )
     dy, dx = decl.names["y"], decl.names["x"]
-    settings = _settings(decl, pkg, values, file)
+    settings = _settings(decl, pkg, values, file, methods)
+    method = methods[settings.method]
     y_areas, x_areas = _areas(dy, pkg, file), _areas(dx, pkg, file)
     last = _last_row(y_areas + x_areas, values)
     y_areas, x_areas = _trim(y_areas, last), _trim(x_areas, last)
@@ -242,13 +274,14 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
     ycol = _make_column(ya, ya.col1, header, values, offset)
     xcols = [_make_column(a, c, header, values, offset) for a, c in x_cols]
     _check_headers(xcols, dx, file)
-    method = settings.method
-    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values, method == "neighbour_vote")
+    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values, method.labels)
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
-    if method == "strip_mean" and len(xcols) != 1:
+    most = method.max_attributes
+    if most is not None and len(xcols) > most:
         raise DataError(
-            f"a strip mean uses one attribute, x has {len(xcols)}",
-            Context(file, dx.name), hint="declare one x column for this model",
+            f"a {method.title} uses {'one attribute' if most == 1 else f'{most} attributes'}"
+            f", x has {len(xcols)}",
+            Context(file, dx.name), hint="declare fewer x columns for this model",
         )
     if n_rows == 0:
         raise DataError(
@@ -261,51 +294,12 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Mod
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
             hint="fill in the data or point the names at it",
         )
-    if method == "neighbour_vote" and settings["focus"] is not None:
-        _check_focus(settings["focus"], Y, file, decl.names["opts"])
-    if method == "least_squares":
-        _check_least_squares(settings, xcols, used, X, n_rows, ctx, dx, file)
-    elif len(used) < 2:
-        raise DataError(f"{len(used)} usable row; {method} needs at least 2", ctx)
     new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
     names = {role: d.name for role, d in decl.names.items()}
-    return ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
-
-
-def _check_least_squares(settings: Settings, xcols: list[Column], used: np.ndarray,
-                         X: np.ndarray, n_rows: int, ctx: Context, dx: DefinedName,
-                         file: str) -> None:
-    p = int(settings["intercept"]) + len(xcols) * int(settings["degree"])
-    if settings["degree"] > 1 and len(xcols) != 1:
-        raise DataError(
-            f"degree {settings['degree']} needs exactly one attribute, x has {len(xcols)}",
-            Context(file, dx.name), hint="use degree 1 or declare one x column",
-        )
-    if len(used) < p:
-        raise DataError(
-            f"{len(used)} usable rows but the model has {p} parameters", ctx,
-            hint="add rows or reduce the attributes or degree",
-        )
-    if settings["intercept"]:
-        for j, c in enumerate(xcols):
-            if np.all(X[:, j] == X[0, j]):
-                raise DataError(
-                    f"attribute '{c.name}' has the same value ({X[0, j]:g}) in every used row, "
-                    "so its effect cannot be told apart from the intercept",
-                    Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
-                    hint="drop the column from x",
-                )
-
-
-def _check_focus(focus: object, Y: np.ndarray, file: str, opts: DefinedName) -> None:
-    if not any(labels_equal(v, focus) for v in Y):
-        classes = sorted({label_text(v) for v in Y})
-        raise SettingError(
-            f"focus '{label_text(focus)}' is not one of the classes in y "
-            f"({', '.join(classes[:10])}{' ...' if len(classes) > 10 else ''})",
-            Context(file, opts.name),
-            hint="write the class exactly as in the data (capitals count)",
-        )
+    model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+    if method.check is not None:
+        method.check(model)
+    return model
 
 
 def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
@@ -425,10 +419,11 @@ def _read_new(
     return NewRows(cols, X)
 
 
-def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Settings:
+def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,
+              methods: Mapping[str, MethodSettings]) -> Settings:
     d = decl.names.get("opts")
     if d is None:
-        return parse_settings([], Context(file))
+        return parse_settings([], Context(file), methods)
     areas = _areas(d, pkg, file)
     areas = _trim(areas, _last_row(areas, values))
     if len(areas) != 1 or areas[0].n_cols != 2:
@@ -452,4 +447,4 @@ def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str) -> Setti
                 Context(file, d.name, a.sheet, cell_ref(r, a.col1)),
             )
         pairs.append((key.text, raw, cell_ref(r, a.col1 + 1)))
-    return parse_settings(pairs, Context(file, d.name, a.sheet))
+    return parse_settings(pairs, Context(file, d.name, a.sheet), methods)

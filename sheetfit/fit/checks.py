@@ -143,7 +143,7 @@ def not_constant(X: np.ndarray, names: list[str], so: str, hint: str) -> None:
     if same.any():
         j = int(np.flatnonzero(same)[0])
         raise DataError(
-            f"attribute '{names[j]}' has the same value ({X[0, j]:g}) in every row, so {so}",
+            f"attribute '{names[j]}' has the same value ({X[0, j]:g}) in every used row, so {so}",
             hint=hint, column=j,
         )
 

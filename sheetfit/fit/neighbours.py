@@ -60,11 +60,15 @@ TABLE_MAX_K = 25
 
 @dataclass(frozen=True)
 class Prediction:
-    """Neighbours of new rows, in order, with their exact distances and the prediction."""
+    """Neighbours of new rows, in order, with their exact distances and the prediction.
+
+    ``Z`` holds the new rows in the units the distances were measured in.
+    """
 
     neighbours: np.ndarray
     distances: np.ndarray
     value: np.ndarray
+    Z: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -148,9 +152,9 @@ class _Base:
         """Population SD of each attribute over the training rows, scaling on or off."""
         return self.scaling_.sd_ if self.scaling_.on else readonly(attribute_stats(self.X_)[1])
 
-    def _neighbours_of(self, X_new: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        Q = self.scaling_.transform(checks.new_rows(X_new, self.names_))
-        return search(self._tree, self.Z_, Q, self.k_, None)
+    def _neighbours_of(self, X_new: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        Q = readonly(self.scaling_.transform(checks.new_rows(X_new, self.names_)))
+        return (*search(self._tree, self.Z_, Q, self.k_, None), Q)
 
 
 def _fit_search(
@@ -256,11 +260,11 @@ class NeighbourMeanResult(_Base):
 
     def predict(self, X_new: np.ndarray) -> MeanPrediction:
         """Mean response of the k_ nearest training rows to each new row; never refits."""
-        J, D = self._neighbours_of(X_new)
+        J, D, Q = self._neighbours_of(X_new)
         Y = self.y_[J]
         value = fsum_rows(Y) / self.k_
         return MeanPrediction(
-            J, D, value, Y.min(axis=1), np.median(Y, axis=1), Y.max(axis=1)
+            J, D, value, Q, Y.min(axis=1), np.median(Y, axis=1), Y.max(axis=1)
         )
 
 
@@ -388,9 +392,9 @@ class NeighbourVoteResult(_Base):
 
     def predict(self, X_new: np.ndarray) -> VotePrediction:
         """Class voted by the k_ nearest training rows to each new row; never refits."""
-        J, D = self._neighbours_of(X_new)
+        J, D, Q = self._neighbours_of(X_new)
         codes = self.y_code_[J]
         pred, votes = vote(codes, len(self.classes_))
         return VotePrediction(
-            J, D, self.classes_[pred], votes, votes / self.k_, list(self.classes_), codes
+            J, D, self.classes_[pred], Q, votes, votes / self.k_, list(self.classes_), codes
         )

@@ -56,7 +56,7 @@ class StripMean:
         checks.one_attribute(X, names, "a strip mean")
         x = X[:, 0]
         y = checks.response(y, x.shape[0], "the attribute has")
-        checks.enough_rows(x.shape[0], 1, "a strip mean")
+        checks.enough_rows(x.shape[0], 2, "a strip mean (leave-one-out)")
         distinct = np.unique(x)
         if kind == "auto":
             kind = "distinct" if distinct.size <= MAX_DISTINCT else "even"

@@ -35,11 +35,11 @@ def plan_left_out(sheet: SheetPlan, model: ModelData, col: int) -> None:
 
 
 def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.ndarray,
-                        note: str) -> tuple[SheetPlan, np.ndarray]:
+                        resid: np.ndarray, note: str) -> SheetPlan:
     """The residual sheet: observed, fitted (from another sheet), observed − fitted.
 
-    A blank fitted value (no prediction for that row) gives a blank residual. Returns
-    the plan and the residuals (nan where blank).
+    ``fitted`` and ``resid`` are the cached values (nan where the row has no fitted value,
+    which the sheet shows blank).
     """
     y = model.y
     rs = SheetPlan(sheet_title(model.tag, "resid"))
@@ -47,19 +47,14 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.
     rs.note(1, 0, note)
     for c, h in enumerate(["data row", f"{y.name} (observed)", f"fitted {y.name}", "residual"]):
         rs.put(3, c, h, style="head")
-    resid = np.full(len(model.used), np.nan)
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         rs.put(r, 0, int(y.row_of(int(idx))), style="int")
         rs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
-        f = float(fitted[i])
-        if math.isnan(f):
-            rs.put(r, 2, "", f"={fitted_ref[i]}", "num")
-            rs.put(r, 3, "", f'=IF(C{r + 1}="","",B{r + 1}-C{r + 1})', "num")
-        else:
-            rs.put(r, 2, f, f"={fitted_ref[i]}", "num")
-            resid[i] = float(model.Y[i]) - f
-            rs.put(r, 3, resid[i], f'=IF(C{r + 1}="","",B{r + 1}-C{r + 1})', "num")
+        f, e = float(fitted[i]), float(resid[i])
+        blank = math.isnan(f)
+        rs.put(r, 2, "" if blank else f, f"={fitted_ref[i]}", "num")
+        rs.put(r, 3, "" if blank else e, f'=IF(C{r + 1}="","",B{r + 1}-C{r + 1})', "num")
     rs.widths = {0: 9, 3: 16}
     rs.freeze = (FIRST_ROW, 1)
-    return rs, resid
+    return rs

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..owned import INDEX_SHEET, sheet_title
-from ..summary import METHOD_WORDS, ModelSummary
+from ..summary import ModelSummary
 from .plan import SheetPlan
 
 __all__ = ["GENERAL_CAUTIONS", "plan_index"]
@@ -36,7 +36,7 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
         r = 4 + i
         fitted = f"'{sheet_title(m.tag, 'fitted')}'"
         s.put(r, 0, m.tag, style="label")
-        s.put(r, 1, METHOD_WORDS.get(m.method, m.method))
+        s.put(r, 1, m.title)
         s.put(r, 2, m.response)
         s.put(r, 3, ", ".join(m.attributes))
         s.put(r, 4, m.n_used, f"=COUNT({fitted}!$A$5:$A${4 + m.n_used})", "int")

@@ -8,33 +8,19 @@ from __future__ import annotations
 
 import math
 import textwrap
-from dataclasses import dataclass
 
 import numpy as np
 
 from ..a1 import absolute
 from ..declare.model import ModelData
 from ..fit.leastsq import LeastSquaresResult
+from ..fit.results import Fitted
 from ..owned import sheet_title
 from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
-from .plan import SheetPlan
+from .plan import Planned, SheetPlan
 
-__all__ = ["LeastSquaresSheets", "plan_least_squares"]
+__all__ = ["plan_least_squares"]
 
-
-
-@dataclass
-class LeastSquaresSheets:
-    """The planned sheets of one least-squares model and the output names they carry."""
-
-    coef: SheetPlan
-    fitted: SheetPlan
-    resid: SheetPlan
-    names: list[tuple[str, str]]
-
-    @property
-    def sheets(self) -> list[SheetPlan]:
-        return [self.coef, self.fitted, self.resid]
 
 
 def _term_values(X: np.ndarray, degree: int) -> list[tuple[int, int]]:
@@ -87,8 +73,17 @@ def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
     return "=" + "+".join(parts), value, terms
 
 
-def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) -> LeastSquaresSheets:
-    """Plan the coefficient, fitted-value and residual sheets of a fitted model."""
+def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
+                       version: str) -> Planned:
+    """Plan the coefficient, fitted-value and residual sheets of a fitted model.
+
+    Coefficients and the method note come from the result. Fitted values, residuals and
+    the summary figures are cached as their formulas compute them (coefficient cells
+    times data cells, left to right), which differs from the result's correctly rounded
+    values in the last digits; ``_prediction`` and the summary lines hold that arithmetic
+    beside the formulas it mirrors.
+    """
+    res = fitted_.result
     tag, y = model.tag, model.y
     coef = np.asarray(res.coef_, dtype=float)
     intercept = bool(res.intercept_)
@@ -143,8 +138,9 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
     plan_left_out(fs, model, side)
 
     # --- residual sheet -------------------------------------------------------------
-    rs, resid = plan_residual_sheet(
-        model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted,
+    resid = model.Y - fitted  # what B − C gives on the residual sheet
+    rs = plan_residual_sheet(
+        model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted, resid,
         "residual = observed − fitted, each a formula.")
     resid_rng = rs.col_range(3, FIRST_ROW, last)
     y_rng = fs.col_range(1, FIRST_ROW, last)
@@ -190,14 +186,15 @@ def plan_least_squares(model: ModelData, res: LeastSquaresResult, version: str) 
         (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
         (f"sf_{tag}_resid", resid_rng),
     ] + names
-    return LeastSquaresSheets(cs, fs, rs, names)
+    return Planned([cs, fs, rs], names)
 
 
 def _plan_new(fs: SheetPlan, model: ModelData, coef: np.ndarray, coef_ref: list[str],
               specs: list[tuple[int, int]], intercept: bool, side: int,
               names: list[tuple[str, str]]) -> int:
     new = model.new
-    assert new is not None
+    if new is None:
+        raise ValueError("_plan_new needs declared new rows")
     tag = model.tag
     fs.put(3, side, "new row", style="head")
     for j, c in enumerate(new.columns):

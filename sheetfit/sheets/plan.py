@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
 
-__all__ = ["STYLES", "BookPlan", "Cell", "SheetPlan"]
+__all__ = ["STYLES", "BookPlan", "Cell", "Planned", "SheetPlan"]
 
 Scalar = float | int | str | bool | None
 
@@ -88,6 +88,14 @@ class SheetPlan:
 
     def formula_cells(self) -> list[Cell]:
         return [c for c in self.cells if c.formula is not None]
+
+
+@dataclass
+class Planned:
+    """The planned sheets of one model and the output names they carry."""
+
+    sheets: list[SheetPlan]
+    names: list[tuple[str, str]]
 
 
 @dataclass

@@ -7,47 +7,44 @@ formula cost stays at grid size × rows for the curve and constant per row.
 
 from __future__ import annotations
 
-import bisect
 import math
-from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
 from ..a1 import absolute, col_letter
 from ..declare.model import ModelData
+from ..fit.results import Fitted
+from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, StripMeanResult
 from ..owned import sheet_title
-from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
-from .plan import SheetPlan
+from .common import FIRST_ROW, plan_left_out, plan_residual_sheet
+from .plan import Planned, SheetPlan
 
-__all__ = ["EDGE", "StripSheets", "plan_strip"]
+__all__ = ["EDGE", "plan_strip"]
 
-#: Relative allowance at a strip's edge: |x − c| <= width·(1 + 1e-12) counts as inside.
-EDGE = "(1+1E-12)"
-_EDGE = 1 + 1e-12
+#: The edge allowance as the formulas write it: |x − c| <= width·(1 + 1E-12) is inside.
+EDGE = f"(1+{EDGE_ALLOWANCE:G})"
 _TABLE = 9  # header row (0-based) of the curve table
+_LAST = EVEN_CENTRES - 1  # steps between the lowest and the highest even centre
 
 
-@dataclass
-class StripSheets:
-    """The planned sheets of one strip-mean model and its output names."""
-
-    sheets: list[SheetPlan]
-    names: list[tuple[str, str]]
+def _num(v: float) -> float | str:
+    """A cached number, or blank where the result has none (nan)."""
+    return "" if math.isnan(v) else float(v)
 
 
-def _inside(x: float, c: float, w: float) -> bool:
-    return abs(x - c) <= w * _EDGE
+def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) -> Planned:
+    """Plan the curve, fitted-value and residual sheets of a strip mean.
 
-
-def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
-    """Plan the curve, fitted-value and residual sheets of a strip mean."""
+    Every number comes from the result: the grid, each strip's count and sum, each row's
+    centre, whether it lies in that strip, its leave-one-out value and the RMSE.
+    """
+    res = fitted.result
     tag, y = model.tag, model.y
     xname = model.xs[0].name
-    n = len(model.used)
-    x = [float(v) for v in model.X[:, 0]]
-    yv = [float(v) for v in model.Y]
-    w = float(model.settings["width"])
+    n = res.n_
+    x = res.x_.tolist()
+    yv = res.y_.tolist()
+    w = res.width_
     ss = SheetPlan(sheet_title(tag, "strip"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
     last = FIRST_ROW + n - 1
@@ -64,41 +61,35 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     ss.put(4, 2, "half-width of each strip (setting)", style="note")
     ss.put(5, 0, "grid", style="label")
     ss.put(5, 1, "evenly spaced" if even else "distinct values")
-    ss.put(5, 2, "101 centres from the smallest to the largest x" if even
+    ss.put(5, 2, f"{EVEN_CENTRES} centres from the smallest to the largest x" if even
            else "one centre at each distinct x", style="note")
     w_ref = absolute(4, 1)  # on the curve sheet itself
     w_full = ss.ref(4, 1)  # from the fitted-value sheet
-    lo = min(x)
-    step = (max(x) - lo) / 100 if even else 0.0
     if even:
         ss.put(6, 0, "lowest centre", style="label")
-        ss.put(6, 1, lo, f"=MIN({xs})", "num")
+        ss.put(6, 1, res.lo_, f"=MIN({xs})", "num")
         ss.put(7, 0, "step", style="label")
-        ss.put(7, 1, step, f"=(MAX({xs})-MIN({xs}))/100", "num")
+        ss.put(7, 1, res.step_, f"=(MAX({xs})-MIN({xs}))/{_LAST}", "num")
     heads = ["centre no.", "centre", "rows in strip", f"sum of {y.name}",
              f"strip mean of {y.name}", "note"]
     for c, h in enumerate(heads):
         ss.put(_TABLE, c, h, style="head")
-    centres = [float(c) for c in res.centres_]
+    centres = res.centres_.tolist()
+    counts, sums, means = res.count_.tolist(), res.sum_.tolist(), res.mean_.tolist()
     first = _TABLE + 1
-    counts, sums = [], []
     for j, cval in enumerate(centres):
         r = first + j
         R = r + 1
         ss.put(r, 0, j + 1, style="int")
         if even:
-            cval = lo + j * step
             ss.put(r, 1, cval, f"={absolute(6, 1)}+{j}*{absolute(7, 1)}", "num")
         else:
             ss.put(r, 1, cval, style="num")
-        members = [i for i in range(n) if _inside(x[i], cval, w)]
-        cnt, tot = len(members), math.fsum(yv[i] for i in members)
-        counts.append(cnt)
-        sums.append(tot)
+        cnt, tot = counts[j], sums[j]
         cond = f"--(ABS({xs}-B{R})<={w_ref}*{EDGE})"
         ss.put(r, 2, cnt, f"=SUMPRODUCT({cond})", "int")
         ss.put(r, 3, tot, f"=SUMPRODUCT({cond},{ys})", "num")
-        ss.put(r, 4, tot / cnt if cnt else "", f'=IF(C{R}=0,"",D{R}/C{R})', "num")
+        ss.put(r, 4, _num(means[j]), f'=IF(C{R}=0,"",D{R}/C{R})', "num")
         ss.put(r, 5, "" if cnt else "empty strip: no rows within ± width",
                f'=IF(C{R}=0,"empty strip: no rows within ± width","")', "note")
     g_last = first + len(centres) - 1
@@ -113,31 +104,26 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
           f"sum of {y.name}", "in its strip (1/0)", f"fitted {y.name}", "note"]
     for c, h in enumerate(fh):
         fs.put(3, c, h, style="head")
-    fitted = np.full(n, np.nan)
+    f_idx = _lookup_formula(even, col["centre"], ss)
+    row_centre, in_strip = res.row_centre_.tolist(), res.in_strip_.tolist()
+    fit_vals = res.fitted_.tolist()
     refs = []
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         R = r + 1
+        j = row_centre[i]
         fs.put(r, 0, y.row_of(int(idx)), style="int")
         fs.put(r, 1, yv[i], f"={y.cell(int(idx))}", "num")
         fs.put(r, 2, x[i], f"={model.xs[0].cell(int(idx))}", "num")
-        j, f_idx = _lookup(x[i], centres, lo, step, even, col["centre"], ss)
         fs.put(r, 3, j + 1, f_idx.format(x=f"C{R}"), "int")
-        cnt, tot = counts[j], sums[j]
-        fs.put(r, 4, cnt, f"=INDEX({col['count']},D{R})", "int")
-        fs.put(r, 5, tot, f"=INDEX({col['sum']},D{R})", "num")
-        ins = _inside(x[i], lo + j * step if even else centres[j], w)
-        fs.put(r, 6, int(ins), f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_full}*{EDGE},1,0)",
-               "int")
-        if ins:
-            value = (tot - yv[i]) / (cnt - 1) if cnt - 1 else None
-        else:
-            value = tot / cnt if cnt else None
-        if value is not None:
-            fitted[i] = value
-        fs.put(r, 7, "" if value is None else value,
+        fs.put(r, 4, counts[j], f"=INDEX({col['count']},D{R})", "int")
+        fs.put(r, 5, sums[j], f"=INDEX({col['sum']},D{R})", "num")
+        fs.put(r, 6, int(in_strip[i]),
+               f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_full}*{EDGE},1,0)", "int")
+        blank = math.isnan(fit_vals[i])
+        fs.put(r, 7, _num(fit_vals[i]),
                f'=IF(G{R}=1,IF(E{R}-1=0,"",(F{R}-B{R})/(E{R}-1)),IF(E{R}=0,"",F{R}/E{R}))', "num")
-        fs.put(r, 8, "no other row within ± width" if value is None else "",
+        fs.put(r, 8, "no other row within ± width" if blank else "",
                f'=IF(H{R}="","no other row within ± width","")', "note")
         refs.append(fs.ref(r, 7, fixed=False))
     fs.widths = {0: 9, 7: 16, 8: 26}
@@ -145,76 +131,63 @@ def plan_strip(model: ModelData, res: Any, version: str) -> StripSheets:
     names: list[tuple[str, str]] = []
     side = len(fh) + 1
     if model.new is not None:
-        means = [t / c if c else "" for t, c in zip(sums, counts)]
-        side = _new_rows(fs, model, side, centres, means, lo, step, even, ss, col, names)
+        side = _new_rows(fs, model, fitted, side, ss, col, names)
     plan_left_out(fs, model, side)
 
-    rs, resid = plan_residual_sheet(model, refs, fitted,
-                                    "residual = observed − fitted (leave-one-out strip mean); "
-                                    "blank where the row's strip holds no other row.")
+    rs = plan_residual_sheet(model, refs, res.fitted_, res.resid_,
+                             "residual = observed − fitted (leave-one-out strip mean); "
+                             "blank where the row's strip holds no other row.")
     # summary under the settings, on the curve sheet
     r_rng = rs.col_range(3, FIRST_ROW, last)
-    ok = resid[~np.isnan(resid)]
     ss.put(4, 4, "rows used", style="label")
     ss.put(4, 5, n, f"=COUNT({ys})", "int")
     ss.put(5, 4, "rows with a fitted value", style="label")
-    ss.put(5, 5, int(ok.size), f"=COUNT({r_rng})", "int")
+    ss.put(5, 5, res.n_fitted_, f"=COUNT({r_rng})", "int")
     ss.put(6, 4, "RMSE (leave-one-out)", style="label")
-    ss.put(6, 5, math.sqrt(fsum_sq(ok) / ok.size) if ok.size else "n/a",
+    ss.put(6, 5, res.rmse_ if res.n_fitted_ else "n/a",
            f'=IF(F6=0,"n/a",SQRT(SUMSQ({r_rng})/F6))', "num")
     ss.widths = {0: 14, 1: 14, 2: 14, 3: 16, 4: 24, 5: 34}
     ss.freeze = (_TABLE + 1, 0)
     names = [(f"sf_{tag}_fitted", fs.col_range(7, FIRST_ROW, last)),
              (f"sf_{tag}_resid", r_rng)] + names
-    return StripSheets([ss, fs, rs], names)
+    return Planned([ss, fs, rs], names)
 
 
-def _lookup(x: float, centres: list[float], lo: float, step: float, even: bool,
-            centre_rng: str, ss: SheetPlan) -> tuple[int, str]:
-    """The row's centre index (0-based) and the formula template that finds it."""
+def _lookup_formula(even: bool, centre_rng: str, ss: SheetPlan) -> str:
+    """The formula template that finds a row's centre number (``{x}``: the row's x cell)."""
     if not even:
-        return centres.index(x), f"=MATCH({{x}},{centre_rng},0)"
-    j = min(100, max(0, math.floor((x - lo) / step + 0.5)))
-    return j, f"=MIN(101,MAX(1,ROUND(({{x}}-{ss.ref(6, 1)})/{ss.ref(7, 1)},0)+1))"
+        return f"=MATCH({{x}},{centre_rng},0)"
+    return (f"=MIN({EVEN_CENTRES},MAX(1,ROUND(({{x}}-{ss.ref(6, 1)})/{ss.ref(7, 1)},0)+1))")
 
 
-def _new_rows(fs: SheetPlan, model: ModelData, side: int, centres: list[float],
-              means: list[Any], lo: float, step: float, even: bool, ss: SheetPlan,
-              col: dict[str, str], names: list[tuple[str, str]]) -> int:
+def _new_rows(fs: SheetPlan, model: ModelData, fitted: Fitted[StripMeanResult], side: int,
+              ss: SheetPlan, col: dict[str, str], names: list[tuple[str, str]]) -> int:
     """Predictions for new rows: the strip mean at the nearest centre (one lookup each)."""
-    new = model.new
-    assert new is not None
+    new, res = model.new, fitted.result
+    if new is None or fitted.new is None:
+        raise ValueError("_new_rows needs declared new rows and their predictions")
     fs.put(2, side, "New rows: the strip mean at the nearest centre (on a tie, the lower).",
            style="note")
     for c, h in enumerate(["new row", model.xs[0].name, "centre no.",
                            f"predicted {model.y.name}"]):
         fs.put(3, side + c, h, style="head")
     xl, il = col_letter(side + 2), col_letter(side + 3)
-    cen, g = col["centre"], len(centres)
+    cen, g = col["centre"], len(res.centres_)
+    centre = res.centre_index(new.X[:, 0]).tolist()
+    pred = np.asarray(fitted.new, dtype=float).tolist()
     for i in range(new.n):
         r = FIRST_ROW + i
         R = r + 1
-        xv = float(new.X[i, 0])
         fs.put(r, side, new.columns[0].row_of(i), style="int")
-        fs.put(r, side + 1, xv, f"={new.columns[0].cell(i)}", "num")
-        if even:
-            j, f_idx = _lookup(xv, centres, lo, step, True, cen, ss)
-            f_idx = f_idx.format(x=f"{xl}{R}")
+        fs.put(r, side + 1, float(new.X[i, 0]), f"={new.columns[0].cell(i)}", "num")
+        if res.grid_kind_ == "even":
+            f_idx = _lookup_formula(True, cen, ss).format(x=f"{xl}{R}")
         else:
-            j = _nearest(xv, centres)
             below = f"IFERROR(MATCH({xl}{R},{cen},1),1)"
             f_idx = (f"=IF({below}<{g},IF(INDEX({cen},{below}+1)-{xl}{R}<{xl}{R}-INDEX({cen},"
                      f"{below}),{below}+1,{below}),{below})")
-        fs.put(r, side + 2, j + 1, f_idx, "int")
-        fs.put(r, side + 3, means[j], f"=INDEX({col['mean']},{il}{R})", "num")
+        fs.put(r, side + 2, centre[i] + 1, f_idx, "int")
+        fs.put(r, side + 3, _num(pred[i]), f"=INDEX({col['mean']},{il}{R})", "num")
     names.append((f"sf_{model.tag}_pred",
                   fs.col_range(side + 3, FIRST_ROW, FIRST_ROW + new.n - 1)))
     return side + 5
-
-
-def _nearest(x: float, centres: list[float]) -> int:
-    """What the new-row lookup formula finds on a sorted distinct grid (0-based)."""
-    below = max(0, bisect.bisect_right(centres, x) - 1)
-    if below + 1 < len(centres) and centres[below + 1] - x < x - centres[below]:
-        return below + 1
-    return below

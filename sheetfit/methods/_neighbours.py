@@ -1,0 +1,36 @@
+"""What the two neighbour methods share: the k and standard-units settings, figures, cautions."""
+
+from __future__ import annotations
+
+from ..declare.model import ModelData
+from ..fit.neighbours import NeighbourMeanResult, NeighbourVoteResult
+from ..settings import Rule, k_value, yes_no
+
+__all__ = ["RULES", "cautions", "k_figure"]
+
+RULES = (
+    Rule("k", "a whole number of at least 1, or auto", None, k_value,
+         "how many nearest neighbours; auto picks the k with the smallest leave-one-out error"),
+    Rule("standard_units", "yes or no", True, yes_no,
+         "measure distances in standard units (z = (x - mean) / SD)"),
+)
+
+
+def k_figure(res: NeighbourMeanResult | NeighbourVoteResult) -> str:
+    how = "given" if res.k_given_ else "chosen by leave-one-out error"
+    return f"k = {res.k_} ({how}), standard units {'on' if res.scaling_.on else 'off'}"
+
+
+def cautions(model: ModelData, res: NeighbourMeanResult | NeighbourVoteResult) -> list[str]:
+    out = []
+    table_end = len(res.k_table_)
+    if not res.k_given_ and res.k_ == table_end and table_end < res.n_ - 1:
+        out.append(f"k = {res.k_} was chosen at the end of the k table; a larger k may "
+                   "do as well or better (set k to try)")
+    if not res.scaling_.on and len(res.names_) > 1:
+        sd = res.X_.std(axis=0)
+        if sd.min() > 0 and sd.max() / sd.min() > 10:
+            out.append(f"standard units are off and the attributes' spreads differ "
+                       f"{sd.max() / sd.min():.0f}-fold: the widest attribute dominates "
+                       "the distances")
+    return out

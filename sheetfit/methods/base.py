@@ -1,0 +1,42 @@
+"""What a method is: one record with everything the rest of sheetfit needs to know of it.
+
+A method brings its own numeric core (``sheetfit/fit/``), its own sheet planner
+(``sheetfit/sheets/``) and this record; the registry (``sheetfit.methods``) lists the
+records. Nothing outside a method's own modules and the registry names a method.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Generic
+
+from ..declare.model import ModelData
+from ..fit.results import Fitted, R
+from ..settings import Rule
+from ..sheets.plan import Planned
+
+__all__ = ["Fitted", "Method", "R"]
+
+@dataclass(frozen=True)
+class Method(Generic[R]):
+    """One method: its word and description, settings, what it reads, fits, plans and says.
+
+    ``fit`` runs the numeric core on a declared model's arrays (no workbook access);
+    ``plan`` lays out the sheets from the fitted result; ``figures`` and ``cautions``
+    give the summary lines for the index sheet and the command line; ``check`` refuses
+    declarations only this method cannot use (after the cells are read).
+    """
+
+    word: str
+    title: str
+    description: str
+    rules: tuple[Rule, ...]
+    fit: Callable[[ModelData], R]
+    plan: Callable[[ModelData, Fitted[R], str], Planned]
+    figures: Callable[[ModelData, R], list[str]]
+    cautions: Callable[[ModelData, R], list[str]]
+    required: tuple[str, ...] = ()
+    labels: bool = False
+    max_attributes: int | None = None
+    check: Callable[[ModelData], None] | None = None
