@@ -22,7 +22,8 @@ _TESTS = Path(__file__).resolve().parent
 if str(_TESTS) not in sys.path:
     sys.path.insert(0, str(_TESTS))
 
-from engine.recalc import INSTALL_HINT, Engine, find_engine
+from engine.locate import INSTALL_HINT, find_engine
+from engine.process import Engine
 
 
 def _unavailable(message: str) -> NoReturn:

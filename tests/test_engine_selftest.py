@@ -10,17 +10,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 import xlsxwriter
-from engine.recalc import (
-    CachedCell,
-    Engine,
-    EngineCrashed,
-    EngineTimeout,
-    RecalcCell,
-    assert_cached_values_hold,
-    cached_formula_values,
-    compare_books,
-    compare_to_cached,
-)
+from engine.cached import CachedCell, cached_formula_values
+from engine.compare import assert_cached_values_hold, compare_books, compare_to_cached
+from engine.process import Engine, EngineCrashed, EngineTimeout
+from engine.recalculated import RecalcCell
 
 COEF_SHEET = "sf demo coef"
 

@@ -49,7 +49,7 @@ def _book(tmp_path: Path, rows, opts, new=None, name="b.xlsx") -> Path:
 
 
 def _check_engine(engine, path: Path) -> int:
-    from engine.recalc import assert_cached_values_hold
+    from engine.compare import assert_cached_values_hold
 
     # 1e-9 relative / 1e-12 absolute: two engines summing in different orders
     return assert_cached_values_hold(path, engine, rel=1e-9, abs_=1e-12)

@@ -58,7 +58,7 @@ def test_example_book_recalculates_to_cached_values(engine, tmp_path: Path, book
 
 
 def engine_compare(engine, path: Path):
-    from engine.recalc import compare_to_cached
+    from engine.compare import compare_to_cached
 
     # 1e-9 relative, 1e-12 absolute near 0: different summation orders in two engines
     return compare_to_cached(path, engine, rel=1e-9, abs_=1e-12)
@@ -190,7 +190,7 @@ def test_awkward_sheet_names_are_quoted_in_formulas(engine, tmp_path: Path) -> N
     p = make_book(tmp_path / "odd.xlsx", {title: line_rows(8)},
                   {"sf_odd_y": f"{quoted}!$A$1:$A$9", "sf_odd_x": f"{quoted}!$B$1:$B$9"})
     refresh(p)
-    from engine.recalc import cached_formula_values
+    from engine.cached import cached_formula_values
 
     formulas = [c.formula for c in cached_formula_values(p).values()]
     assert any(quoted in f for f in formulas)

@@ -28,18 +28,16 @@ from typing import Any, TextIO
 import uno  # type: ignore[import-not-found]
 from com.sun.star.beans import PropertyValue  # type: ignore[import-not-found]
 
+# The address helpers live beside this script (addresses.py, shared with the cached-value
+# reader). A script's folder is on sys.path unless safe-path mode is on, so make sure.
+_HERE = os.path.dirname(os.path.abspath(__file__))
+if _HERE not in sys.path:
+    sys.path.insert(0, _HERE)
+
+from addresses import column_letters
+
 FORMULA_CONTENT = 16  # com.sun.star.sheet.CellFlags.FORMULA
 ERROR_RESULT = 4  # com.sun.star.sheet.FormulaResult.ERROR
-
-
-def column_letters(index: int) -> str:
-    """Spreadsheet column letters for a 0-based column index."""
-    letters = ""
-    index += 1
-    while index:
-        index, rem = divmod(index - 1, 26)
-        letters = chr(65 + rem) + letters
-    return letters
 
 
 def prop(name: str, value: Any) -> Any:
