@@ -1,12 +1,17 @@
 """What sheetfit owns in a user's workbook: sheet names, output names, the owned-sheet marker.
 
 One place for the conventions that the reader (declarations), the sheet planner
-and the grafter must agree on.
+and the grafter must agree on, including the one rule for "this defined name is
+sheetfit's" (:func:`is_ours`).
 """
 
 from __future__ import annotations
 
 import re
+from collections.abc import Iterable, Sequence
+from typing import Protocol
+
+from .a1 import quote_sheet
 
 __all__ = [
     "INDEX_SHEET",
@@ -16,6 +21,8 @@ __all__ = [
     "OUTPUT_ROLES",
     "PREFIX",
     "SHEET_KINDS",
+    "NameLike",
+    "is_ours",
     "sheet_title",
     "split_name",
 ]
@@ -64,3 +71,40 @@ def split_name(name: str) -> tuple[str, str] | None:
     if not m:
         return None
     return m.group("tag"), m.group("role").lower()
+
+
+class NameLike(Protocol):
+    """What :func:`is_ours` reads of a defined name (the reader's ``DefinedName`` has it)."""
+
+    @property
+    def name(self) -> str: ...
+    @property
+    def text(self) -> str: ...
+    @property
+    def local_sheet_id(self) -> int | None: ...
+
+
+def _refers_to(text: str, titles: Iterable[str]) -> bool:
+    """Whether a name's formula text points into one of the sheets titled ``titles``."""
+    low = text.lower()
+    for t in titles:
+        for form in {quote_sheet(t), "'" + t.replace("'", "''") + "'"}:
+            if form.lower() + "!" in low:
+                return True
+    return False
+
+
+def is_ours(d: NameLike, owned: Sequence[str], removed_idx: set[int]) -> bool:
+    """A name sheetfit wrote last time: scoped to an owned sheet, or an output name into one.
+
+    ``owned`` are the titles of the owned sheets, ``removed_idx`` their 0-based
+    positions (what ``localSheetId`` refers to). An output name that reads #REF!
+    (its owned sheet was deleted by hand) is ours too: it points nowhere and is
+    replaced by the fresh one. The grafter and the declarations both use this rule.
+    """
+    if d.local_sheet_id is not None:
+        return d.local_sheet_id in removed_idx
+    parts = split_name(d.name)
+    if parts is None or parts[1] not in OUTPUT_ROLES:
+        return False
+    return _refers_to(d.text, owned) or "#REF!" in d.text.upper()

@@ -14,16 +14,16 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
-from .book.graft import OutputName, graft
-from .book.package import Package, open_package
-from .book.read import BookValues
-from .book.render import render
 from .declare.model import ModelData, find_models
 from .errors import Context, DataError, SettingError, SheetfitCaution, SheetfitError
 from .methods import REGISTRY, Fitted
+from .reader.package import Package, open_package
+from .reader.values import BookValues
 from .sheets.index import plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
+from .writer.graft import OutputName, graft
+from .writer.render import render
 
 __all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
 
@@ -87,6 +87,7 @@ def plan_book(
 
 
 def _values(pkg: Package, path: Path) -> BookValues:
+    """A values reader for the package's worksheets; the caller closes it."""
     parts = {s.name: s.part for s in pkg.sheets if "chartsheet" not in s.part.lower()}
     return BookValues(path, parts, pkg.date1904)
 
@@ -103,13 +104,14 @@ def refresh(book: str | Path, out: str | Path | None = None,
     file = source.name
     try:
         pkg = open_package(source)
-        models = find_models(pkg, _values(pkg, source), file, REGISTRY)
+        with _values(pkg, source) as values:
+            models = find_models(pkg, values, file, REGISTRY)
         fits = [(m, fit_model(m)) for m in models]
         stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
         plan, summaries = plan_book(fits, stamp)
         with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
             rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
-            graft(source, rendered, [OutputName(n, t) for n, t in plan.names], target)
+            graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], target)
     except SheetfitError as exc:
         raise exc.with_file(file) from None
     return RefreshReport(source, target, stamp, summaries)

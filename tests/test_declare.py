@@ -8,10 +8,10 @@ from pathlib import Path
 import pytest
 from books import line_rows, make_book
 
-from sheetfit.book.package import open_package
 from sheetfit.declare.model import find_models
 from sheetfit.errors import DataError, DeclarationError, SettingError
 from sheetfit.methods import REGISTRY
+from sheetfit.reader.package import open_package
 from sheetfit.refresh import _values, refresh
 
 

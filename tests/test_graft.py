@@ -9,14 +9,15 @@ import pytest
 import xlsxwriter
 from lxml import etree
 
-from sheetfit import book
-from sheetfit.book._graft_app import update_app
-from sheetfit.book._graft_remove import filter_calc_chain
-from sheetfit.book._graft_sheet import convert_sheet, shared_strings
-from sheetfit.book._graft_workbook import next_number
-from sheetfit.book._styles import StyleMap, merge_styles
-from sheetfit.book.graft import OutputName, graft
-from sheetfit.book.package import open_package
+from sheetfit import reader as book
+from sheetfit.errors import PackageError
+from sheetfit.reader.package import open_package
+from sheetfit.writer._graft_app import update_app
+from sheetfit.writer._graft_remove import filter_calc_chain
+from sheetfit.writer._graft_sheet import convert_sheet, shared_strings
+from sheetfit.writer._graft_workbook import next_number
+from sheetfit.writer._styles import StyleMap, merge_styles
+from sheetfit.writer.graft import OutputName, graft
 
 M = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
 R = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
@@ -202,8 +203,21 @@ def test_part_numbers_above_dangling_and_case_variants(tmp_path: Path) -> None:
         ct_extra=f'<Override PartName="/xl/worksheets/sheet12.xml" ContentType="{CT_WS}"/>',
         wb_rels_extra=f'<Relationship Id="rId9" Type="{R}/x" Target="worksheets/sheet15.xml"/>',
     )  # fmt: skip
-    report = graft(src, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], tmp_path / "o.xlsx")
+    rendered = _rendered(tmp_path / "r.xlsx", ["sf a coef"])
+    report = graft(open_package(src), rendered, [], tmp_path / "o.xlsx")
     assert report.parts_added == ("xl/worksheets/sheet16.xml",)
+
+
+def test_refuses_package_saved_again_since_it_was_read(tmp_path: Path) -> None:
+    """A book saved again after it was read (its workbook part changed) is refused, untouched."""
+    src = _package(tmp_path / "u.xlsx", ["A"])
+    pkg = open_package(src)
+    _package(src, ["A", "B"])
+    before = src.read_bytes()
+    out = tmp_path / "o.xlsx"
+    with pytest.raises(PackageError, match=r"u\.xlsx.*saved again"):
+        graft(pkg, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
+    assert src.read_bytes() == before and not out.exists()
 
 
 def test_local_sheet_ids_shift_when_owned_sheet_moved(tmp_path: Path) -> None:
@@ -222,7 +236,7 @@ def test_local_sheet_ids_shift_when_owned_sheet_moved(tmp_path: Path) -> None:
     )  # fmt: skip
     out = tmp_path / "o.xlsx"
     new_names = [OutputName("sf_a_coef", "'sf a coef'!$A$2")]
-    report = graft(src, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), new_names, out)
+    report = graft(open_package(src), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), new_names, out)
     assert report.sheets_removed == ("sf a coef",)
     pkg = open_package(out)
     assert [s.name for s in pkg.sheets] == ["A", "B", "C", "sf a coef"]
@@ -260,7 +274,7 @@ def test_calc_chain_of_owned_sheets_only_is_deleted(tmp_path: Path) -> None:
         ct_extra=f'<Override PartName="/xl/calcChain.xml" ContentType="{ct_calc}"/>',
     )  # fmt: skip
     out = tmp_path / "o.xlsx"
-    report = graft(src, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
+    report = graft(open_package(src), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
     assert "xl/calcChain.xml" in report.parts_removed
     with zipfile.ZipFile(out) as z:
         assert "xl/calcChain.xml" not in z.namelist()
@@ -303,7 +317,7 @@ def test_defined_names_inserted_in_schema_order(tmp_path: Path, tail: str, befor
     """A missing definedNames goes after sheets/externalReferences and before calcPr."""
     src = _package(tmp_path / "u.xlsx", ["Data"], wb_tail=tail)
     out = tmp_path / "o.xlsx"
-    graft(src, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
+    graft(open_package(src), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
     root = etree.fromstring(_read(out, "xl/workbook.xml"), _PARSER)
     kids = [etree.QName(e).localname for e in root]
     i = kids.index("definedNames")
@@ -329,7 +343,7 @@ def test_utf16_and_prefixed_workbook_stay_so(tmp_path: Path) -> None:
                 info, text.encode("utf-16") if info.filename == "xl/workbook.xml" else data
             )
     out = tmp_path / "o.xlsx"
-    graft(fixed, _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
+    graft(open_package(fixed), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
     data = _read(out, "xl/workbook.xml")
     assert data[:2] == b"\xff\xfe"
     new = data.decode("utf-16")

@@ -9,8 +9,10 @@ import pytest
 import xlsxwriter
 from books import soffice_convert
 
-from sheetfit.book.package import DefinedName, open_package
 from sheetfit.errors import PackageError
+from sheetfit.reader import values as values_mod
+from sheetfit.reader.package import DefinedName, open_package
+from sheetfit.refresh import _values
 
 
 def _soffice_xlsx(src: Path, outdir: Path) -> Path:
@@ -153,3 +155,25 @@ def test_refuses_missing_workbook(tmp_path: Path) -> None:
     dst2 = _rewrite(dst, tmp_path / "norels.xlsx", {"_rels/.rels": None})
     with pytest.raises(PackageError, match="no package relationships"):
         open_package(dst2)
+
+
+def test_values_come_from_one_open_zip_closed_on_leaving(tmp_path: Path, monkeypatch) -> None:
+    """The values reader opens the zip once for all its sheets and closes it on leaving;
+    sheets read before stay readable, a sheet not read yet is then refused."""
+    p = _book(tmp_path / "b.xlsx")
+    pkg = open_package(p)
+    opened: list[zipfile.ZipFile] = []
+    real = zipfile.ZipFile
+
+    def counting(*args, **kwargs) -> zipfile.ZipFile:
+        opened.append(real(*args, **kwargs))
+        return opened[-1]
+
+    monkeypatch.setattr(values_mod.zipfile, "ZipFile", counting)
+    with _values(pkg, p) as values:
+        assert values.sheet("Data").get(2, 2).number == 2.5
+        assert values.sheet("my data").get(1, 1).number == 1.0
+    assert len(opened) == 1 and opened[0].fp is None
+    assert values.sheet("Data").get(3, 2).number == 5.0
+    with pytest.raises(ValueError, match="closed"):
+        values.sheet("Hide me")

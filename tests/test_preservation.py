@@ -24,11 +24,11 @@ import xlsxwriter
 from books import soffice_convert
 from lxml import etree
 
-import sheetfit.book.graft as graft_mod
-from sheetfit.book.graft import OutputName, graft
-from sheetfit.book.package import open_package, resolve_target
+import sheetfit.writer.graft as graft_mod
 from sheetfit.errors import DeclarationError
 from sheetfit.owned import MARKER_NAME
+from sheetfit.reader.package import open_package, resolve_target
+from sheetfit.writer.graft import OutputName, graft
 
 MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
 SHARED = ("xl/workbook.xml", "xl/_rels/workbook.xml.rels", "[Content_Types].xml")
@@ -234,7 +234,7 @@ def user(request: pytest.FixtureRequest, books: dict[str, Path], tmp_path: Path)
 def test_non_owned_parts_keep_their_bytes(user: Path, books: dict[str, Path], tmp_path: Path):
     """Every entry sheetfit does not own or share is byte-identical, in the same order."""
     out = tmp_path / "out.xlsx"
-    report = graft(user, books["rendered"], NAMES, out)
+    report = graft(open_package(user), books["rendered"], NAMES, out)
     assert report.sheets_added == TITLES and report.sheets_removed == ()
     src, res = _entries(user), _entries(out)
     owned = _owned_parts(out)
@@ -255,7 +255,7 @@ def test_non_owned_parts_keep_their_bytes(user: Path, books: dict[str, Path], tm
 def test_shared_parts_only_gain_owned_entries(user: Path, books: dict[str, Path], tmp_path: Path):
     """workbook, its rels, content types, styles, app properties: owned entries added, no more."""
     out = tmp_path / "out.xlsx"
-    graft(user, books["rendered"], NAMES, out)
+    graft(open_package(user), books["rendered"], NAMES, out)
     src, res = _entries(user), _entries(out)
     owned = {p.lower() for p in _owned_parts(out)}
     for name in SHARED:
@@ -286,8 +286,8 @@ def test_shared_parts_only_gain_owned_entries(user: Path, books: dict[str, Path]
 def test_second_graft_is_identical(user: Path, books: dict[str, Path], tmp_path: Path):
     """Grafting the same render again gives the same package, entry for entry, byte for byte."""
     one, two = tmp_path / "one.xlsx", tmp_path / "two.xlsx"
-    graft(user, books["rendered"], NAMES, one)
-    report = graft(one, books["rendered"], NAMES, two)
+    graft(open_package(user), books["rendered"], NAMES, one)
+    report = graft(open_package(one), books["rendered"], NAMES, two)
     assert report.sheets_removed == TITLES
     assert set(report.parts_added) <= set(report.parts_removed)
     e1, e2 = _entries(one), _entries(two)
@@ -300,7 +300,7 @@ def test_second_graft_is_identical(user: Path, books: dict[str, Path], tmp_path:
 def test_libreoffice_opens_the_graft(user: Path, books: dict[str, Path], tmp_path: Path):
     """LibreOffice loads the grafted book and shows the owned sheet's values and formats."""
     out = tmp_path / "grafted.xlsx"
-    graft(user, books["rendered"], NAMES, out)
+    graft(open_package(user), books["rendered"], NAMES, out)
     csv = _soffice(
         out, tmp_path / "csv",
         "csv:Text - txt - csv (StarCalc):44,34,76,1,,0,false,true,true,false,false,-1", "csv",
@@ -313,12 +313,12 @@ def test_removal_after_libreoffice_resave(books: dict[str, Path], tmp_path: Path
     """After LibreOffice re-saves a grafted book, the marker still finds the owned sheets."""
     first = tmp_path / "first.xlsx"
     shutil.copyfile(books["xlsxwriter"], tmp_path / "u.xlsx")
-    graft(tmp_path / "u.xlsx", books["rendered"], NAMES, first)
+    graft(open_package(tmp_path / "u.xlsx"), books["rendered"], NAMES, first)
     resaved = _soffice(first, tmp_path / "lo", "xlsx", "xlsx")
     pkg = open_package(resaved)
     assert [s.name for s in pkg.owned_sheets()] == list(TITLES)
     again = tmp_path / "again.xlsx"
-    report = graft(resaved, books["rendered"], NAMES, again)
+    report = graft(open_package(resaved), books["rendered"], NAMES, again)
     assert report.sheets_removed == TITLES
     pkg2 = open_package(again)
     assert [s.name for s in pkg2.sheets] == ["Data", "More", *TITLES]
@@ -343,7 +343,7 @@ def test_refuses_user_sheet_with_owned_title(tmp_path: Path, books: dict[str, Pa
     wb.close()
     before = p.read_bytes()
     with pytest.raises(DeclarationError, match=r"clash\.xlsx.*called 'SF Demo Coef'.*rename"):
-        graft(p, books["rendered"], NAMES, p)
+        graft(open_package(p), books["rendered"], NAMES, p)
     assert p.read_bytes() == before
     assert os.listdir(tmp_path) == ["clash.xlsx"]
 
@@ -357,7 +357,7 @@ def test_refuses_user_name_colliding_with_output(tmp_path: Path, books: dict[str
     wb.close()
     before = p.read_bytes()
     with pytest.raises(DeclarationError, match=r"name SF_DEMO_COEF"):
-        graft(p, books["rendered"], NAMES, p)
+        graft(open_package(p), books["rendered"], NAMES, p)
     assert p.read_bytes() == before
     assert os.listdir(tmp_path) == ["names.xlsx"]
 
@@ -374,10 +374,10 @@ def test_in_place_and_failure_leave_no_temp(tmp_path: Path, books: dict[str, Pat
     with monkeypatch.context() as m:
         m.setattr(graft_mod.os, "replace", boom)
         with pytest.raises(OSError, match="disk full"):
-            graft(p, books["rendered"], NAMES, p)
+            graft(open_package(p), books["rendered"], NAMES, p)
     assert p.read_bytes() == before
     assert os.listdir(tmp_path) == ["book.xlsx"]
-    graft(p, books["rendered"], NAMES, p)
+    graft(open_package(p), books["rendered"], NAMES, p)
     assert [s.name for s in open_package(p).owned_sheets()] == list(TITLES)
     assert os.listdir(tmp_path) == ["book.xlsx"]
 

@@ -12,11 +12,11 @@ import pytest
 from books import make_book
 
 import sheetfit
-from sheetfit.book.package import open_package
-from sheetfit.book.render import render
 from sheetfit.declare.model import find_models
 from sheetfit.methods import REGISTRY
+from sheetfit.reader.package import open_package
 from sheetfit.refresh import _values, fit_model, plan_book
+from sheetfit.writer.render import render
 
 
 def _plan(tmp_path: Path, rows, names):

@@ -17,11 +17,10 @@ from typing import Protocol
 import numpy as np
 
 from ..a1 import cell_ref, col_letter, quote_sheet
-from ..book.graft import is_ours
-from ..book.package import DefinedName, Package
-from ..book.read import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
 from ..errors import Context, DataError, DeclarationError
-from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, split_name
+from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
+from ..reader.package import DefinedName, Package
+from ..reader.values import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
 from ..settings import MethodSettings, Settings, parse_settings
 from .refs import Area, RefError, parse_areas
 
@@ -130,7 +129,7 @@ def _collect(pkg: Package, file: str) -> dict[str, _Decl]:
         tag, role = parts
         ctx = Context(file, d.name)
         if role in OUTPUT_ROLES:
-            if is_ours(d, titles, indices):  # the grafter's own rule: replaced on refresh
+            if is_ours(d, titles, indices):  # the grafter's rule too: replaced on refresh
                 continue
             raise DeclarationError(
                 f"'{role}' is a role sheetfit writes (results), so this name of yours would be "

@@ -15,8 +15,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from xml.etree.ElementTree import Element
 
-from sheetfit.book import _graft_text as tx
-from sheetfit.book.package import NS_MAIN, parse_xml
+from sheetfit.reader.package import NS_MAIN, parse_xml
+from sheetfit.writer import _graft_text as tx
 
 __all__ = ["StyleMap", "canonical", "merge_styles"]
 

@@ -85,6 +85,23 @@ class Package:
     date1904: bool
     #: zip entry names in archive order, as stored.
     entries: list[str] = field(default_factory=list, repr=False)
+    #: (CRC-32, size) of each zip entry this view was parsed from, by entry name.
+    parsed_from: dict[str, tuple[int, int]] = field(default_factory=dict, repr=False)
+
+    def still_matches(self, zf: zipfile.ZipFile) -> bool:
+        """Whether ``zf`` holds the parts this view was parsed from, unchanged (CRC and size).
+
+        A writer that splices the package's bytes by this view checks it first: the
+        file may have been saved again since it was opened.
+        """
+        for name, stamp in self.parsed_from.items():
+            try:
+                info = zf.getinfo(name)
+            except KeyError:
+                return False
+            if (info.CRC, info.file_size) != stamp:
+                return False
+        return True
 
     def owned_sheets(self) -> list[SheetEntry]:
         """Sheets carrying the hidden sheet-scoped marker name (in workbook order)."""
@@ -252,6 +269,7 @@ def open_package(path: str | Path) -> Package:
         names = _read_names(root)
         pr = root.find(f"{{{NS_MAIN}}}workbookPr")
         date1904 = pr is not None and _truthy(pr.get("date1904"))
+        sources = [z.find("_rels/.rels"), wb_part, rels_name]
         return Package(
             path=path,
             workbook_part=wb_part,
@@ -259,6 +277,7 @@ def open_package(path: str | Path) -> Package:
             defined_names=names,
             date1904=date1904,
             entries=list(z.names),
+            parsed_from={n: (zf.getinfo(n).CRC, zf.getinfo(n).file_size) for n in sources if n},
         )
 
 

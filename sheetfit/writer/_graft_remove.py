@@ -11,8 +11,8 @@ import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 
-from sheetfit.book import _graft_text as tx
-from sheetfit.book.package import Rel, parse_rels, rels_part_of
+from sheetfit.reader.package import Rel, parse_rels, rels_part_of
+from sheetfit.writer import _graft_text as tx
 
 __all__ = ["RelGraph", "build_graph", "filter_calc_chain", "parts_to_remove"]
 

@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import re
 
-from sheetfit.book import _graft_text as tx
-from sheetfit.book._styles import StyleMap
+from sheetfit.writer import _graft_text as tx
+from sheetfit.writer._styles import StyleMap
 
 __all__ = ["convert_sheet", "shared_strings"]
 

@@ -5,7 +5,8 @@ name) are removed with everything only they use, then the rendered sheets are
 added at the end of the book. Shared parts are edited by splicing text so they
 only gain or lose owned entries; every other zip entry keeps its bytes. The
 result replaces the target atomically (docs/engine-facts.md,
-section P).
+section P). The user's package comes in as the reader's view (``Package``) that
+the refresh already opened; its zip is read for part bytes.
 """
 
 from __future__ import annotations
@@ -19,27 +20,27 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-from sheetfit.book._graft_app import update_app
-from sheetfit.book._graft_remove import (
+from sheetfit.errors import Context, DeclarationError, PackageError
+from sheetfit.owned import is_ours
+from sheetfit.reader.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
+from sheetfit.writer._graft_app import update_app
+from sheetfit.writer._graft_remove import (
     build_graph,
     filter_calc_chain,
     parts_to_remove,
     relative_target,
 )
-from sheetfit.book._graft_sheet import convert_sheet, shared_strings
-from sheetfit.book._graft_workbook import (
+from sheetfit.writer._graft_sheet import convert_sheet, shared_strings
+from sheetfit.writer._graft_workbook import (
     edit_content_types,
     edit_rels,
     edit_workbook,
-    is_ours,
     next_number,
     next_rid,
 )
-from sheetfit.book._styles import StyleMap, merge_styles
-from sheetfit.book.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
-from sheetfit.errors import Context, DeclarationError, PackageError
+from sheetfit.writer._styles import StyleMap, merge_styles
 
-__all__ = ["GraftReport", "OutputName", "graft", "is_ours"]
+__all__ = ["GraftReport", "OutputName", "graft"]
 
 _CT_PART = "[Content_Types].xml"
 _APP_PART = "docProps/app.xml"
@@ -58,7 +59,7 @@ class OutputName:
 
 @dataclass(frozen=True)
 class GraftReport:
-    """What a graft changed, for logging."""
+    """What a graft removed and added: sheet titles and zip part names (the tests check it)."""
 
     sheets_removed: tuple[str, ...]
     sheets_added: tuple[str, ...]
@@ -145,17 +146,21 @@ def _check_collisions(
 
 
 def graft(
-    source: str | Path, rendered: str | Path, names: Sequence[OutputName], target: str | Path
+    pkg: Package, rendered: str | Path, names: Sequence[OutputName], target: str | Path
 ) -> GraftReport:
-    """Replace the owned sheets of ``source`` by those of ``rendered``; write ``target`` atomically.
+    """Replace the owned sheets of the package ``pkg`` by those of ``rendered``.
+
+    ``pkg`` is the user's package as :func:`~sheetfit.reader.package.open_package`
+    read it; its file (``pkg.path``) is read for part bytes and the result is
+    written to ``target`` atomically (``target`` may be ``pkg.path``).
 
     Raises DeclarationError when a sheet or workbook-scoped name of the user's
     takes a title or output name sheetfit needs, PackageError when the source
-    cannot be read; on any error neither file is changed.
+    cannot be read or was saved again since ``pkg`` was read; on any error
+    neither file is changed.
     """
-    source, rendered, target = Path(source), Path(rendered), Path(target)
+    source, rendered, target = pkg.path, Path(rendered), Path(target)
     file = str(source)
-    pkg = open_package(source)
     rb = _read_rendered(rendered)
     if rb.pkg.date1904 != pkg.date1904:
         raise ValueError("rendered book uses a different date system from the user's book")
@@ -163,7 +168,17 @@ def graft(
     titles = [r.title for r in rb.sheets]
     _check_collisions(pkg, owned, titles, names, file)
 
-    with zipfile.ZipFile(source) as zs:
+    try:
+        zs = zipfile.ZipFile(source)
+    except (zipfile.BadZipFile, OSError) as exc:
+        raise PackageError(f"not a readable zip archive ({exc})", Context(file=file)) from exc
+    with zs:
+        if not pkg.still_matches(zs):
+            raise PackageError(
+                "the workbook was saved again while sheetfit was refreshing it",
+                Context(file=file),
+                hint="refresh again",
+            )
         infos = zs.infolist()
         lower = {i.filename.lower(): i.filename for i in infos}
 
@@ -185,7 +200,8 @@ def graft(
         calc = next((r for r in wb_rels if r.type.endswith("/calcChain") and r.part), None)
         if owned and calc and calc.part and calc.part in existing and calc.part not in gone:
             data = read(calc.part)
-            assert data is not None
+            if data is None:  # calc.part is among the entries, so read() finds it
+                raise RuntimeError(f"calcChain part {calc.part} listed but not readable")
             left = filter_calc_chain(data, {s.sheet_id for s in owned})
             if left is None:
                 gone.add(calc.part)
@@ -227,7 +243,9 @@ def graft(
 
         wb_data = read(wb_part)
         wb_rels_data = read(rels_part_of(wb_part))
-        assert wb_data is not None and wb_rels_data is not None
+        if wb_data is None or wb_rels_data is None:
+            missing = wb_part if wb_data is None else rels_part_of(wb_part)
+            raise PackageError(f"part {missing} is missing", Context(file=file))
         start = next_rid([r.rid for r in wb_rels if r.rid not in drop_rids])
         rids = [f"rId{start + j}" for j in range(len(rb.sheets))]
         edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)

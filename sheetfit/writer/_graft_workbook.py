@@ -12,15 +12,14 @@ from collections.abc import Iterable, Sequence
 from typing import Protocol
 
 from sheetfit.a1 import quote_sheet
-from sheetfit.book import _graft_text as tx
-from sheetfit.book.package import NS_REL, DefinedName, Package, SheetEntry
-from sheetfit.owned import MARKER_NAME, OUTPUT_ROLES, split_name
+from sheetfit.owned import MARKER_NAME, is_ours
+from sheetfit.reader.package import NS_REL, Package, SheetEntry
+from sheetfit.writer import _graft_text as tx
 
 __all__ = [
     "edit_content_types",
     "edit_rels",
     "edit_workbook",
-    "is_ours",
     "next_number",
     "next_rid",
 ]
@@ -33,30 +32,6 @@ class _Named(Protocol):
     def name(self) -> str: ...
     @property
     def text(self) -> str: ...
-
-
-def refers_to(text: str, titles: Iterable[str]) -> bool:
-    """Whether a name's formula text points into one of the sheets titled ``titles``."""
-    low = text.lower()
-    for t in titles:
-        for form in {quote_sheet(t), "'" + t.replace("'", "''") + "'"}:
-            if form.lower() + "!" in low:
-                return True
-    return False
-
-
-def is_ours(d: DefinedName, owned: Sequence[str], removed_idx: set[int]) -> bool:
-    """A name sheetfit wrote last time: scoped to an owned sheet, or an output name into one.
-
-    An output name that reads #REF! (its owned sheet was deleted by hand) is ours too:
-    it points nowhere and is replaced by the fresh one.
-    """
-    if d.local_sheet_id is not None:
-        return d.local_sheet_id in removed_idx
-    parts = split_name(d.name)
-    if parts is None or parts[1] not in OUTPUT_ROLES:
-        return False
-    return refers_to(d.text, owned) or "#REF!" in d.text.upper()
 
 
 def next_number(in_use: Iterable[str], stem: str) -> int:

@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from xml.sax.saxutils import unescape
 
-from sheetfit.book import _graft_text as tx
+from sheetfit.writer import _graft_text as tx
 
 __all__ = ["update_app"]
 
