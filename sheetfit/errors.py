@@ -108,7 +108,15 @@ class SheetfitCaution(UserWarning):
 
 
 class ExtrapolationCaution(SheetfitCaution):
-    """A prediction lies outside the range of the data the model was fitted on."""
+    """Rows to predict lie outside the range of the data the model was fitted on.
+
+    ``rows`` holds their 0-based positions among the rows predicted, so the layer that
+    knows the cells can name them.
+    """
+
+    def __init__(self, message: str, rows: list[int]):
+        super().__init__(message)
+        self.rows = rows
 
 
 class ConditioningCaution(SheetfitCaution):

@@ -15,7 +15,14 @@ from typing import Any
 
 from . import __version__
 from .declare.model import ModelData, find_models
-from .errors import Context, DataError, SettingError, SheetfitCaution, SheetfitError
+from .errors import (
+    Context,
+    DataError,
+    ExtrapolationCaution,
+    SettingError,
+    SheetfitCaution,
+    SheetfitError,
+)
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
@@ -66,8 +73,14 @@ def fit_model(model: ModelData) -> Fitted[Any]:
             new = res.predict(model.new.X) if model.new is not None else None
         except (SettingError, DataError) as exc:
             raise _place(exc, model) from None
-    cautions = [str(w.message) for w in caught if issubclass(w.category, SheetfitCaution)]
-    return Fitted(res, new, cautions)
+    extrapolated: list[int] = []
+    cautions: list[str] = []
+    for w in caught:
+        if isinstance(w.message, ExtrapolationCaution):
+            extrapolated += w.message.rows
+        elif issubclass(w.category, SheetfitCaution):
+            cautions.append(str(w.message))
+    return Fitted(res, new, cautions, sorted(set(extrapolated)))
 
 
 def plan_book(

@@ -64,23 +64,21 @@ def _rows(n: int, what: str = "row") -> str:
     return f"{n} {what}" + ("" if n == 1 else "s")
 
 
-def _common_cautions(model: ModelData) -> list[str]:
+def _common_cautions(model: ModelData, fitted: Fitted[Any]) -> list[str]:
     out: list[str] = []
     if model.left_out:
         n = len(model.left_out)
         out.append(f"{_rows(n, 'data row')} left out of the fit; sheet "
                    f"'{sheet_title(model.tag, 'fitted')}' lists {'it' if n == 1 else 'them'} "
                    "with the reason")
-    if model.new is not None:
-        lo, hi = model.X.min(axis=0), model.X.max(axis=0)
-        outside = np.flatnonzero(((model.new.X < lo) | (model.new.X > hi)).any(axis=1))
-        if outside.size:
-            first = model.new.columns[0]
-            rows = ", ".join(str(first.row_of(int(i))) for i in outside[:10])
-            more = "…" if outside.size > 10 else ""
-            out.append(f"{_rows(int(outside.size), 'new row')} outside the fitted range of the "
-                       f"attributes ('{first.sheet}' {'row' if outside.size == 1 else 'rows'} "
-                       f"{rows}{more}): extrapolated, read with care")
+    outside = fitted.extrapolated  # the numeric core's ExtrapolationCaution, on the cells
+    if model.new is not None and outside:
+        first = model.new.columns[0]
+        rows = ", ".join(str(first.row_of(i)) for i in outside[:10])
+        more = "…" if len(outside) > 10 else ""
+        out.append(f"{_rows(len(outside), 'new row')} outside the fitted range of the "
+                   f"attributes ('{first.sheet}' {'row' if len(outside) == 1 else 'rows'} "
+                   f"{rows}{more}): extrapolated, read with care")
     return out
 
 
@@ -98,5 +96,5 @@ def summarise(model: ModelData, method: Method[Any], fitted: Fitted[Any]) -> Mod
         n_new=0 if model.new is None else model.new.n,
         fingerprint=fingerprint(model),
         figures=method.figures(model, res),
-        cautions=_common_cautions(model) + method.cautions(model, res) + fitted.cautions,
+        cautions=_common_cautions(model, fitted) + method.cautions(model, res) + fitted.cautions,
     )

@@ -4,14 +4,22 @@ from __future__ import annotations
 
 import csv
 import math
+import warnings
 
 import numpy as np
 import pytest
 from reference.strd import REFERENCE_DIR
 
 import sheetfit.fit
-from sheetfit.errors import CollinearError, DataError, SettingError
+from sheetfit.errors import (
+    CollinearError,
+    ConditioningCaution,
+    DataError,
+    ExtrapolationCaution,
+    SettingError,
+)
 from sheetfit.fit import LeastSquares, LeastSquaresResult, leastsq
+from sheetfit.fit import checks as leastsq_checks
 
 
 def _rng() -> np.random.Generator:
@@ -203,3 +211,28 @@ def test_anscombe_quartet(which: str) -> None:
     assert res.coef_[1] == pytest.approx(0.500, abs=0.0005)
     assert res.r2_ == pytest.approx(0.816**2, abs=0.001)
     assert isinstance(res, LeastSquaresResult)
+
+
+def test_strongly_collinear_design_is_cautioned() -> None:
+    """Condition number of the unit-scaled design above 100 (Belsley, Kuh and Welsch's
+    "strong" level, stated from memory) issues a ConditioningCaution; a well-spread design
+    does not."""
+    x = np.arange(21.0)  # Wampler's x = 0..20: powers up to x^5 are nearly collinear
+    with pytest.warns(ConditioningCaution, match=r"powers of x are strongly collinear"):
+        res = LeastSquares(degree=5).fit(x, 1 + x + x**2, names=["x"])
+    assert res.condition_number_ > leastsq_checks.CONDITION_CAUTION
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ConditioningCaution)
+        LeastSquares().fit(np.array([1.0, 2.0, 3.0, 5.0]), np.array([2.0, 3.0, 5.0, 4.0]))
+
+
+def test_prediction_outside_the_fitted_range_is_cautioned() -> None:
+    """predict() names the new rows (0-based) outside the fitted attribute range."""
+    X = np.array([[1.0, 10.0], [2.0, 30.0], [3.0, 20.0], [4.0, 50.0]])
+    res = LeastSquares().fit(X, np.array([1.0, 2.0, 2.5, 4.5]), names=["a", "b"])
+    with pytest.warns(ExtrapolationCaution) as caught:
+        res.predict(np.array([[2.0, 20.0], [0.5, 20.0], [2.0, 60.0]]))
+    assert [w.message.rows for w in caught] == [[1, 2]]
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ExtrapolationCaution)
+        res.predict(np.array([[1.0, 50.0]]))  # the edges themselves are inside

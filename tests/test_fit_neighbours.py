@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 from sklearn.neighbors import KNeighborsClassifier, KNeighborsRegressor
 from sklearn.preprocessing import StandardScaler
 
-from sheetfit.errors import DataError, SettingError
+from sheetfit.errors import DataError, ExtrapolationCaution, SettingError
 from sheetfit.fit import neighbours as nb
 from sheetfit.fit._sums import prefix_fsums
 from sheetfit.fit.neighbours import (
@@ -462,3 +462,13 @@ def test_public_names() -> None:
          "standard_units"]
     )  # fmt: skip
     assert isinstance(NeighbourMean(k=1).fit(np.arange(3.0), np.arange(3.0)).scaling_, Scaling)
+
+
+def test_prediction_outside_the_fitted_range_is_cautioned() -> None:
+    """Both neighbour models caution on new rows outside the training range (0-based rows)."""
+    X = np.array([[0.0, 0.0], [1.0, 2.0], [2.0, 1.0], [3.0, 3.0]])
+    for res in (NeighbourMean(k=2).fit(X, np.arange(4.0)),
+                NeighbourVote(k=2).fit(X, ["a", "b", "a", "b"])):
+        with pytest.warns(ExtrapolationCaution) as caught:
+            res.predict(np.array([[1.0, 1.0], [4.0, 1.0]]))
+        assert [w.message.rows for w in caught] == [[1]]

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sheetfit.errors import DataError, SettingError
+from sheetfit.errors import DataError, ExtrapolationCaution, SettingError
 from sheetfit.fit import strip
 from sheetfit.fit.strip import StripMean
 
@@ -166,3 +166,11 @@ def test_public_names() -> None:
     assert sorted(strip.__all__) == [
         "EDGE_ALLOWANCE", "EVEN_CENTRES", "MAX_DISTINCT", "StripMean", "StripMeanResult",
     ]  # fmt: skip
+
+
+def test_prediction_outside_the_fitted_range_is_cautioned() -> None:
+    """A new x beyond the smallest or largest fitted x is cautioned (0-based rows)."""
+    res = StripMean(width=1.0).fit(np.array([1.0, 2.0, 3.0]), np.array([1.0, 2.0, 3.0]))
+    with pytest.warns(ExtrapolationCaution) as caught:
+        res.predict(np.array([0.5, 2.0, 3.0, 9.0]))
+    assert [w.message.rows for w in caught] == [[0, 3]]

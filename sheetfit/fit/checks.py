@@ -10,14 +10,16 @@ cells. Nothing here knows about workbooks.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
-from sheetfit.errors import DataError, SettingError
+from sheetfit.errors import ConditioningCaution, DataError, ExtrapolationCaution, SettingError
 
 __all__ = [
+    "CONDITION_CAUTION",
     "DEGREE_RANGE",
     "K_LIMIT",
     "as_table",
@@ -32,12 +34,19 @@ __all__ = [
     "not_constant",
     "one_attribute",
     "response",
+    "warn_conditioning",
+    "warn_outside",
 ]
 
 #: Allowed polynomial degrees (inclusive).
 DEGREE_RANGE = (1, 10)
 #: Largest k a setting may ask for (the fit further needs k < rows).
 K_LIMIT = 10_000
+#: Condition number of the unit-scaled design above which the attributes are cautioned as
+#: strongly collinear. Belsley, Kuh and Welsch, *Regression Diagnostics* (1980) read
+#: condition indices of this design above 30 as moderate and above 100 as strong
+#: dependencies (stated from memory).
+CONDITION_CAUTION = 100.0
 
 
 def _names(names: Sequence[str] | None, m: int) -> list[str]:
@@ -146,6 +155,28 @@ def not_constant(X: np.ndarray, names: list[str], so: str, hint: str) -> None:
             f"attribute '{names[j]}' has the same value ({X[0, j]:g}) in every used row, so {so}",
             hint=hint, column=j,
         )
+
+
+def warn_outside(lo: np.ndarray, hi: np.ndarray, X: np.ndarray) -> None:
+    """Caution (ExtrapolationCaution) when rows to predict leave the fitted range [lo, hi]."""
+    outside = np.flatnonzero(((X < lo) | (X > hi)).any(axis=1))
+    if outside.size:
+        n = int(outside.size)
+        warnings.warn(ExtrapolationCaution(
+            f"{n} new row{'' if n == 1 else 's'} outside the fitted range of the attributes: "
+            "extrapolated, read with care", outside.tolist()), stacklevel=3)
+
+
+def warn_conditioning(condition_number: float, polynomial: bool = False) -> None:
+    """Caution (ConditioningCaution) when the attributes (or powers) are strongly collinear."""
+    if condition_number > CONDITION_CAUTION:
+        what = "the powers of x are" if polynomial else "the attributes are"
+        warnings.warn(ConditioningCaution(
+            f"{what} strongly collinear (condition number {condition_number:.3g} of the "
+            f"design with unit-length columns, above {CONDITION_CAUTION:g}): each "
+            "coefficient moves a lot with small changes in the data; read them together, "
+            "not one by one" + ("; centring x (x minus its mean) before taking powers "
+                                "lowers it" if polynomial else "")), stacklevel=3)
 
 
 def check_flag(name: str, value: Any) -> bool:

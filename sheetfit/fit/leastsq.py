@@ -78,6 +78,7 @@ class LeastSquares:
                                 hint="drop it from x, or fit without intercept")
         design = _design(X, intercept, degree)
         sol = _solve(X, y, design, intercept, degree, terms, is_poly=degree > 1)
+        checks.warn_conditioning(sol.condition_number, polynomial=degree > 1)
         return LeastSquaresResult(
             coef=sol.coef,
             terms=terms,
@@ -143,6 +144,21 @@ class LeastSquaresResult:
     def p_(self) -> int:
         """Number of parameters (intercept included)."""
         return int(self.design_.shape[1])
+
+    @cached_property
+    def x_min_(self) -> np.ndarray:
+        """Smallest value of each attribute in the fitted rows."""
+        return readonly(self._attributes.min(axis=0))
+
+    @cached_property
+    def x_max_(self) -> np.ndarray:
+        """Largest value of each attribute in the fitted rows."""
+        return readonly(self._attributes.max(axis=0))
+
+    @property
+    def _attributes(self) -> np.ndarray:
+        first = int(self.intercept_)
+        return self.design_[:, first : first + (1 if self.degree_ > 1 else len(self.names_))]
 
     @cached_property
     def df_resid_(self) -> int:
@@ -226,6 +242,7 @@ class LeastSquaresResult:
     def predict(self, X_new: np.ndarray) -> np.ndarray:
         """Fitted values for new attribute rows (same columns as in fit); never refits."""
         X_new = checks.new_rows(X_new, self.names_)
+        checks.warn_outside(self.x_min_, self.x_max_, X_new)
         d = _design(X_new, self.intercept_, self.degree_)
         hi, lo = dd_residual(np.zeros(d.shape[0]), d, -self.coef_)
         return hi + lo

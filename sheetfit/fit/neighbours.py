@@ -153,7 +153,9 @@ class _Base:
         return self.scaling_.sd_ if self.scaling_.on else readonly(attribute_stats(self.X_)[1])
 
     def _neighbours_of(self, X_new: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        Q = readonly(self.scaling_.transform(checks.new_rows(X_new, self.names_)))
+        X_new = checks.new_rows(X_new, self.names_)
+        checks.warn_outside(self.X_.min(axis=0), self.X_.max(axis=0), X_new)
+        Q = readonly(self.scaling_.transform(X_new))
         return (*search(self._tree, self.Z_, Q, self.k_, None), Q)
 
 

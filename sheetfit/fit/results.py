@@ -46,3 +46,5 @@ class Fitted(Generic[R]):
     result: R
     new: Any | None = None
     cautions: list[str] = field(default_factory=list)
+    #: Positions (0-based) of the rows to predict that lie outside the fitted range.
+    extrapolated: list[int] = field(default_factory=list)

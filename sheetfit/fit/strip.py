@@ -206,4 +206,6 @@ class StripMeanResult:
 
     def predict(self, x_new: np.ndarray) -> np.ndarray:
         """Strip mean at each new x's lookup centre (all training rows count); never refits."""
-        return self.mean_[self.centre_index(x_new)]
+        x = checks.new_rows(x_new, ["x"])
+        checks.warn_outside(np.array([self.lo_]), np.array([float(self.x_.max())]), x)
+        return self.mean_[self.centre_index(x)]
