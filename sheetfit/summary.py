@@ -12,6 +12,7 @@ from .declare.model import ModelData
 from .fit.results import Fitted
 from .methods.base import Method
 from .owned import sheet_title
+from .words import plural
 
 __all__ = ["ModelSummary", "fingerprint", "summarise"]
 
@@ -60,15 +61,11 @@ def fingerprint(model: ModelData) -> str:
     return h.hexdigest()[:16]
 
 
-def _rows(n: int, what: str = "row") -> str:
-    return f"{n} {what}" + ("" if n == 1 else "s")
-
-
 def _common_cautions(model: ModelData, fitted: Fitted[Any]) -> list[str]:
     out: list[str] = []
     if model.left_out:
         n = len(model.left_out)
-        out.append(f"{_rows(n, 'data row')} left out of the fit; sheet "
+        out.append(f"{plural(n, 'data row')} left out of the fit; sheet "
                    f"'{sheet_title(model.tag, 'fitted')}' lists {'it' if n == 1 else 'them'} "
                    "with the reason")
     outside = fitted.extrapolated  # the numeric core's ExtrapolationCaution, on the cells
@@ -76,7 +73,7 @@ def _common_cautions(model: ModelData, fitted: Fitted[Any]) -> list[str]:
         first = model.new.columns[0]
         rows = ", ".join(str(first.row_of(i)) for i in outside[:10])
         more = "…" if len(outside) > 10 else ""
-        out.append(f"{_rows(len(outside), 'new row')} outside the fitted range of the "
+        out.append(f"{plural(len(outside), 'new row')} outside the fitted range of the "
                    f"attributes ('{first.sheet}' {'row' if len(outside) == 1 else 'rows'} "
                    f"{rows}{more}): extrapolated, read with care")
     return out

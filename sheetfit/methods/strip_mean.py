@@ -8,6 +8,7 @@ from ..declare.model import ModelData
 from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
 from ..sheets.strip import plan_strip
+from ..words import plural
 from .base import Method
 
 __all__ = ["METHOD"]
@@ -15,10 +16,6 @@ __all__ = ["METHOD"]
 
 def _fit(model: ModelData) -> StripMeanResult:
     return StripMean(width=float(model.settings["width"])).fit(model.X[:, 0], model.Y)
-
-
-def _plural(n: int, what: str) -> str:
-    return f"{n} {what}" + ("" if n == 1 else "s")
 
 
 def _figures(model: ModelData, res: StripMeanResult) -> list[str]:
@@ -30,10 +27,10 @@ def _cautions(model: ModelData, res: StripMeanResult) -> list[str]:
     out = []
     empty = int(np.sum(np.asarray(res.count_) == 0))
     if empty:
-        out.append(f"{_plural(empty, 'strip')} empty: no rows within ± width (left blank)")
+        out.append(f"{plural(empty, 'strip')} empty: no rows within ± width (left blank)")
     unfitted = res.n_ - int(res.n_fitted_)
     if unfitted:
-        out.append(f"{_plural(unfitted, 'row')} with no other row in its strip: no fitted value")
+        out.append(f"{plural(unfitted, 'row')} with no other row in its strip: no fitted value")
     return out
 
 

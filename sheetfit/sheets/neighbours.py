@@ -18,6 +18,7 @@ import numpy as np
 
 from ..a1 import absolute, col_letter
 from ..declare.model import ModelData
+from ..fit._search import TIE_DIGITS
 from ..fit.neighbours import (
     MeanPrediction,
     NeighbourMeanResult,
@@ -34,13 +35,16 @@ __all__ = ["TIE_RULE", "plan_neighbour_mean", "plan_neighbour_vote"]
 
 #: The tie rules, in the words the sheets and the README use.
 TIE_RULE = (
-    "Ties: distances that agree to 12 significant digits count as equal, and among equal "
-    "distances the lower data row comes first; a row is never its own neighbour "
+    f"Ties: distances that agree to {TIE_DIGITS} significant digits count as equal, and "
+    "among equal distances the lower data row comes first; a row is never its own neighbour "
     "(leave-one-out). In a vote, among classes with equally many neighbours the class of "
     "the nearest of them wins."
 )
 
 _STD_FIRST = 6  # first data row (0-based) on the standard-units sheet
+
+_Result = NeighbourMeanResult | NeighbourVoteResult
+_Prediction = MeanPrediction | VotePrediction
 
 
 @dataclass
@@ -59,7 +63,8 @@ class _Rows:
     share: list[float] | None = None  # vote: share of the k in the focus class
 
 
-def _std_sheet(model: ModelData, res: Any, new: Any) -> tuple[SheetPlan, list[str], list[str]]:
+def _std_sheet(model: ModelData, res: _Result, new: _Prediction | None
+               ) -> tuple[SheetPlan, list[str], list[str]]:
     """Standard-units sheet; returns it and the z-row references of data and new rows."""
     tag = model.tag
     ss = SheetPlan(sheet_title(tag, "std"))
@@ -167,8 +172,8 @@ def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
     return _plan(model, res, fitted.new, data, new, focus, version)
 
 
-def _plan(model: ModelData, res: Any, prediction: Any, data: _Rows, new: _Rows | None,
-          focus: str | float | None, version: str) -> Planned:
+def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: _Rows,
+          new: _Rows | None, focus: str | float | None, version: str) -> Planned:
     """The sheets both neighbour methods share; ``focus`` is None for a mean, a class for a vote."""
     vote = focus is not None
     tag, y = model.tag, model.y
@@ -213,10 +218,10 @@ def _plan(model: ModelData, res: Any, prediction: Any, data: _Rows, new: _Rows |
 
     fs, fit_rng = _fitted_sheet(model, res, fitted_refs, vote, ns.title)
     sheets = [summary, ss, ns, fs]
-    if vote:
+    if isinstance(res, NeighbourVoteResult) and focus is not None:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
         _vote_summary(summary, model, res, fs, ns, new, focus, version, k)
-    else:
+    elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, fitted_refs, res.fitted_, res.resid_,
             "residual = observed − fitted (the leave-one-out mean of the row's neighbours).")
@@ -225,6 +230,8 @@ def _plan(model: ModelData, res: Any, prediction: Any, data: _Rows, new: _Rows |
                  (f"sf_{tag}_resid", rs.col_range(3, FIRST_ROW, FIRST_ROW + res.n_ - 1))
                  ] + names
         _mean_summary(summary, model, res, fs, rs, version, k)
+    else:
+        raise TypeError(f"a neighbour plan for {type(res).__name__} with focus {focus!r}")
     return Planned(sheets, names)
 
 
@@ -287,7 +294,7 @@ def _focus(model: ModelData, res: NeighbourVoteResult) -> str | float:
     return classes[int(np.argmin(res.base_rate_))]
 
 
-def _fitted_sheet(model: ModelData, res: Any, refs: list[str], vote: bool,
+def _fitted_sheet(model: ModelData, res: _Result, refs: list[str], vote: bool,
                   nbrs_title: str) -> tuple[SheetPlan, str]:
     y = model.y
     fs = SheetPlan(sheet_title(model.tag, "fitted"))
@@ -301,7 +308,7 @@ def _fitted_sheet(model: ModelData, res: Any, refs: list[str], vote: bool,
     for c, h in enumerate(heads):
         fs.put(3, c, h, style="head")
     obs, fitted = res.y_.tolist(), res.fitted_.tolist()
-    right = res.correct_.tolist() if vote else []
+    right = res.correct_.tolist() if isinstance(res, NeighbourVoteResult) else []
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         fs.put(r, 0, y.row_of(int(idx)), style="int")
@@ -316,7 +323,7 @@ def _fitted_sheet(model: ModelData, res: Any, refs: list[str], vote: bool,
     return fs, fs.col_range(2, FIRST_ROW, last)
 
 
-def _settings_block(s: SheetPlan, model: ModelData, res: Any, version: str, k: int,
+def _settings_block(s: SheetPlan, model: ModelData, res: _Result, version: str, k: int,
                     vote: bool) -> int:
     """Title, notes and the stated settings; k sits in B5 (row 4) for formulas to use."""
     what = "most common class" if vote else "mean"
@@ -336,7 +343,7 @@ def _settings_block(s: SheetPlan, model: ModelData, res: Any, version: str, k: i
     return 7
 
 
-def _k_table(s: SheetPlan, row: int, res: Any, k: int, label: str, err_cell: str,
+def _k_table(s: SheetPlan, row: int, res: _Result, k: int, label: str, err_cell: str,
              err_value: float, style: str = "num") -> int:
     s.put(row, 0, "k", style="head")
     s.put(row, 1, f"leave-one-out {label}", style="head")
@@ -393,7 +400,8 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: 
 
 
 def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: SheetPlan,
-                  ns: SheetPlan, new: _Rows | None, focus: Any, version: str, k: int) -> None:
+                  ns: SheetPlan, new: _Rows | None, focus: str | float, version: str,
+                  k: int) -> None:
     row = _settings_block(s, model, res, version, k, True)
     s.put(5, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
     s.put(5, 2, "given in the settings" if model.settings["focus"] is not None
@@ -475,7 +483,7 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
 
 
 def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResult,
-               ns: SheetPlan, new: _Rows, focus: Any) -> int:
+               ns: SheetPlan, new: _Rows, focus: str | float) -> int:
     """New rows ranked by the share of neighbours in the focus class (highest first)."""
     if new.share is None:
         raise ValueError("a work list needs the new rows' shares")

@@ -54,8 +54,8 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
 
     ss.put(0, 0, f"Strip means — model {tag}: {y.name} by {xname}", style="title")
     ss.note(1, 0, f"For each centre c, the mean of {y.name} over the rows with |{xname} − c| ≤ "
-            "width (a relative allowance of 1e-12 absorbs rounding at the edge). An empty strip "
-            f"is left blank, with the reason. Computed by sheetfit {version}.")
+            f"width (a relative allowance of {EDGE_ALLOWANCE:g} absorbs rounding at the edge). "
+            f"An empty strip is left blank, with the reason. Computed by sheetfit {version}.")
     ss.put(4, 0, "width", style="label")
     ss.put(4, 1, w, style="num")
     ss.put(4, 2, "half-width of each strip (setting)", style="note")
