@@ -59,6 +59,37 @@ def line_rows(n: int = 8, header: Sequence[str] = ("cost", "units")) -> list[lis
     return rows
 
 
+def jobs(n: int = 30, seed: int = 7) -> list[list[Any]]:
+    """Invented past field jobs (seeded): cost from crew hours and distance driven."""
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    rows: list[list[Any]] = [["cost", "hours", "km"]]
+    for _ in range(n):
+        h, d = float(rng.integers(2, 40)), float(rng.integers(1, 90))
+        rows.append([round(120 + 35 * h + 2.2 * d + float(rng.normal(0, 40)), 2), h, d])
+    return rows
+
+
+def invoices(n: int = 40, seed: int = 11, numeric: bool = False) -> list[list[Any]]:
+    """Invented paid invoices (seeded): late or on time, from amount and past delay.
+
+    With ``numeric`` the outcome is a class code 0, 1 or 2 instead.
+    """
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    rows: list[list[Any]] = [["outcome", "amount", "past delay"]]
+    for _ in range(n):
+        amount, delay = float(rng.integers(1, 50)) * 100, float(rng.integers(0, 30))
+        if numeric:
+            rows.append([float(rng.integers(0, 3)), amount, delay])
+        else:
+            late = delay + rng.normal(0, 6) > 14
+            rows.append(["late" if late else "on time", amount, delay])
+    return rows
+
+
 def soffice_convert(src: Path, outdir: Path, fmt: str = "xlsx") -> Path:
     """Convert (re-save) ``src`` with LibreOffice on a private profile; return the output.
 

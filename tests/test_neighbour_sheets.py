@@ -7,34 +7,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from books import make_book
+from books import invoices, jobs, make_book
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from sheetfit.errors import DataError, SettingError
 from sheetfit.owned import sheet_title
 from sheetfit.refresh import refresh
-
-
-def _jobs(n: int = 30, seed: int = 7) -> list[list[object]]:
-    """Invented past jobs: cost from hours and distance (seeded)."""
-    rng = np.random.default_rng(seed)
-    rows: list[list[object]] = [["cost", "hours", "km"]]
-    for _ in range(n):
-        h, d = float(rng.integers(2, 40)), float(rng.integers(1, 90))
-        rows.append([round(120 + 35 * h + 2.2 * d + float(rng.normal(0, 40)), 2), h, d])
-    return rows
-
-
-def _invoices(n: int = 40, seed: int = 11) -> list[list[object]]:
-    """Invented invoices: paid late or on time, from amount and customer's past delay."""
-    rng = np.random.default_rng(seed)
-    rows: list[list[object]] = [["outcome", "amount", "past delay"]]
-    for _ in range(n):
-        amount, delay = float(rng.integers(1, 50)) * 100, float(rng.integers(0, 30))
-        late = delay + rng.normal(0, 6) > 14
-        rows.append(["late" if late else "on time", amount, delay])
-    return rows
 
 
 def _book(tmp_path: Path, rows, opts, new=None, name="b.xlsx") -> Path:
@@ -57,7 +36,7 @@ def _check_engine(engine, path: Path) -> int:
 
 def test_neighbour_mean_book_recalculates(engine, tmp_path: Path) -> None:
     """Standard units, distances, means and spreads hold their cached values in LibreOffice."""
-    p = _book(tmp_path, _jobs(), [["method", "neighbour_mean"], ["k", 4]],
+    p = _book(tmp_path, jobs(), [["method", "neighbour_mean"], ["k", 4]],
               new=[["hours", "km"], [12.0, 30.0], [35.0, 5.0]])
     refresh(p)
     assert _check_engine(engine, p) > 300
@@ -65,7 +44,7 @@ def test_neighbour_mean_book_recalculates(engine, tmp_path: Path) -> None:
 
 def test_neighbour_vote_book_recalculates(engine, tmp_path: Path) -> None:
     """Votes, predictions, confusion matrix, natural frequencies, work list recalculate."""
-    p = _book(tmp_path, _invoices(), [["method", "neighbour_vote"], ["focus", "late"]],
+    p = _book(tmp_path, invoices(), [["method", "neighbour_vote"], ["focus", "late"]],
               new=[["amount", "past delay"], [2500.0, 20.0], [900.0, 2.0], [4000.0, 15.0]])
     refresh(p)
     assert _check_engine(engine, p) > 300
@@ -138,7 +117,7 @@ def _digest(p: Path) -> str:
 ])
 def test_refusals(tmp_path: Path, opts, exc, match) -> None:
     """Bad settings for neighbour and strip models are refused; the book is untouched."""
-    p = _book(tmp_path, _jobs(), opts)
+    p = _book(tmp_path, jobs(), opts)
     before = _digest(p)
     with pytest.raises(exc, match=match):
         refresh(p)
@@ -163,7 +142,7 @@ def test_refuse_text_attribute(tmp_path: Path) -> None:
 
 def test_refuse_new_row_with_blank(tmp_path: Path) -> None:
     """A new row with a blank is refused, naming its cell."""
-    p = _book(tmp_path, _jobs(), [["method", "neighbour_mean"], ["k", 3]],
+    p = _book(tmp_path, jobs(), [["method", "neighbour_mean"], ["k", 3]],
               new=[["hours", "km"], [12.0, None]])
     with pytest.raises(DataError, match=r"sf_m_new, sheet 'New' cell B2: a new row holds blank"):
         refresh(p)
@@ -171,7 +150,7 @@ def test_refuse_new_row_with_blank(tmp_path: Path) -> None:
 
 def test_vote_sheets_name_outputs(tmp_path: Path) -> None:
     """A vote model writes its summary, standard units, neighbours and fitted sheets."""
-    p = _book(tmp_path, _invoices(), [["method", "neighbour_vote"], ["k", 5]])
+    p = _book(tmp_path, invoices(), [["method", "neighbour_vote"], ["k", 5]])
     report = refresh(p)
     (m,) = report.models
     assert m.method == "neighbour_vote" and "k = 5 (given)" in m.figures[0]
@@ -205,7 +184,7 @@ def test_property_strip_formulas_equal_python(engine, tmp_path_factory, xs, widt
 
 def test_refuse_focus_not_a_class(tmp_path: Path) -> None:
     """A focus class that is not in y is refused, listing the classes (capitals count)."""
-    p = _book(tmp_path, _invoices(), [["method", "neighbour_vote"], ["focus", "Late"]])
+    p = _book(tmp_path, invoices(), [["method", "neighbour_vote"], ["focus", "Late"]])
     with pytest.raises(SettingError, match=r"focus 'Late' is not one of the classes in y "
                                            r"\(late, on time\)"):
         refresh(p)

@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 import pytest
-from books import make_book
+from books import invoices, jobs, make_book
 
 from sheetfit.a1 import col_index
 from sheetfit.declare.model import ModelData, find_models
@@ -36,25 +36,6 @@ from sheetfit.sheets.plan import BookPlan, Cell, SheetPlan
 EPS = float(np.finfo(float).eps)
 
 # ----------------------------------------------------------------------- invented books
-
-
-def _jobs(n: int, seed: int) -> list[list[Any]]:
-    rng = np.random.default_rng(seed)
-    rows: list[list[Any]] = [["cost", "hours", "km"]]
-    for _ in range(n):
-        h, d = float(rng.integers(2, 40)), float(rng.integers(1, 90))
-        rows.append([round(120 + 35 * h + 2.2 * d + float(rng.normal(0, 40)), 2), h, d])
-    return rows
-
-
-def _invoices(n: int, seed: int, numeric: bool = False) -> list[list[Any]]:
-    rng = np.random.default_rng(seed)
-    rows: list[list[Any]] = [["outcome", "amount", "past delay"]]
-    for _ in range(n):
-        amount, delay = float(rng.integers(1, 50)) * 100, float(rng.integers(0, 30))
-        c = int(rng.integers(0, 3)) if numeric else int(delay + rng.normal(0, 6) > 14)
-        rows.append([float(c) if numeric else ["on time", "late"][c], amount, delay])
-    return rows
 
 
 def _strip_rows(n: int, seed: int) -> list[list[Any]]:
@@ -77,20 +58,20 @@ def _book(tmp_path: Path, name: str, rows: list[list[Any]], opts: list[list[Any]
 
 
 CASES: dict[str, tuple[Any, ...]] = {
-    "least squares, two attributes": (_jobs(30, 3), [], [["hours", "km"], [10.0, 20.0],
+    "least squares, two attributes": (jobs(30, 3), [], [["hours", "km"], [10.0, 20.0],
                                                          [45.0, 5.0]]),
-    "least squares, cubic": ([r[:2] for r in _jobs(25, 4)], [["degree", 3]],
+    "least squares, cubic": ([r[:2] for r in jobs(25, 4)], [["degree", 3]],
                              [["hours"], [20.0], [60.0]], "B:B"),
-    "least squares, no intercept": (_jobs(12, 5), [["intercept", "no"]], None),
-    "neighbour mean, k chosen": (_jobs(40, 7), [["method", "neighbour_mean"]],
+    "least squares, no intercept": (jobs(12, 5), [["intercept", "no"]], None),
+    "neighbour mean, k chosen": (jobs(40, 7), [["method", "neighbour_mean"]],
                                  [["hours", "km"], [12.0, 30.0], [35.0, 5.0]]),
-    "neighbour mean, raw units": (_jobs(30, 8), [["method", "neighbour_mean"], ["k", 4],
+    "neighbour mean, raw units": (jobs(30, 8), [["method", "neighbour_mean"], ["k", 4],
                                                  ["standard_units", "no"]], None),
-    "neighbour vote, focus": (_invoices(40, 11), [["method", "neighbour_vote"],
+    "neighbour vote, focus": (invoices(40, 11), [["method", "neighbour_vote"],
                                                   ["focus", "late"]],
                               [["amount", "past delay"], [2500.0, 20.0], [900.0, 2.0],
                                [4000.0, 15.0]]),
-    "neighbour vote, numeric classes": (_invoices(80, 13, numeric=True),
+    "neighbour vote, numeric classes": (invoices(80, 13, numeric=True),
                                         [["method", "neighbour_vote"], ["k", 5]],
                                         [["amount", "past delay"], [100.0, 3.0]]),
     "strip mean, distinct grid": (_strip_rows(25, 25), [["method", "strip_mean"],
