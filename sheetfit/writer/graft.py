@@ -40,7 +40,7 @@ from sheetfit.writer._graft_workbook import (
 )
 from sheetfit.writer._styles import StyleMap, merge_styles
 
-__all__ = ["GraftReport", "OutputName", "graft"]
+__all__ = ["OutputName", "graft"]
 
 _CT_PART = "[Content_Types].xml"
 _APP_PART = "docProps/app.xml"
@@ -55,16 +55,6 @@ class OutputName:
 
     name: str
     text: str
-
-
-@dataclass(frozen=True)
-class GraftReport:
-    """What a graft removed and added: sheet titles and zip part names (the tests check it)."""
-
-    sheets_removed: tuple[str, ...]
-    sheets_added: tuple[str, ...]
-    parts_removed: tuple[str, ...]
-    parts_added: tuple[str, ...]
 
 
 @dataclass(frozen=True)
@@ -147,7 +137,7 @@ def _check_collisions(
 
 def graft(
     pkg: Package, rendered: str | Path, names: Sequence[OutputName], target: str | Path
-) -> GraftReport:
+) -> None:
     """Replace the owned sheets of the package ``pkg`` by those of ``rendered``.
 
     ``pkg`` is the user's package as :func:`~sheetfit.reader.package.open_package`
@@ -265,13 +255,6 @@ def graft(
                 edits[lower[_APP_PART.lower()]] = new_app
         edits = {k: v for k, v in edits.items() if v != read(k)}
         _write_atomic(zs, infos, gone, edits, new_entries, target)
-
-    return GraftReport(
-        sheets_removed=tuple(s.name for s in owned),
-        sheets_added=tuple(titles),
-        parts_removed=tuple(sorted(lower[p] for p in gone)),
-        parts_added=tuple(parts),
-    )
 
 
 def _write_atomic(
