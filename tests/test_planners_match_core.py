@@ -156,6 +156,11 @@ def _least_squares(model: ModelData, fitted: Fitted[Any], plan: BookPlan) -> Non
     assert abs(_figure(plan, title, "RMSE") - res.rmse_) <= r_bound.max()
     assert _figure(plan, title, "rows used (n)") == res.n_
     assert _figure(plan, title, "parameters (p)") == res.p_
+    cells = _cells(plan, title)
+    head = next(c for c in cells.values() if c.value == "relevant range")
+    m = 1 if res.degree_ > 1 else len(res.names_)
+    ranges = [[cells[(head.row + 2 + j, c)].value for c in (1, 2)] for j in range(m)]
+    assert ranges == np.column_stack([res.x_min_, res.x_max_]).tolist()
     # R² = 1 − ssr/tss: ssr moves by at most 2‖r‖‖Δr‖ + ‖Δr‖².
     dr = float(np.linalg.norm(r_bound))
     d_ssr = 2 * float(np.linalg.norm(res.resid_)) * dr + dr * dr

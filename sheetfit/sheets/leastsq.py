@@ -177,7 +177,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     row = first_coef + p + 1
     row = _plan_summary(cs, row, n, p, resid, model.Y, intercept, resid_rng, y_rng,
                         coef_cell, one_line, fs, last, tvals)
-    row = _plan_range(cs, row + 1, model, specs, tvals, fs, last)
+    row = _plan_range(cs, row + 1, model, res, specs, fs, last)
     cs.widths = {0: 24, 1: 22, 2: 30, 3: 30}
 
     coef_rng = cs.col_range(1, first_coef, first_coef + p - 1)
@@ -259,8 +259,8 @@ def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y:
     return row + 1 + len(lines)
 
 
-def _plan_range(cs: SheetPlan, row: int, model: ModelData, specs: list[tuple[int, int]],
-                tvals: list[np.ndarray], fs: SheetPlan, last: int) -> int:
+def _plan_range(cs: SheetPlan, row: int, model: ModelData, res: LeastSquaresResult,
+                specs: list[tuple[int, int]], fs: SheetPlan, last: int) -> int:
     cs.put(row, 0, "relevant range", style="head")
     cs.put(row, 1, "smallest", style="head")
     cs.put(row, 2, "largest", style="head")
@@ -271,7 +271,7 @@ def _plan_range(cs: SheetPlan, row: int, model: ModelData, specs: list[tuple[int
             continue
         rng = fs.col_range(2 + k, FIRST_ROW, last)
         cs.put(r, 0, model.xs[j].name, style="label")
-        cs.put(r, 1, float(np.min(tvals[k])), f"=MIN({rng})", "num")
-        cs.put(r, 2, float(np.max(tvals[k])), f"=MAX({rng})", "num")
+        cs.put(r, 1, float(res.x_min_[j]), f"=MIN({rng})", "num")
+        cs.put(r, 2, float(res.x_max_[j]), f"=MAX({rng})", "num")
         r += 1
     return r
