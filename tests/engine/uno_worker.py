@@ -28,13 +28,13 @@ from typing import Any, TextIO
 import uno  # type: ignore[import-not-found]
 from com.sun.star.beans import PropertyValue  # type: ignore[import-not-found]
 
-# The address helpers live beside this script (addresses.py, shared with the cached-value
-# reader). A script's folder is on sys.path unless safe-path mode is on, so make sure.
-_HERE = os.path.dirname(os.path.abspath(__file__))
-if _HERE not in sys.path:
-    sys.path.insert(0, _HERE)
+# The address helpers live beside this script (engine/addresses.py, shared with the
+# cached-value reader); this script runs under the system Python, so put tests/ on the path.
+_TESTS = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+if _TESTS not in sys.path:
+    sys.path.insert(0, _TESTS)
 
-from addresses import column_letters
+from engine.addresses import column_letters
 
 FORMULA_CONTENT = 16  # com.sun.star.sheet.CellFlags.FORMULA
 ERROR_RESULT = 4  # com.sun.star.sheet.FormulaResult.ERROR
