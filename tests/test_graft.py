@@ -8,6 +8,7 @@ from pathlib import Path
 import pytest
 import xlsxwriter
 from lxml import etree
+from packages import part_changes, sheet_changes
 
 from sheetfit import reader as book
 from sheetfit.errors import PackageError
@@ -100,39 +101,6 @@ def _rendered(path: Path, titles: list[str]) -> Path:
 def _read(path: Path, name: str) -> bytes:
     with zipfile.ZipFile(path) as z:
         return z.read(name)
-
-
-def _entries(path: Path) -> dict[str, bytes]:
-    with zipfile.ZipFile(path) as z:
-        return {n: z.read(n) for n in z.namelist()}
-
-
-def _part_changes(src: Path, out: Path) -> tuple[set[str], set[str]]:
-    """(removed, added) zip entry names of a graft, read from the source and output packages.
-
-    Removed: entries of the source the output lacks; added: entries of the output the source
-    lacks. A sheet part of both whose bytes differ (a new sheet reusing a freed number) counts
-    as both removed and added.
-    """
-    a, b = _entries(src), _entries(out)
-    sheet_parts = {s.part.lower() for p in (src, out) for s in open_package(p).sheets}
-    reused = {n for n in a.keys() & b.keys() if n.lower() in sheet_parts and a[n] != b[n]}
-    return (a.keys() - b.keys()) | reused, (b.keys() - a.keys()) | reused
-
-
-def _sheet_changes(src: Path, out: Path) -> tuple[list[str], list[str]]:
-    """(removed, added) sheet titles of a graft, read from the source and output packages.
-
-    A source sheet is kept when the output has a sheet of the same title in the same part with
-    the same bytes; every other source sheet was removed and every other output sheet added.
-    """
-
-    def sheets(path: Path) -> list[tuple[str, str, bytes]]:
-        data = {n.lower(): d for n, d in _entries(path).items()}
-        return [(s.name, s.part.lower(), data[s.part.lower()]) for s in open_package(path).sheets]
-
-    old, new = sheets(src), sheets(out)
-    return [s[0] for s in old if s not in new], [s[0] for s in new if s not in old]
 
 
 def test_public_list() -> None:
@@ -239,7 +207,7 @@ def test_part_numbers_above_dangling_and_case_variants(tmp_path: Path) -> None:
     rendered = _rendered(tmp_path / "r.xlsx", ["sf a coef"])
     out = tmp_path / "o.xlsx"
     graft(open_package(src), rendered, [], out)
-    assert _part_changes(src, out) == (set(), {"xl/worksheets/sheet16.xml"})
+    assert part_changes(src, out) == (set(), {"xl/worksheets/sheet16.xml"})
     assert open_package(out).sheet("sf a coef").part == "xl/worksheets/sheet16.xml"
 
 
@@ -272,7 +240,7 @@ def test_local_sheet_ids_shift_when_owned_sheet_moved(tmp_path: Path) -> None:
     out = tmp_path / "o.xlsx"
     new_names = [OutputName("sf_a_coef", "'sf a coef'!$A$2")]
     graft(open_package(src), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), new_names, out)
-    assert _sheet_changes(src, out)[0] == ["sf a coef"]
+    assert sheet_changes(src, out)[0] == ["sf a coef"]
     pkg = open_package(out)
     assert [s.name for s in pkg.sheets] == ["A", "B", "C", "sf a coef"]
     assert pkg.sheet("sf a coef").sheet_id == 5  # highest remaining (4) + 1
@@ -310,7 +278,7 @@ def test_calc_chain_of_owned_sheets_only_is_deleted(tmp_path: Path) -> None:
     )  # fmt: skip
     out = tmp_path / "o.xlsx"
     graft(open_package(src), _rendered(tmp_path / "r.xlsx", ["sf a coef"]), [], out)
-    assert "xl/calcChain.xml" in _part_changes(src, out)[0]
+    assert "xl/calcChain.xml" in part_changes(src, out)[0]
     with zipfile.ZipFile(out) as z:
         assert "xl/calcChain.xml" not in z.namelist()
         assert b"calcChain" not in z.read("xl/_rels/workbook.xml.rels")

@@ -15,7 +15,6 @@ import os
 import re
 import shutil
 import struct
-import zipfile
 import zlib
 from pathlib import Path
 
@@ -23,6 +22,7 @@ import pytest
 import xlsxwriter
 from books import soffice_convert
 from lxml import etree
+from packages import entries, part_changes, sheet_changes
 
 import sheetfit.writer.graft as graft_mod
 from sheetfit.errors import DeclarationError
@@ -123,39 +123,6 @@ def _rendered(path: Path) -> Path:
     return path
 
 
-def _entries(path: Path) -> dict[str, bytes]:
-    with zipfile.ZipFile(path) as z:
-        return {n: z.read(n) for n in z.namelist()}
-
-
-def _part_changes(src: Path, out: Path) -> tuple[set[str], set[str]]:
-    """(removed, added) zip entry names of a graft, read from the source and output packages.
-
-    Removed: entries of the source the output lacks; added: entries of the output the source
-    lacks. A sheet part of both whose bytes differ (a new sheet reusing a freed number) counts
-    as both removed and added.
-    """
-    a, b = _entries(src), _entries(out)
-    sheet_parts = {s.part.lower() for p in (src, out) for s in open_package(p).sheets}
-    reused = {n for n in a.keys() & b.keys() if n.lower() in sheet_parts and a[n] != b[n]}
-    return (a.keys() - b.keys()) | reused, (b.keys() - a.keys()) | reused
-
-
-def _sheet_changes(src: Path, out: Path) -> tuple[list[str], list[str]]:
-    """(removed, added) sheet titles of a graft, read from the source and output packages.
-
-    A source sheet is kept when the output has a sheet of the same title in the same part with
-    the same bytes; every other source sheet was removed and every other output sheet added.
-    """
-
-    def sheets(path: Path) -> list[tuple[str, str, bytes]]:
-        data = {n.lower(): d for n, d in _entries(path).items()}
-        return [(s.name, s.part.lower(), data[s.part.lower()]) for s in open_package(path).sheets]
-
-    old, new = sheets(src), sheets(out)
-    return [s[0] for s in old if s not in new], [s[0] for s in new if s not in old]
-
-
 def _owned_parts(path: Path) -> set[str]:
     pkg = open_package(path)
     parts = set()
@@ -204,7 +171,7 @@ def _strip_list(data: bytes, tag: str, attr: str, owned: set[str]) -> bytes:
 
 def _check_invariants(path: Path) -> None:
     """sheetIds unique, content types for every part, rel targets exist, names in schema order."""
-    ent = _entries(path)
+    ent = entries(path)
     lower = {n.lower() for n in ent}
     assert len(lower) == len(ent), "case-duplicate part names"
     ct = etree.fromstring(ent["[Content_Types].xml"], _PARSER)
@@ -263,8 +230,8 @@ def test_non_owned_parts_keep_their_bytes(user: Path, books: dict[str, Path], tm
     """Every entry sheetfit does not own or share is byte-identical, in the same order."""
     out = tmp_path / "out.xlsx"
     graft(open_package(user), books["rendered"], NAMES, out)
-    assert _sheet_changes(user, out) == ([], list(TITLES))
-    src, res = _entries(user), _entries(out)
+    assert sheet_changes(user, out) == ([], list(TITLES))
+    src, res = entries(user), entries(out)
     owned = _owned_parts(out)
     assert len(owned & set(res)) == 3
     assert list(res)[: len(src)] == list(src), "entry order changed"
@@ -280,11 +247,11 @@ def test_non_owned_parts_keep_their_bytes(user: Path, books: dict[str, Path], tm
     _check_invariants(out)
 
 
-def test_shared_parts_only_gain_owned_entries(user: Path, books: dict[str, Path], tmp_path: Path):
+def test_shared_parts_only_gain_ownedentries(user: Path, books: dict[str, Path], tmp_path: Path):
     """workbook, its rels, content types, styles, app properties: owned entries added, no more."""
     out = tmp_path / "out.xlsx"
     graft(open_package(user), books["rendered"], NAMES, out)
-    src, res = _entries(user), _entries(out)
+    src, res = entries(user), entries(out)
     owned = {p.lower() for p in _owned_parts(out)}
     for name in SHARED:
         _only_insertions(src[name], res[name])
@@ -323,7 +290,7 @@ def test_second_graft_is_identical(user: Path, books: dict[str, Path], tmp_path:
     assert [s.name for s in open_package(one).owned_sheets()] == list(TITLES)
     titles = [s.name for s in open_package(two).sheets]
     assert titles[-len(TITLES) :] == list(TITLES) and len(set(titles)) == len(titles)
-    e1, e2 = _entries(one), _entries(two)
+    e1, e2 = entries(one), entries(two)
     # New parts reuse the numbers freed by the removed ones: the output has no entry its
     # source lacks.
     assert set(e2) <= set(e1)
@@ -355,14 +322,14 @@ def test_removal_after_libreoffice_resave(books: dict[str, Path], tmp_path: Path
     assert [s.name for s in pkg.owned_sheets()] == list(TITLES)
     again = tmp_path / "again.xlsx"
     graft(open_package(resaved), books["rendered"], NAMES, again)
-    assert _sheet_changes(resaved, again)[0] == list(TITLES)
+    assert sheet_changes(resaved, again)[0] == list(TITLES)
     pkg2 = open_package(again)
     assert [s.name for s in pkg2.sheets] == ["Data", "More", *TITLES]
     markers = [d for d in pkg2.defined_names if d.name == MARKER_NAME]
     assert sorted(d.local_sheet_id for d in markers) == [2, 3, 4]
     assert sum(d.name == "sf_demo_coef" for d in pkg2.defined_names) == 1
-    src, res = _entries(resaved), _entries(again)
-    removed, _ = _part_changes(resaved, again)
+    src, res = entries(resaved), entries(again)
+    removed, _ = part_changes(resaved, again)
     # What went is exactly the owned sheets' parts (and their rels, if any); LibreOffice
     # numbered them last, so the rendered sheets reuse those numbers with new bytes.
     assert removed == _owned_parts(resaved) & set(src)
@@ -432,13 +399,13 @@ def test_refresh_end_to_end_keeps_user_parts_and_repeats_exactly(user: Path, tmp
     when = dt.datetime(2026, 1, 1, tzinfo=dt.UTC)
     out, again = tmp_path / "out.xlsx", tmp_path / "again.xlsx"
     refresh(user, out, now=when)
-    src, res = _entries(user), _entries(out)
+    src, res = entries(user), entries(out)
     for name, data in src.items():
         if name not in {*SHARED, STYLES, APP}:
             assert res[name] == data, f"{name} changed"
     _check_invariants(out)
     refresh(out, again, now=when)
-    assert _entries(again) == res
+    assert entries(again) == res
 
 
 def test_refresh_after_libreoffice_resave_replaces_its_sheets(books: dict[str, Path],
