@@ -7,8 +7,8 @@ from pathlib import Path
 
 import pytest
 import xlsxwriter
+from books import part_changes, sheet_changes
 from lxml import etree
-from packages import part_changes, sheet_changes
 
 from sheetfit import reader as book
 from sheetfit.errors import PackageError

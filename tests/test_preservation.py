@@ -20,9 +20,8 @@ from pathlib import Path
 
 import pytest
 import xlsxwriter
-from books import soffice_convert
+from books import entries, part_changes, sheet_changes, soffice_convert
 from lxml import etree
-from packages import entries, part_changes, sheet_changes
 
 import sheetfit.writer.graft as graft_mod
 from sheetfit.errors import DeclarationError
