@@ -1,21 +1,41 @@
-"""Command line: ``sheetfit refresh BOOK [--out PATH]``.
+"""Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``.
 
-Exit status 0 on success, 2 when the input is refused (one line on stderr, the
-workbook untouched), 1 for an internal fault.
+Exit status 0 on success, 2 when the input or the target is refused (one line on stderr,
+the workbook untouched), 1 for an internal fault, 130 when stopped by SIGINT (Ctrl-C) and
+143 when stopped by SIGTERM (128 + the signal number; the workbook untouched, no
+temporary file left).
 """
 
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 from collections.abc import Sequence
 
 from . import __version__
 from .errors import SheetfitError
+from .stopping import Stopped, stop_signals
+from .writer.target import DEFAULT_WAIT
 
 __all__ = ["main"]
 
 EXIT_OK, EXIT_FAULT, EXIT_REFUSED = 0, 1, 2
+
+
+def _stopped_status(signum: int) -> int:
+    """The shell's convention: 128 + the signal number (130 for SIGINT, 143 for SIGTERM)."""
+    return 128 + signum
+
+
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number of seconds: {text!r}") from None
+    if not 0 <= value <= 24 * 3600:
+        raise argparse.ArgumentTypeError(f"give 0 to 86400 seconds, not {text}")
+    return value
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -29,6 +49,14 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("book", help="the .xlsx workbook")
     r.add_argument("--out", metavar="PATH",
                    help="write the refreshed workbook here and leave BOOK untouched")
+    r.add_argument("--force", action="store_true",
+                   help="replace the file even when it is read-only or open in a "
+                        "spreadsheet program")
+    r.add_argument("--backup", action="store_true",
+                   help="keep the file being replaced beside it as NAME.before-refresh.xlsx")
+    r.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
+                   help="how long to wait for another sheetfit refreshing the same book "
+                        f"(default {DEFAULT_WAIT:g})")
     return p
 
 
@@ -36,18 +64,22 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     args = _parser().parse_args(argv)
     try:
-        if args.command == "refresh":
-            from .refresh import refresh
+        with stop_signals():
+            if args.command == "refresh":
+                from .refresh import refresh
 
-            report = refresh(args.book, args.out)
-            print(report.text())
+                report = refresh(args.book, args.out, force=args.force, backup=args.backup,
+                                 wait=args.wait)
+                print(report.text())
         return EXIT_OK
     except SheetfitError as exc:
         print(f"sheetfit: refused: {exc.render()}", file=sys.stderr)
         return EXIT_REFUSED
-    except KeyboardInterrupt:
-        print("sheetfit: interrupted; the workbook was not changed", file=sys.stderr)
-        return EXIT_FAULT
+    except (Stopped, KeyboardInterrupt) as exc:
+        signum = exc.signum if isinstance(exc, Stopped) else signal.SIGINT
+        name = signal.Signals(signum).name
+        print(f"sheetfit: stopped by {name}; the workbook was not changed", file=sys.stderr)
+        return _stopped_status(signum)
     except Exception as exc:  # noqa: BLE001 - last line of defence: no traceback for users
         print(f"sheetfit: internal fault ({type(exc).__name__}: {exc}); the workbook was not "
               "changed. Please report this with the file if you can.", file=sys.stderr)

@@ -17,6 +17,7 @@ __all__ = [
     "DataError",
     "DeclarationError",
     "ExtrapolationCaution",
+    "OutputError",
     "PackageError",
     "SettingError",
     "SheetfitCaution",
@@ -97,6 +98,12 @@ class SettingError(SheetfitError, ValueError):
 
 class PackageError(SheetfitError, OSError):
     """The workbook file cannot be read or written as an xlsx package."""
+
+
+class OutputError(SheetfitError, OSError):
+    """The refreshed workbook cannot be written where asked: a read-only or open workbook,
+    a missing or read-only folder, a folder given as the file, another refresh of the same
+    book under way, or the operating system refusing the write."""
 
 
 class CollinearError(DataError):

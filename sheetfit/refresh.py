@@ -31,23 +31,27 @@ from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
 from .writer.graft import OutputName, graft
 from .writer.render import render
+from .writer.target import DEFAULT_WAIT, backup_path, destination, exclusive
 
 __all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
 
 
 @dataclass
 class RefreshReport:
-    """What a refresh did: where it wrote, and one summary per model."""
+    """What a refresh did: where it wrote, the backup it kept, one summary per model."""
 
     source: Path
     target: Path
     refreshed: str
     models: list[ModelSummary]
+    backup: Path | None = None
 
     def text(self) -> str:
         head = f"refreshed {self.target}" + (
             "" if self.target == self.source else f" (from {self.source})"
         )
+        if self.backup is not None:
+            head += f"; the previous file is kept as {self.backup}"
         return "\n".join([head] + [m.text() for m in self.models])
 
 
@@ -106,25 +110,36 @@ def _values(pkg: Package, path: Path) -> BookValues:
 
 
 def refresh(book: str | Path, out: str | Path | None = None,
-            now: dt.datetime | None = None) -> RefreshReport:
+            now: dt.datetime | None = None, *, force: bool = False, backup: bool = False,
+            wait: float = DEFAULT_WAIT) -> RefreshReport:
     """Refresh every declared model of ``book``; write to ``out`` (default: the book itself).
 
+    Before any work, the target is checked (``writer.target.destination``): a read-only
+    file or one open in a spreadsheet program is refused unless ``force``; a missing or
+    read-only folder, or a folder given as ``out``, is refused. A symbolic link is
+    followed and its target refreshed. The refresh holds sheetfit's lock on the target,
+    waiting up to ``wait`` seconds for another refresh of it. With ``backup`` the file
+    being replaced is kept as ``writer.target.backup_path`` of it.
+
     Raises a SheetfitError (with file, name, sheet and cell) for input that cannot be
-    used; the workbook is then untouched.
+    used or a target that cannot be written; the workbook is then untouched.
     """
     source = Path(book)
-    target = Path(out) if out is not None else source
     file = source.name
     try:
-        pkg = open_package(source)
-        with _values(pkg, source) as values:
-            models = find_models(pkg, values, file, REGISTRY)
-        fits = [(m, fit_model(m)) for m in models]
-        stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
-        plan, summaries = plan_book(fits, stamp)
-        with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
-            rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
-            graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], target)
+        dest = destination(source, out, force=force, backup=backup)
+        target = Path(out) if out is not None else source
+        with exclusive(dest, wait):
+            kept = backup_path(dest.path) if backup and dest.exists else None
+            pkg = open_package(source)
+            with _values(pkg, source) as values:
+                models = find_models(pkg, values, file, REGISTRY)
+            fits = [(m, fit_model(m)) for m in models]
+            stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
+            plan, summaries = plan_book(fits, stamp)
+            with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
+                rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
+                graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], dest)
     except SheetfitError as exc:
         raise exc.with_file(file) from None
-    return RefreshReport(source, target, stamp, summaries)
+    return RefreshReport(source, target, stamp, summaries, kept)

@@ -23,7 +23,7 @@ import xlsxwriter
 from books import entries, part_changes, sheet_changes, soffice_convert
 from lxml import etree
 
-import sheetfit.writer.graft as graft_mod
+import sheetfit.writer.target as target_mod
 from sheetfit.errors import DeclarationError
 from sheetfit.owned import MARKER_NAME
 from sheetfit.reader.package import open_package, resolve_target
@@ -378,7 +378,7 @@ def test_in_place_and_failure_leave_no_temp(tmp_path: Path, books: dict[str, Pat
         raise OSError("disk full")
 
     with monkeypatch.context() as m:
-        m.setattr(graft_mod.os, "replace", boom)
+        m.setattr(target_mod.os, "replace", boom)
         with pytest.raises(OSError, match="disk full"):
             graft(open_package(p), books["rendered"], NAMES, p)
     assert p.read_bytes() == before

@@ -11,10 +11,8 @@ the refresh already opened; its zip is read for part bytes.
 
 from __future__ import annotations
 
-import os
 import posixpath
 import re
-import tempfile
 import zipfile
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -39,6 +37,7 @@ from sheetfit.writer._graft_workbook import (
     next_rid,
 )
 from sheetfit.writer._styles import StyleMap, merge_styles
+from sheetfit.writer.target import Destination, plain, replacing
 
 __all__ = ["OutputName", "graft"]
 
@@ -136,20 +135,25 @@ def _check_collisions(
 
 
 def graft(
-    pkg: Package, rendered: str | Path, names: Sequence[OutputName], target: str | Path
+    pkg: Package,
+    rendered: str | Path,
+    names: Sequence[OutputName],
+    target: str | Path | Destination,
 ) -> None:
     """Replace the owned sheets of the package ``pkg`` by those of ``rendered``.
 
     ``pkg`` is the user's package as :func:`~sheetfit.reader.package.open_package`
     read it; its file (``pkg.path``) is read for part bytes and the result is
-    written to ``target`` atomically (``target`` may be ``pkg.path``).
+    written to ``target`` atomically (``target`` may be ``pkg.path``; a path is
+    taken as it is, a ``Destination`` comes checked from ``writer.target``).
 
     Raises DeclarationError when a sheet or workbook-scoped name of the user's
     takes a title or output name sheetfit needs, PackageError when the source
-    cannot be read or was saved again since ``pkg`` was read; on any error
-    neither file is changed.
+    cannot be read or was saved again since ``pkg`` was read, OutputError when
+    the target cannot be written; on any error neither file is changed.
     """
-    source, rendered, target = pkg.path, Path(rendered), Path(target)
+    source, rendered = pkg.path, Path(rendered)
+    dest = target if isinstance(target, Destination) else plain(target)
     file = str(source)
     rb = _read_rendered(rendered)
     if rb.pkg.date1904 != pkg.date1904:
@@ -254,7 +258,7 @@ def graft(
             if new_app is not app:
                 edits[lower[_APP_PART.lower()]] = new_app
         edits = {k: v for k, v in edits.items() if v != read(k)}
-        _write_atomic(zs, infos, gone, edits, new_entries, target)
+        _write_atomic(zs, infos, gone, edits, new_entries, dest)
 
 
 def _write_atomic(
@@ -263,42 +267,23 @@ def _write_atomic(
     gone: set[str],
     edits: dict[str, bytes],
     new_entries: list[tuple[str, bytes]],
-    target: Path,
+    target: Destination,
 ) -> None:
-    """Write the new package next to ``target``, fsync it, then rename it over ``target``."""
-    fd, tmp_name = tempfile.mkstemp(prefix=".sheetfit-", suffix=".tmp", dir=target.parent)
-    tmp = Path(tmp_name)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            with zipfile.ZipFile(fh, "w") as zout:
-                for info in infos:
-                    if info.filename.lower() in gone:
-                        continue
-                    data = edits.get(info.filename)
-                    if data is None:
-                        data = zs.read(info)
-                    zi = zipfile.ZipInfo(info.filename, info.date_time)
-                    zi.compress_type = info.compress_type
-                    zi.external_attr = info.external_attr
-                    zi.create_system = info.create_system
-                    zout.writestr(zi, data)
-                for name, data in new_entries:
-                    zi = zipfile.ZipInfo(name, _FIXED_TIME)
-                    zi.compress_type = zipfile.ZIP_DEFLATED
-                    zout.writestr(zi, data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    try:
-        dfd = os.open(target.parent, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(dfd)
-    except OSError:
-        pass
-    finally:
-        os.close(dfd)
+    """Write the new package into a temporary file beside ``target`` that then replaces it
+    (``writer/target.py``: permissions kept, backup if asked, OS errors as refusals)."""
+    with replacing(target) as fh, zipfile.ZipFile(fh, "w") as zout:
+        for info in infos:
+            if info.filename.lower() in gone:
+                continue
+            data = edits.get(info.filename)
+            if data is None:
+                data = zs.read(info)
+            zi = zipfile.ZipInfo(info.filename, info.date_time)
+            zi.compress_type = info.compress_type
+            zi.external_attr = info.external_attr
+            zi.create_system = info.create_system
+            zout.writestr(zi, data)
+        for name, data in new_entries:
+            zi = zipfile.ZipInfo(name, _FIXED_TIME)
+            zi.compress_type = zipfile.ZIP_DEFLATED
+            zout.writestr(zi, data)
