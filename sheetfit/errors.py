@@ -25,6 +25,16 @@ __all__ = [
 ]
 
 
+#: Longest message and hint a refusal line carries (user text is clipped before, see words.clip).
+_MESSAGE_LIMIT = 400
+_HINT_LIMIT = 200
+
+
+def _one_line(text: str, limit: int) -> str:
+    one = " ".join(text[: 2 * limit].split()) if not text.isprintable() else text
+    return one if len(one) <= limit else one[: limit - 1] + "…"
+
+
 @dataclass(frozen=True)
 class Context:
     """Where a problem is: file, defined name, sheet and cell (each optional)."""
@@ -64,10 +74,16 @@ class SheetfitError(Exception):
         super().__init__(self.render())
 
     def render(self) -> str:
+        """The one line a user reads: where, what, and what to do.
+
+        User text is clipped where a message quotes it; as a last guard, the message
+        and the hint are each kept to one line of bounded length here too.
+        """
         where = self.context.describe()
-        text = f"{where}: {self.message}" if where else self.message
+        message = _one_line(self.message, _MESSAGE_LIMIT)
+        text = f"{where}: {message}" if where else message
         if self.hint:
-            text += f" — {self.hint}"
+            text += f" — {_one_line(self.hint, _HINT_LIMIT)}"
         return text
 
     def with_context(self, context: Context) -> SheetfitError:

@@ -106,7 +106,7 @@ def plan_book(
 def _values(pkg: Package, path: Path) -> BookValues:
     """A values reader for the package's worksheets; the caller closes it."""
     parts = {s.name: s.part for s in pkg.sheets if "chartsheet" not in s.part.lower()}
-    return BookValues(path, parts, pkg.date1904)
+    return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
 
 
 def refresh(book: str | Path, out: str | Path | None = None,

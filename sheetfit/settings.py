@@ -14,6 +14,7 @@ from typing import Any, Protocol
 
 from .errors import Context, SettingError
 from .fit.checks import K_LIMIT
+from .words import clip
 
 __all__ = [
     "MethodSettings",
@@ -155,7 +156,7 @@ def parse_settings(pairs: list[tuple[str, Any, str]], context: Context,
         rule = rules.get(name)
         if rule is None:
             raise SettingError(
-                f"unknown setting '{key}'",
+                f"unknown setting '{clip(key)}'",
                 where,
                 hint="known settings: " + ", ".join(rules),
             )
@@ -165,7 +166,7 @@ def parse_settings(pairs: list[tuple[str, Any, str]], context: Context,
             values[name] = rule.parse(raw)
         except (ValueError, TypeError, OverflowError):
             raise SettingError(
-                f"setting '{rule.name}' must be {rule.allowed}, not '{raw}'", where
+                f"setting '{rule.name}' must be {rule.allowed}, not '{clip(raw)}'", where
             ) from None
         given[name] = cell
     method = methods[values["method"]]

@@ -20,8 +20,18 @@ from ..a1 import cell_ref, col_letter, quote_sheet
 from ..errors import Context, DataError, DeclarationError
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
 from ..reader.package import DefinedName, Package
-from ..reader.values import BLANK, ERROR, NUMBER, TEXT, BookValues, SheetValues, Value
+from ..reader.values import (
+    BLANK,
+    ERROR,
+    NUMBER,
+    TEXT,
+    UNSAVED,
+    BookValues,
+    SheetValues,
+    Value,
+)
 from ..settings import MethodSettings, Settings, parse_settings
+from ..words import clip, plural
 from .refs import Area, RefError, parse_areas
 
 __all__ = [
@@ -105,11 +115,12 @@ def describe_value(v: Value) -> str:
     if v.kind == BLANK:
         return "blank"
     if v.kind == ERROR:
-        return f"error {v.text}"
+        return f"error {clip(v.text, 20)}"
     if v.kind == TEXT:
-        text = v.text if len(v.text) <= 20 else v.text[:17] + "..."
-        return f"text '{text}'"
-    return f"{v.text} (not a number)"
+        return f"text '{clip(v.text, 20)}'"
+    if v.kind == UNSAVED:
+        return "a formula with no saved result"
+    return f"{clip(v.text, 20)} (not a number)"
 
 
 @dataclass
@@ -217,6 +228,33 @@ def _areas(d: DefinedName, pkg: Package, file: str) -> list[Area]:
     return areas
 
 
+#: Cells a refusal lists by address before it only counts the rest.
+_LISTED = 5
+
+
+def _refuse_unsaved(role: str, d: DefinedName, areas: list[Area], values: BookValues,
+                    file: str) -> None:
+    """Formula cells without a saved result in a declared range are refused, never blanks.
+
+    A book written by a program that does not calculate stores ``<f>`` without ``<v>``;
+    reading those cells as blanks would leave rows out for no reason the user can see.
+    """
+    cells = [
+        (a.sheet, cell_ref(r, c))
+        for a in areas
+        for r, c in values.sheet(a.sheet).unsaved_in(a.row1, a.row2, a.col1, a.col2)
+    ]
+    if not cells:
+        return
+    listed = ", ".join(ref for _, ref in cells[:_LISTED]) + (", …" if len(cells) > _LISTED else "")
+    raise DataError(
+        f"{plural(len(cells), 'formula cell')} in {role} "
+        f"{'has' if len(cells) == 1 else 'have'} no saved result ({listed})",
+        Context(file, d.name, cells[0][0], cells[0][1]),
+        hint="recalculate and save the book in a spreadsheet application first",
+    )
+
+
 def _trim(areas: list[Area], last: int) -> list[Area]:
     return [a.with_rows(1, max(last, 1)) if a.whole_columns else a for a in areas]
 
@@ -252,6 +290,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
     y_areas, x_areas = _areas(dy, pkg, file), _areas(dx, pkg, file)
     last = _last_row(y_areas + x_areas, values)
     y_areas, x_areas = _trim(y_areas, last), _trim(x_areas, last)
+    _refuse_unsaved("y", dy, y_areas, values, file)
+    _refuse_unsaved("x", dx, x_areas, values, file)
     if len(y_areas) != 1 or y_areas[0].n_cols != 1:
         raise DataError(
             "the response must be one column", Context(file, dy.name, y_areas[0].sheet,
@@ -311,7 +351,7 @@ def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
             first = next((v for v in kinds if v.kind != BLANK), None)
             what = describe_value(first) if first else "only blanks"
             raise DataError(
-                f"attribute '{c.name}' holds no numbers ({what} ...); distances and "
+                f"attribute '{clip(c.name)}' holds no numbers ({what} ...); distances and "
                 "fits need numeric attributes",
                 Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
                 hint="code the attribute as numbers or leave it out of x",
@@ -330,7 +370,7 @@ def _check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
         if key in seen:
             first = seen[key]
             raise DataError(
-                f"two attribute columns are both called '{c.name}' "
+                f"two attribute columns are both called '{clip(c.name)}' "
                 f"({cell_ref(first.first_row - 1, first.col)} and "
                 f"{cell_ref(c.first_row - 1, c.col)})",
                 Context(file, d.name, c.sheet, cell_ref(c.first_row - 1, c.col)),
@@ -359,7 +399,7 @@ def _read_rows(
                 continue
             if v.kind != NUMBER:
                 ok[i] = False
-                role = "y" if j == 0 else f"'{c.name}'"
+                role = "y" if j == 0 else f"'{clip(c.name)}'"
                 left.append(LeftOut(i, ycol.row_of(i),
                                     f"{describe_value(v)} in {role} ({c.cell(i)})"))
                 break
@@ -379,6 +419,7 @@ def _read_new(
     d = decl.names["new"]
     areas = _areas(d, pkg, file)
     areas = _trim(areas, _last_row(areas, values))
+    _refuse_unsaved("the new rows", d, areas, values, file)
     rows = {a.n_rows for a in areas}
     if len(rows) != 1:
         raise DataError("the areas of the new rows have different numbers of rows",
@@ -397,7 +438,7 @@ def _read_new(
         for c, xc in zip(cols, xcols):
             if c.name.casefold() != xc.name.casefold():
                 raise DataError(
-                    f"new-row column '{c.name}' stands where x has '{xc.name}'",
+                    f"new-row column '{clip(c.name)}' stands where x has '{clip(xc.name)}'",
                     Context(file, d.name, c.sheet, cell_ref(c.first_row - 1, c.col)),
                     hint="put the new-row columns in the order of x",
                 )
@@ -425,6 +466,7 @@ def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,
         return parse_settings([], Context(file), methods)
     areas = _areas(d, pkg, file)
     areas = _trim(areas, _last_row(areas, values))
+    _refuse_unsaved("the settings", d, areas, values, file)
     if len(areas) != 1 or areas[0].n_cols != 2:
         raise DeclarationError(
             "settings must be one range of two columns (setting, value)", Context(file, d.name),

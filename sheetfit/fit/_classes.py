@@ -11,12 +11,13 @@ import numpy as np
 
 from sheetfit.errors import DataError
 from sheetfit.labels import labels_equal
+from sheetfit.words import clip
 
 __all__ = ["class_index", "label_repr", "parse_labels", "position_votes", "vote"]
 
 
 def label_repr(v: Any) -> str:
-    return f"'{v}'" if isinstance(v, str) else f"'{v:.15g}'"
+    return f"'{clip(v)}'" if isinstance(v, str) else f"'{v:.15g}'"
 
 
 def parse_labels(labels: Sequence[str | float] | np.ndarray) -> tuple[np.ndarray, list[Any]]:

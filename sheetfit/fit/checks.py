@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from sheetfit.errors import ConditioningCaution, DataError, ExtrapolationCaution, SettingError
+from sheetfit.words import clip
 
 __all__ = [
     "CONDITION_CAUTION",
@@ -54,7 +55,7 @@ def _names(names: Sequence[str] | None, m: int) -> list[str]:
     if len(out) != m:
         raise DataError(f"{len(out)} attribute names given for {m} attribute columns")
     if len({s.casefold() for s in out}) != m:
-        raise DataError(f"attribute names repeat: {', '.join(out)}")
+        raise DataError(f"attribute names repeat: {', '.join(map(clip, out))}")
     return out
 
 
@@ -62,7 +63,7 @@ def _finite(X: np.ndarray, names: list[str], what: str) -> None:
     bad = np.argwhere(~np.isfinite(X))
     if bad.size:
         i, j = bad[0]
-        raise DataError(f"{what} {i + 1}: attribute {names[j]} is not a finite number ({X[i, j]})",
+        raise DataError(f"{what} {i + 1}: attribute {clip(names[j])} is not a finite number ({X[i, j]})",
                         column=int(j))
 
 
@@ -89,7 +90,7 @@ def new_rows(X_new: Any, names: Sequence[str]) -> np.ndarray:
     if X.ndim == 1:
         X = X.reshape(-1, 1) if m == 1 else X.reshape(1, -1)
     if X.ndim != 2 or X.shape[1] != m:
-        raise DataError(f"new rows need {m} attribute columns ({', '.join(names)}), "
+        raise DataError(f"new rows need {m} attribute columns ({', '.join(map(clip, names))}), "
                         f"given shape {X.shape}")
     _finite(X, list(names), "new row")
     return X
@@ -123,7 +124,7 @@ def one_attribute(X: np.ndarray, names: list[str], why: str) -> None:
     """Refuse more than one attribute column."""
     if X.shape[1] != 1:
         raise DataError(f"{why} needs exactly one attribute, given {X.shape[1]} "
-                        f"({', '.join(names)})",
+                        f"({', '.join(map(clip, names))})",
                         hint="declare one attribute column for this model")
 
 
@@ -152,7 +153,7 @@ def not_constant(X: np.ndarray, names: list[str], so: str, hint: str) -> None:
     if same.any():
         j = int(np.flatnonzero(same)[0])
         raise DataError(
-            f"attribute '{names[j]}' has the same value ({X[0, j]:g}) in every used row, so {so}",
+            f"attribute '{clip(names[j])}' has the same value ({X[0, j]:g}) in every used row, so {so}",
             hint=hint, column=j,
         )
 

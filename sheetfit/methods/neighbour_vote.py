@@ -8,6 +8,7 @@ from ..fit.neighbours import NeighbourVote, NeighbourVoteResult
 from ..labels import label_text, labels_equal
 from ..settings import Rule, label
 from ..sheets.neighbours import plan_neighbour_vote
+from ..words import clip
 from . import _neighbours
 from .base import Method
 
@@ -31,8 +32,8 @@ def _check(model: ModelData) -> None:
         return
     classes = sorted({label_text(v) for v in model.Y})
     raise SettingError(
-        f"focus '{label_text(focus)}' is not one of the classes in y "
-        f"({', '.join(classes[:10])}{' ...' if len(classes) > 10 else ''})",
+        f"focus '{clip(label_text(focus))}' is not one of the classes in y "
+        f"({', '.join(clip(c, 30) for c in classes[:10])}{' ...' if len(classes) > 10 else ''})",
         Context(model.file, model.names.get("opts")),
         hint="write the class exactly as in the data (capitals count)",
     )

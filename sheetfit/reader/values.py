@@ -1,37 +1,63 @@
-"""Read cell values of a user's workbook fast (cached values of formula cells included).
+"""Read cell values of a user's workbook: only the sheets asked for, never refusing a sheet
+our own parser can read.
 
-python-calamine reads the values (about 8x faster than openpyxl on 1M cells,
-docs/engine-facts.md R1) but shows error cells as empty strings, so error cells are found
-separately with one regular-expression pass over the sheet's XML. The file is opened
-once, on the first sheet read, and held until the reader is closed.
+Two readers give the same values (tests/test_values.py compares them cell by cell):
+
+- **fast** — python-calamine (about 8x faster than openpyxl on 1M cells,
+  docs/engine-facts.md R1). It shows error cells as empty strings and formula cells
+  without a saved result as blanks, so one byte scan of the sheet's XML
+  (``_sheetxml.scan``) finds both. It builds a dense rectangle from the first to the
+  last cell holding a value, so the scan also measures that rectangle first.
+- **streaming** — our own hardened parse of the one sheet part (``_sheetxml``) into a
+  sparse map. Used when the fast reader cannot open the book or the sheet (UTF-16
+  parts, macro-sheet parts, relationships it does not follow), when the part is not
+  UTF-8, and when the fast reader's rectangle would be mostly empty (a stray value in
+  row 1,048,576; millions of styled blank rows after the data), so memory follows the
+  cells that hold values, not the sheet's extent.
+
+Text is capped at ``TEXT_CAP`` characters per cell (the format's own limit). Each sheet
+is read on first use; the file is opened once and held until the reader is closed.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import re
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import TracebackType
-from typing import Any, Self
+from typing import Any, Protocol, Self
 
 import python_calamine
 
-from ..a1 import col_index
 from ..errors import Context, PackageError
+from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
+from .package import parse_rels, rels_part_of
 
-__all__ = ["BLANK", "ERROR", "NUMBER", "OTHER", "TEXT", "BookValues", "SheetValues", "Value"]
+__all__ = [
+    "BLANK",
+    "ERROR",
+    "NUMBER",
+    "OTHER",
+    "TEXT",
+    "TEXT_CAP",
+    "UNSAVED",
+    "BookValues",
+    "SheetValues",
+    "Value",
+]
 
 BLANK, NUMBER, TEXT, ERROR, OTHER = "blank", "number", "text", "error", "other"
+#: A formula cell stored without its result (written by a program that does not calculate).
+UNSAVED = "unsaved"
 
 _EPOCH_1900 = dt.datetime(1899, 12, 30)
 _EPOCH_1904 = dt.datetime(1904, 1, 1)
-_ERROR_CELL = re.compile(
-    rb"<(?:\w+:)?c\b(?=[^>]*\bt=\"e\")[^>]*?\br=\"([A-Z]+)([0-9]+)\"[^>]*>"
-    rb"(?:.*?<(?:\w+:)?v>([^<]*)</(?:\w+:)?v>)?",
-    re.DOTALL,
-)
+_SHARED_STRINGS = "/sharedStrings"
+#: The fast reader may build this many cells beyond four per value before we stream instead.
+DENSE_SLACK = 1 << 20
+#: Bytes of trailing blank rows after the last content beyond which we stream (and stop there).
+TAIL_LIMIT = 16 << 20
 
 
 @dataclass(frozen=True)
@@ -43,13 +69,59 @@ class Value:
     text: str = ""
 
 
+class _Cells(Protocol):
+    def raw(self, row: int, col: int) -> Any: ...
+
+    def last_row(self, col1: int, col2: int) -> int: ...
+
+
+@dataclass
+class _Dense:
+    """The fast reader's rectangle from A1: rows of raw values ("" = empty)."""
+
+    rows: list[list[Any]]
+
+    def raw(self, row: int, col: int) -> Any:
+        try:
+            return self.rows[row - 1][col - 1] if row > 0 and col > 0 else ""
+        except IndexError:
+            return ""
+
+    def last_row(self, col1: int, col2: int) -> int:
+        for i in range(len(self.rows) - 1, -1, -1):
+            if any(v != "" for v in self.rows[i][col1 - 1 : col2]):
+                return i + 1
+        return 0
+
+
+@dataclass
+class _Sparse:
+    """The streaming reader's cells: row -> {col: raw value}, only cells holding one."""
+
+    rows: dict[int, dict[int, Any]]
+    _order: list[int] = field(default_factory=list)
+
+    def raw(self, row: int, col: int) -> Any:
+        cells = self.rows.get(row)
+        return "" if cells is None else cells.get(col, "")
+
+    def last_row(self, col1: int, col2: int) -> int:
+        if len(self._order) != len(self.rows):
+            self._order = sorted(self.rows, reverse=True)
+        for r in self._order:
+            if any(col1 <= c <= col2 for c in self.rows[r]):
+                return r
+        return 0
+
+
 @dataclass
 class SheetValues:
     """The values of one sheet, addressed by 1-based row and column."""
 
     name: str
-    rows: list[list[Any]]
+    cells: _Cells
     errors: dict[tuple[int, int], str]
+    unsaved: set[tuple[int, int]] = field(default_factory=set)
     date1904: bool = False
 
     def get(self, row: int, col: int) -> Value:
@@ -57,11 +129,9 @@ class SheetValues:
         err = self.errors.get((row, col))
         if err is not None:
             return Value(ERROR, text=err)
-        try:
-            raw = self.rows[row - 1][col - 1]
-        except IndexError:
-            return Value(BLANK)
-        return self._classify(raw)
+        if self.unsaved and (row, col) in self.unsaved:
+            return Value(UNSAVED)
+        return self._classify(self.cells.raw(row, col))
 
     def _classify(self, raw: Any) -> Value:
         if isinstance(raw, bool):
@@ -69,7 +139,7 @@ class SheetValues:
         if isinstance(raw, (int, float)):
             return Value(NUMBER, float(raw))
         if isinstance(raw, str):
-            return Value(BLANK) if raw == "" else Value(TEXT, text=raw)
+            return Value(BLANK) if raw == "" else Value(TEXT, text=raw[:TEXT_CAP])
         epoch = _EPOCH_1904 if self.date1904 else _EPOCH_1900
         if isinstance(raw, dt.datetime):
             return Value(NUMBER, (raw - epoch) / dt.timedelta(days=1))
@@ -80,36 +150,53 @@ class SheetValues:
             return Value(NUMBER, secs / 86400.0)
         if isinstance(raw, dt.timedelta):
             return Value(NUMBER, raw / dt.timedelta(days=1))
-        return Value(OTHER, text=str(raw))
+        return Value(OTHER, text=str(raw)[:TEXT_CAP])
 
     def last_used_row(self, col1: int, col2: int) -> int:
-        """The last row holding any value (or error) in columns col1..col2; 0 if none."""
-        last = 0
-        for r, c in self.errors:
-            if col1 <= c <= col2:
-                last = max(last, r)
-        for i in range(len(self.rows) - 1, last - 1, -1):
-            if any(v != "" for v in self.rows[i][col1 - 1 : col2]):
-                return max(last, i + 1)
+        """The last row holding any value, error or formula in columns col1..col2; 0 if none."""
+        last = self.cells.last_row(col1, col2)
+        for r, c in (*self.errors, *self.unsaved):
+            if col1 <= c <= col2 and r > last:
+                last = r
         return last
+
+    def unsaved_in(self, row1: int, row2: int, col1: int, col2: int) -> list[tuple[int, int]]:
+        """Formula cells without a saved result inside the rectangle, in row order."""
+        return sorted(
+            (r, c) for r, c in self.unsaved if row1 <= r <= row2 and col1 <= c <= col2
+        )
+
+
+def _fast_reader_failed(exc: BaseException) -> bool:
+    """Whether the fast reader's exception means "read this one yourself".
+
+    A Rust panic in the fast reader arrives as pyo3's PanicException, a BaseException.
+    """
+    return isinstance(exc, Exception) or type(exc).__name__ == "PanicException"
 
 
 @dataclass
 class BookValues:
     """Lazy per-sheet value reader for one workbook file.
 
-    Each sheet is read on first use. The first read opens the file (the value
-    reader and one zip handle for the error cells), which stays open for the other
-    sheets until :meth:`close`; use the reader as a context manager. Sheets read
-    before closing stay available afterwards.
+    Each sheet is read on first use, and only the sheets asked for are parsed. The
+    first read opens the file, which stays open for the other sheets until
+    :meth:`close`; use the reader as a context manager. Sheets read before closing
+    stay available afterwards.
     """
 
     path: Path
     sheet_parts: dict[str, str]
     date1904: bool = False
+    workbook_part: str = "xl/workbook.xml"
+    #: Which reader read each sheet ("fast" or "stream"), by sheet name.
+    readers: dict[str, str] = field(default_factory=dict)
     _cache: dict[str, SheetValues] = field(default_factory=dict)
     _book: Any = None
+    _book_failed: bool = field(default=False, init=False, repr=False)
+    _strings: list[str] | None = field(default=None, init=False, repr=False)
     _zip: zipfile.ZipFile | None = field(default=None, init=False, repr=False)
+    _members: dict[str, str] = field(default_factory=dict, init=False, repr=False)
     _closed: bool = field(default=False, init=False, repr=False)
 
     def __enter__(self) -> Self:
@@ -149,22 +236,92 @@ class BookValues:
                 return known
         raise KeyError(name)
 
+    def _archive(self) -> zipfile.ZipFile:
+        """The open zip (opened on first use)."""
+        if self._zip is None:
+            self._zip = zipfile.ZipFile(self.path)
+            self._members = {n.lower(): n for n in self._zip.namelist()}
+        return self._zip
+
+    def _member(self, part: str) -> str:
+        """The zip entry of a part (part names ignore case); KeyError if there is none."""
+        self._archive()
+        return self._members[part.lower()]
+
     def _load(self, name: str) -> SheetValues:
         if self._closed:
             raise ValueError(f"values reader of {self.path} closed before sheet {name!r} was read")
         try:
+            return self._read(name)
+        except PackageError:
+            raise
+        except Exception as exc:  # the part or its XML is unreadable even to our own parser
+            raise PackageError(
+                f"cannot read the values of this sheet ({exc.__class__.__name__}: "
+                f"{str(exc)[:200]})",
+                Context(str(self.path), sheet=name),
+            ) from exc
+
+    def _read(self, name: str) -> SheetValues:
+        member = self._member(self.sheet_parts[name])
+        zf = self._archive()
+        data = zf.read(member)
+        found = scan(data) if utf8(data) else None
+        stop: int | None = None
+        if found is not None and found.located:
+            if found.last_row == 0:  # nothing in the sheet holds a value or a formula
+                self.readers[name] = "fast"
+                return SheetValues(name, _Dense([]), found.errors, found.unsaved, self.date1904)
+            dense = found.rectangle() <= 4 * found.n_values + DENSE_SLACK
+            if dense and found.tail <= TAIL_LIMIT:
+                rows = self._fast(name)
+                if rows is not None:
+                    self.readers[name] = "fast"
+                    return SheetValues(name, _Dense(rows), found.errors, found.unsaved,
+                                       self.date1904)
+            if found.tail > TAIL_LIMIT:
+                stop = found.last_row
+        del data
+        with zf.open(member) as fh:
+            cells = stream_sheet(fh, self._shared_strings(), stop)
+        self.readers[name] = "stream"
+        return SheetValues(name, _Sparse(cells.rows), cells.errors, cells.unsaved, self.date1904)
+
+    def _fast(self, name: str) -> list[list[Any]] | None:
+        """The fast reader's rows of one sheet, or None when it cannot read them."""
+        if self._book_failed:
+            return None
+        try:
             if self._book is None:
                 self._book = python_calamine.load_workbook(str(self.path))
-            rows = self._book.get_sheet_by_name(name).to_python(skip_empty_area=False)
-            if self._zip is None:
-                self._zip = zipfile.ZipFile(self.path)
-            xml = self._zip.read(self.sheet_parts[name])
-        except (python_calamine.CalamineError, OSError, KeyError, zipfile.BadZipFile) as exc:
-            raise PackageError(
-                f"cannot read the values of this sheet ({exc})", Context(str(self.path), sheet=name)
-            ) from exc
-        errors = {
-            (int(m.group(2)), col_index(m.group(1))): (m.group(3) or b"#N/A").decode()
-            for m in _ERROR_CELL.finditer(xml)
-        }
-        return SheetValues(name, rows, errors, self.date1904)
+            rows: list[list[Any]] = self._book.get_sheet_by_name(name).to_python(
+                skip_empty_area=False)
+            return rows
+        except BaseException as exc:
+            if not _fast_reader_failed(exc):
+                raise
+            if self._book is None:
+                self._book_failed = True
+            return None
+
+    def _shared_strings(self) -> list[str]:
+        if self._strings is None:
+            self._strings = []
+            try:
+                rels = parse_rels(self._zip_read(rels_part_of(self.workbook_part)),
+                                  self.workbook_part)
+            except KeyError:
+                rels = []
+            for rel in rels:
+                if rel.type.endswith(_SHARED_STRINGS) and rel.part is not None:
+                    try:
+                        member = self._member(rel.part)
+                    except KeyError:
+                        continue
+                    with self._archive().open(member) as fh:
+                        self._strings = read_shared_strings(fh)
+                    break
+        return self._strings
+
+    def _zip_read(self, part: str) -> bytes:
+        return self._archive().read(self._member(part))
