@@ -76,6 +76,7 @@ def main() -> int:
     slice_ = 1.2 * took / kills
     moments = [rng.uniform(k * slice_, (k + 1) * slice_) for k in range(kills)]
     moments += [(a + b) / 2 for a, b in spans.values()]
+    moments += [0.0, 3.0 * took]  # surely before the start and (even on a busy machine) after the end
     for delay in moments:
         shutil.copyfile(book, target)
         pid = os.fork()
