@@ -9,6 +9,7 @@ from __future__ import annotations
 import datetime as dt
 import tempfile
 import warnings
+import weakref
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -24,7 +25,7 @@ from .errors import (
     SheetfitError,
 )
 from .methods import REGISTRY, Fitted
-from .reader.package import Package, open_package
+from .reader.package import Package, open_package, readable_copy
 from .reader.values import BookValues
 from .sheets.index import plan_index
 from .sheets.plan import BookPlan, SheetPlan
@@ -101,8 +102,12 @@ def plan_book(
 
 def _values(pkg: Package, path: Path) -> BookValues:
     """A values reader for the package's worksheets; the caller closes it."""
-    parts = {s.name: s.part for s in pkg.sheets if "chartsheet" not in s.part.lower()}
-    return BookValues(path, parts, pkg.date1904)
+    parts = {s.name: s.part for s in pkg.sheets if s.is_worksheet}
+    source, copy = readable_copy(pkg) if path == pkg.path else (path, None)
+    values = BookValues(source, parts, pkg.date1904)
+    if copy is not None:
+        weakref.finalize(values, copy.cleanup)
+    return values
 
 
 def refresh(book: str | Path, out: str | Path | None = None,

@@ -7,16 +7,22 @@ P1).
 
 from __future__ import annotations
 
+import codecs
 import posixpath
+import re
+import shutil
+import tempfile
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from xml.etree.ElementTree import Element
 
+from defusedxml import DefusedXmlException
 from defusedxml import ElementTree as SafeET
 
 from sheetfit.errors import Context, PackageError
 from sheetfit.owned import MARKER_NAME
+from sheetfit.reader.integrity import check_directory, read_member, scan_members
 
 __all__ = [
     "NS_MAIN",
@@ -29,6 +35,7 @@ __all__ = [
     "open_package",
     "parse_rels",
     "parse_xml",
+    "readable_copy",
     "rels_part_of",
     "resolve_target",
 ]
@@ -43,7 +50,13 @@ _OLE_MAGIC = bytes.fromhex("D0CF11E0A1B11AE1")
 
 @dataclass(frozen=True)
 class SheetEntry:
-    """One `<sheet>` of the workbook part: a worksheet or a chartsheet."""
+    """One `<sheet>` of the workbook part: a worksheet, chartsheet, macro sheet or dialog sheet.
+
+    ``kind`` is the last segment of its relationship type (``worksheet``,
+    ``chartsheet``, ``xlMacrosheet``, ``dialogsheet``, ...), "" when the entry has no
+    relationship (an empty or dangling ``r:id``); only a ``worksheet`` holds cells
+    sheetfit reads.
+    """
 
     name: str
     sheet_id: int
@@ -51,6 +64,12 @@ class SheetEntry:
     part: str  # zip path, e.g. "xl/worksheets/sheet1.xml"
     state: str  # "visible" | "hidden" | "veryHidden"
     index: int  # 0-based position in <sheets> (what localSheetId refers to)
+    kind: str = "worksheet"
+
+    @property
+    def is_worksheet(self) -> bool:
+        """Whether this sheet holds cells sheetfit may read (a worksheet with a part)."""
+        return self.kind == "worksheet" and bool(self.part)
 
 
 @dataclass(frozen=True)
@@ -122,9 +141,19 @@ class Package:
 
 
 def parse_xml(data: bytes, file: str, part: str) -> Element:
-    """Parse one part of the user's package safely; PackageError if it is not XML."""
+    """Parse one part of the user's package safely; PackageError if it is not XML.
+
+    DTDs, entity declarations and external references are refused (the package
+    format has no use for them), naming the part.
+    """
     try:
-        return SafeET.fromstring(data)
+        return SafeET.fromstring(data, forbid_dtd=True)
+    except DefusedXmlException as exc:
+        raise PackageError(
+            f"part {part} carries a DTD or entity declaration, which sheetfit does not read",
+            Context(file=file),
+            hint="open and re-save the book in a spreadsheet application",
+        ) from exc
     except Exception as exc:  # defusedxml raises several kinds; all mean "unreadable"
         raise PackageError(
             f"part {part} is not readable XML ({exc.__class__.__name__}: {exc})",
@@ -184,7 +213,7 @@ class _Zip:
         name = self.find(part)
         if name is None:
             raise PackageError(f"part {part} is missing", Context(file=self.file))
-        return self.zf.read(name)
+        return read_member(self.zf, name, self.file)
 
 
 def _refuse_non_zip(path: Path, file: str) -> None:
@@ -214,7 +243,7 @@ def _find_workbook(z: _Zip) -> str:
         raise PackageError(
             "no package relationships (_rels/.rels): not an xlsx package", Context(file=z.file)
         )
-    rels = parse_rels(z.zf.read(rels_name), "", z.file, "_rels/.rels")
+    rels = parse_rels(z.read(rels_name), "", z.file, "_rels/.rels")
     for rel in rels:
         if rel.type.endswith(_OFFICE_DOC) and _STRICT_MARK in rel.type:
             raise PackageError(
@@ -239,7 +268,10 @@ def open_package(path: str | Path) -> Package:
     """Read the sheets, defined names and date system of a user's xlsx package.
 
     Raises PackageError (naming the file) for a non-zip, an OLE file (encrypted
-    workbook or .xls), a Strict OOXML package, or a package without a workbook part.
+    workbook or .xls), a Strict OOXML package, a package without a workbook part,
+    and for a package that fails the checks of :mod:`sheetfit.reader.integrity`
+    (case-duplicate part names, sizes beyond the caps, a damaged member, a DTD, too
+    much shared text), all before anything else is done with it.
     """
     path = Path(path)
     file = str(path)
@@ -249,9 +281,10 @@ def open_package(path: str | Path) -> Package:
     except (zipfile.BadZipFile, OSError) as exc:
         raise PackageError(f"not a readable zip archive ({exc})", Context(file=file)) from exc
     with zf:
+        check_directory(zf, file)
         z = _Zip(zf, file)
         wb_part = _find_workbook(z)
-        root = parse_xml(zf.read(wb_part), file, wb_part)
+        root = parse_xml(z.read(wb_part), file, wb_part)
         ns = root.tag[1:].split("}", 1)[0] if root.tag.startswith("{") else ""
         if _STRICT_MARK in ns:
             raise PackageError(
@@ -264,11 +297,12 @@ def open_package(path: str | Path) -> Package:
         rels_name = z.find(rels_part_of(wb_part))
         rels = {}
         if rels_name is not None:
-            rels = {r.rid: r for r in parse_rels(zf.read(rels_name), wb_part, file, rels_name)}
+            rels = {r.rid: r for r in parse_rels(z.read(rels_name), wb_part, file, rels_name)}
         sheets = _read_sheets(root, rels, z)
         names = _read_names(root)
         pr = root.find(f"{{{NS_MAIN}}}workbookPr")
         date1904 = pr is not None and _truthy(pr.get("date1904"))
+        _scan(z, wb_part, rels, sheets)
         sources = [z.find("_rels/.rels"), wb_part, rels_name]
         return Package(
             path=path,
@@ -281,6 +315,21 @@ def open_package(path: str | Path) -> Package:
         )
 
 
+_PARSED_TYPES = ("/styles", "/sharedStrings", "/calcChain")
+
+
+def _scan(z: _Zip, wb_part: str, rels: dict[str, Rel], sheets: list[SheetEntry]) -> None:
+    """Every member read once (integrity checks) before the package is used."""
+    worksheets = {s.part for s in sheets if s.is_worksheet}
+    linked = [r.part for r in rels.values() if r.part and r.type.endswith(_PARSED_TYPES)]
+    parsed = {n for n in z.names if n.lower().endswith(".rels")}
+    parsed |= {wb_part, "[Content_Types].xml", "docProps/app.xml", *worksheets, *linked}
+    sst = next(
+        (r.part for r in rels.values() if r.part and r.type.endswith("/sharedStrings")), None
+    )
+    scan_members(z.zf, z.file, parsed, worksheets, z.find(sst) if sst else None)
+
+
 def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntry]:
     out: list[SheetEntry] = []
     holder = root.find(f"{{{NS_MAIN}}}sheets")
@@ -288,10 +337,12 @@ def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntr
         return out
     for i, el in enumerate(holder.findall(f"{{{NS_MAIN}}}sheet")):
         rid = el.get(f"{{{NS_REL}}}id", "")
-        rel = rels.get(rid)
+        rel = rels.get(rid) if rid else None
         part = ""
+        kind = ""
         if rel is not None and rel.part is not None:
             part = z.find(rel.part) or rel.part
+            kind = rel.type.rsplit("/", 1)[-1]
         try:
             sheet_id = int(el.get("sheetId", "0"))
         except ValueError:
@@ -304,6 +355,7 @@ def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntr
                 part=part,
                 state=el.get("state", "visible"),
                 index=i,
+                kind=kind,
             )
         )
     return out
@@ -329,3 +381,56 @@ def _read_names(root: Element) -> list[DefinedName]:
             )
         )
     return out
+
+
+_CELL_KINDS = ("worksheet", "chartsheet")
+_SHEET_EL = re.compile(r"<(?:[\w.-]+:)?sheet\b[^>]*>(?:\s*</(?:[\w.-]+:)?sheet>)?")
+_SHEETS_EL = re.compile(r"<(?:[\w.-]+:)?sheets\b[^>]*>")
+
+
+def readable_copy(pkg: Package) -> tuple[Path, tempfile.TemporaryDirectory[str] | None]:
+    """The package's path, or a temporary copy the cell-value reader can open (and its
+    folder, which the caller cleans up once the reader is closed).
+
+    The value reader refuses a whole book when one ``<sheet>`` has an empty or
+    dangling relationship id or is neither a worksheet nor a chartsheet (an old-style
+    macro sheet, a dialog sheet). Such entries are skipped for reading: the copy's
+    workbook part lacks them (appended as a new member; the rest of the copy keeps
+    the original bytes). The user's file is never changed.
+    """
+    skip = [s for s in pkg.sheets if s.kind not in _CELL_KINDS or s.part not in pkg.entries]
+    if not skip:
+        return pkg.path, None
+    tmp = tempfile.TemporaryDirectory(prefix="sheetfit-read-")
+    try:
+        copy = Path(tmp.name) / pkg.path.name
+        shutil.copyfile(pkg.path, copy)
+        with zipfile.ZipFile(copy, "a") as zf:
+            info = zf.getinfo(pkg.workbook_part)
+            text, encoding = _decode(zf.read(info))
+            holder = _SHEETS_EL.search(text)
+            if holder is None:
+                raise ValueError("workbook part without <sheets> parsed with sheets")
+            spans = list(_SHEET_EL.finditer(text, holder.end()))[: len(pkg.sheets)]
+            for s in sorted(skip, key=lambda s: -s.index):
+                sp = spans[s.index]
+                text = text[: sp.start()] + text[sp.end() :]
+            zf.filelist.remove(info)
+            del zf.NameToInfo[info.filename]
+            new = zipfile.ZipInfo(info.filename, info.date_time)
+            new.compress_type = zipfile.ZIP_DEFLATED
+            zf.writestr(new, text.encode(encoding))
+    except BaseException:
+        tmp.cleanup()
+        raise
+    return copy, tmp
+
+
+def _decode(data: bytes) -> tuple[str, str]:
+    if data.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        return data.decode("utf-16"), "utf-16"
+    if data.startswith(b"<\x00"):
+        return data.decode("utf-16-le"), "utf-16-le"
+    if data.startswith(b"\x00<"):
+        return data.decode("utf-16-be"), "utf-16-be"
+    return data.decode("utf-8-sig"), "utf-8"
