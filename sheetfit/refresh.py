@@ -105,7 +105,7 @@ def plan_book(
 
 def _values(pkg: Package, path: Path) -> BookValues:
     """A values reader for the package's worksheets; the caller closes it."""
-    parts = {s.name: s.part for s in pkg.sheets if "chartsheet" not in s.part.lower()}
+    parts = {s.name: s.part for s in pkg.sheets if s.is_worksheet}
     return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
 
 

@@ -13,10 +13,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from xml.etree.ElementTree import Element
 
+from defusedxml import DefusedXmlException
 from defusedxml import ElementTree as SafeET
 
 from sheetfit.errors import Context, PackageError
 from sheetfit.owned import MARKER_NAME
+from sheetfit.reader.integrity import check_directory, read_member, scan_members
 
 __all__ = [
     "NS_MAIN",
@@ -43,7 +45,13 @@ _OLE_MAGIC = bytes.fromhex("D0CF11E0A1B11AE1")
 
 @dataclass(frozen=True)
 class SheetEntry:
-    """One `<sheet>` of the workbook part: a worksheet or a chartsheet."""
+    """One `<sheet>` of the workbook part: a worksheet, chartsheet, macro sheet or dialog sheet.
+
+    ``kind`` is the last segment of its relationship type (``worksheet``,
+    ``chartsheet``, ``xlMacrosheet``, ``dialogsheet``, ...), "" when the entry has no
+    relationship (an empty or dangling ``r:id``); only a ``worksheet`` holds cells
+    sheetfit reads.
+    """
 
     name: str
     sheet_id: int
@@ -51,6 +59,12 @@ class SheetEntry:
     part: str  # zip path, e.g. "xl/worksheets/sheet1.xml"
     state: str  # "visible" | "hidden" | "veryHidden"
     index: int  # 0-based position in <sheets> (what localSheetId refers to)
+    kind: str = "worksheet"
+
+    @property
+    def is_worksheet(self) -> bool:
+        """Whether this sheet holds cells sheetfit may read (a worksheet with a part)."""
+        return self.kind == "worksheet" and bool(self.part)
 
 
 @dataclass(frozen=True)
@@ -122,9 +136,19 @@ class Package:
 
 
 def parse_xml(data: bytes, file: str, part: str) -> Element:
-    """Parse one part of the user's package safely; PackageError if it is not XML."""
+    """Parse one part of the user's package safely; PackageError if it is not XML.
+
+    DTDs, entity declarations and external references are refused (the package
+    format has no use for them), naming the part.
+    """
     try:
-        return SafeET.fromstring(data)
+        return SafeET.fromstring(data, forbid_dtd=True)
+    except DefusedXmlException as exc:
+        raise PackageError(
+            f"part {part} carries a DTD or entity declaration, which sheetfit does not read",
+            Context(file=file),
+            hint="open and re-save the book in a spreadsheet application",
+        ) from exc
     except Exception as exc:  # defusedxml raises several kinds; all mean "unreadable"
         raise PackageError(
             f"part {part} is not readable XML ({exc.__class__.__name__}: {exc})",
@@ -184,7 +208,7 @@ class _Zip:
         name = self.find(part)
         if name is None:
             raise PackageError(f"part {part} is missing", Context(file=self.file))
-        return self.zf.read(name)
+        return read_member(self.zf, name, self.file)
 
 
 def _refuse_non_zip(path: Path, file: str) -> None:
@@ -214,7 +238,7 @@ def _find_workbook(z: _Zip) -> str:
         raise PackageError(
             "no package relationships (_rels/.rels): not an xlsx package", Context(file=z.file)
         )
-    rels = parse_rels(z.zf.read(rels_name), "", z.file, "_rels/.rels")
+    rels = parse_rels(z.read(rels_name), "", z.file, "_rels/.rels")
     for rel in rels:
         if rel.type.endswith(_OFFICE_DOC) and _STRICT_MARK in rel.type:
             raise PackageError(
@@ -239,7 +263,10 @@ def open_package(path: str | Path) -> Package:
     """Read the sheets, defined names and date system of a user's xlsx package.
 
     Raises PackageError (naming the file) for a non-zip, an OLE file (encrypted
-    workbook or .xls), a Strict OOXML package, or a package without a workbook part.
+    workbook or .xls), a Strict OOXML package, a package without a workbook part,
+    and for a package that fails the checks of :mod:`sheetfit.reader.integrity`
+    (case-duplicate part names, sizes beyond the caps, a damaged member, a DTD, too
+    much shared text), all before anything else is done with it.
     """
     path = Path(path)
     file = str(path)
@@ -249,9 +276,10 @@ def open_package(path: str | Path) -> Package:
     except (zipfile.BadZipFile, OSError) as exc:
         raise PackageError(f"not a readable zip archive ({exc})", Context(file=file)) from exc
     with zf:
+        check_directory(zf, file)
         z = _Zip(zf, file)
         wb_part = _find_workbook(z)
-        root = parse_xml(zf.read(wb_part), file, wb_part)
+        root = parse_xml(z.read(wb_part), file, wb_part)
         ns = root.tag[1:].split("}", 1)[0] if root.tag.startswith("{") else ""
         if _STRICT_MARK in ns:
             raise PackageError(
@@ -264,11 +292,12 @@ def open_package(path: str | Path) -> Package:
         rels_name = z.find(rels_part_of(wb_part))
         rels = {}
         if rels_name is not None:
-            rels = {r.rid: r for r in parse_rels(zf.read(rels_name), wb_part, file, rels_name)}
+            rels = {r.rid: r for r in parse_rels(z.read(rels_name), wb_part, file, rels_name)}
         sheets = _read_sheets(root, rels, z)
         names = _read_names(root)
         pr = root.find(f"{{{NS_MAIN}}}workbookPr")
         date1904 = pr is not None and _truthy(pr.get("date1904"))
+        _scan(z, wb_part, rels, sheets)
         sources = [z.find("_rels/.rels"), wb_part, rels_name]
         return Package(
             path=path,
@@ -281,6 +310,21 @@ def open_package(path: str | Path) -> Package:
         )
 
 
+_PARSED_TYPES = ("/styles", "/sharedStrings", "/calcChain")
+
+
+def _scan(z: _Zip, wb_part: str, rels: dict[str, Rel], sheets: list[SheetEntry]) -> None:
+    """Every member read once (integrity checks) before the package is used."""
+    worksheets = {s.part for s in sheets if s.is_worksheet}
+    linked = [r.part for r in rels.values() if r.part and r.type.endswith(_PARSED_TYPES)]
+    parsed = {n for n in z.names if n.lower().endswith(".rels")}
+    parsed |= {wb_part, "[Content_Types].xml", "docProps/app.xml", *worksheets, *linked}
+    sst = next(
+        (r.part for r in rels.values() if r.part and r.type.endswith("/sharedStrings")), None
+    )
+    scan_members(z.zf, z.file, parsed, worksheets, z.find(sst) if sst else None)
+
+
 def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntry]:
     out: list[SheetEntry] = []
     holder = root.find(f"{{{NS_MAIN}}}sheets")
@@ -288,10 +332,12 @@ def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntr
         return out
     for i, el in enumerate(holder.findall(f"{{{NS_MAIN}}}sheet")):
         rid = el.get(f"{{{NS_REL}}}id", "")
-        rel = rels.get(rid)
+        rel = rels.get(rid) if rid else None
         part = ""
+        kind = ""
         if rel is not None and rel.part is not None:
             part = z.find(rel.part) or rel.part
+            kind = rel.type.rsplit("/", 1)[-1]
         try:
             sheet_id = int(el.get("sheetId", "0"))
         except ValueError:
@@ -304,6 +350,7 @@ def _read_sheets(root: Element, rels: dict[str, Rel], z: _Zip) -> list[SheetEntr
                 part=part,
                 state=el.get("state", "visible"),
                 index=i,
+                kind=kind,
             )
         )
     return out

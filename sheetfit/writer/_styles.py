@@ -12,13 +12,15 @@ namespace declarations, which made styles grow on every run).
 
 from __future__ import annotations
 
+import re
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from xml.etree.ElementTree import Element
 
 from sheetfit.reader.package import NS_MAIN, parse_xml
 from sheetfit.writer import _graft_text as tx
 
-__all__ = ["StyleMap", "canonical", "merge_styles"]
+__all__ = ["StyleMap", "bare_styles", "canonical", "merge_styles", "user_style_indices"]
 
 _ORDER = (
     "numFmts",
@@ -206,3 +208,49 @@ def _append(doc: tx.Part, prefix: str, name: str, section: _Section) -> None:
     qroot = f"{prefix}:styleSheet" if prefix else "styleSheet"
     end = doc.text.rfind(f"</{qroot}")
     doc.insert(end, block)
+
+
+_XF = re.compile(r"<xf\b[^>]*/>|<xf\b[^>]*>.*?</xf>", re.DOTALL)
+_USER_XF = re.compile(rb"\b(?:s|style)\s*=\s*[\"'](\d+)[\"']")
+_USER_DXF = re.compile(rb"\bdxfId\s*=\s*[\"'](\d+)[\"']")
+
+
+def user_style_indices(sheets: Iterable[bytes]) -> tuple[int, int]:
+    """The highest cell-format and differential-format index the user's sheets use (-1: none)."""
+    xf = dxf = -1
+    for data in sheets:
+        xf = max([xf, *(int(m.group(1)) for m in _USER_XF.finditer(data))])
+        dxf = max([dxf, *(int(m.group(1)) for m in _USER_DXF.finditer(data))])
+    return xf, dxf
+
+
+def bare_styles(rendered: bytes, max_xf: int, max_dxf: int) -> bytes:
+    """A styles part for a book that lacks one: the rendered book's, with the indices
+    0 … ``max_xf`` (``max_dxf``) the user's cells already use kept as plain formats, so
+    no cell of theirs takes one of sheetfit's formats. Merge the rendered part into it
+    to map the rendered sheets' indices past them."""
+    text = rendered.decode("utf-8")
+    pad_xf = max(0, max_xf)  # index 0 is the rendered part's own plain format
+    if pad_xf:
+        holder = re.search(r"<cellXfs\b[^>]*>", text)
+        first = _XF.search(text, holder.end()) if holder else None
+        if holder is None or first is None:
+            raise ValueError("rendered styles part has no cell formats")
+        count = len(_XF.findall(text, holder.end(), text.index("</cellXfs>")))
+        tag = re.sub(r'count="\d+"', f'count="{count + pad_xf}"', holder.group(0))
+        text = (text[: holder.start()] + tag + first.group(0) * pad_xf
+                + text[holder.end():])
+    if max_dxf >= 0:
+        pads = "<dxf/>" * (max_dxf + 1)
+        holder = re.search(r"<dxfs\b[^>]*?(/?)>", text)
+        if holder is None or holder.group(1):
+            block = f'<dxfs count="{max_dxf + 1}">{pads}</dxfs>'
+            at = holder.start() if holder else text.index("</styleSheet>")
+            end = holder.end() if holder else at
+            text = text[:at] + block + text[end:]
+        else:
+            count = text.count("<dxf>", holder.end(), text.index("</dxfs>")) + text.count(
+                "<dxf/>", holder.end(), text.index("</dxfs>"))
+            tag = re.sub(r'count="\d+"', f'count="{count + max_dxf + 1}"', holder.group(0))
+            text = text[: holder.start()] + tag + pads + text[holder.end():]
+    return text.encode("utf-8")

@@ -36,7 +36,7 @@ from sheetfit.writer._graft_workbook import (
     next_number,
     next_rid,
 )
-from sheetfit.writer._styles import StyleMap, merge_styles
+from sheetfit.writer._styles import StyleMap, bare_styles, merge_styles, user_style_indices
 from sheetfit.writer.target import Destination, plain, replacing
 
 __all__ = ["OutputName", "graft"]
@@ -45,6 +45,8 @@ _CT_PART = "[Content_Types].xml"
 _APP_PART = "docProps/app.xml"
 _T_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"
 _R_WORKSHEET = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/worksheet"
+_R_STYLES = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/styles"
+_T_STYLES = "application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"
 _FIXED_TIME = (1980, 1, 1, 0, 0, 0)
 
 
@@ -224,16 +226,31 @@ def graft(
         smap = StyleMap()
         sty = next((r for r in wb_rels if r.type.endswith("/styles") and r.part), None)
         sty_data = read(sty.part if sty else None)
+        added_styles: str | None = None  # a styles part the book lacks, added by the graft
         if rb.sheets:
-            if sty is None or sty.part is None or sty_data is None or rb.styles is None:
-                raise PackageError("the package has no styles part", Context(file=file))
-            new_styles, smap = merge_styles(sty_data, rb.styles, file, lower[sty.part])
-            if new_styles is not sty_data:
-                edits[lower[sty.part]] = new_styles
+            if rb.styles is None:
+                raise ValueError("rendered book has no styles part")
+            if sty is not None and sty.part is not None and sty_data is not None:
+                new_styles, smap = merge_styles(sty_data, rb.styles, file, lower[sty.part])
+                if new_styles is not sty_data:
+                    edits[lower[sty.part]] = new_styles
+            else:
+                # The book has no styles part (or its relationship names a missing one):
+                # add the rendered one, keeping the indices the user's cells use plain.
+                added_styles = sty.part if sty is not None and sty.part else posixpath.join(
+                    posixpath.dirname(wb_part), "styles.xml")
+                if added_styles.lower() in existing:
+                    raise PackageError("the styles part is missing", Context(file=file),
+                                       hint="open and re-save the book in a spreadsheet application")
+                user_sheets = (read(s.part) or b"" for s in pkg.sheets if s.is_worksheet)
+                base_styles = bare_styles(rb.styles, *user_style_indices(user_sheets))
+                sty_data, smap = merge_styles(base_styles, rb.styles)
         new_entries = [
             (p, convert_sheet(r.xml, rb.strings, smap))
             for p, r in zip(parts, rb.sheets, strict=True)
         ]
+        if added_styles is not None and sty_data is not None:
+            new_entries.append((added_styles, sty_data))
 
         wb_data = read(wb_part)
         wb_rels_data = read(rels_part_of(wb_part))
@@ -243,17 +260,25 @@ def graft(
         start = next_rid([r.rid for r in wb_rels if r.rid not in drop_rids])
         rids = [f"rId{start + j}" for j in range(len(rb.sheets))]
         edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)
-        edits[lower[rels_part_of(wb_part).lower()]] = edit_rels(
+        new_rels = edit_rels(
             wb_rels_data,
             drop_rids,
             [relative_target(wb_part, p) for p in parts],
             rids,
             _R_WORKSHEET,
         )
-        edits[lower[_CT_PART.lower()]] = edit_content_types(ct_data, gone, parts, rb.sheet_type)[0]
+        new_ct, listed = edit_content_types(ct_data, gone, parts, rb.sheet_type)
+        if added_styles is not None:
+            if sty is None:
+                new_rels = edit_rels(new_rels, set(), [relative_target(wb_part, added_styles)],
+                                     [f"rId{start + len(rb.sheets)}"], _R_STYLES)
+            if added_styles.lower() not in listed:
+                new_ct = edit_content_types(new_ct, set(), [added_styles], _T_STYLES)[0]
+        edits[lower[rels_part_of(wb_part).lower()]] = new_rels
+        edits[lower[_CT_PART.lower()]] = new_ct
         app = read(_APP_PART)
         if app is not None:
-            sheet_names = [s.name for s in pkg.sheets if "chartsheets/" not in s.part.lower()]
+            sheet_names = [s.name for s in pkg.sheets if s.kind in ("worksheet", "")]
             new_app = update_app(app, sheet_names, [s.name for s in owned], titles)
             if new_app is not app:
                 edits[lower[_APP_PART.lower()]] = new_app
