@@ -491,3 +491,24 @@ def test_added_styles_part_keeps_user_cell_formats_plain(tmp_path: Path) -> None
     owned = open_package(out).owned_sheets()[0].part
     used = {int(i) for i in re.findall(r' s="(\d+)"', _text(out, owned))}
     assert used and min(used) >= 2 or used == {0}
+
+
+@pytest.mark.parametrize("build,what", [(_macro_book, "a macro sheet"),
+                                        (_empty_rid_book, "not a worksheet")],
+                         ids=["macro sheet", "empty relationship id"])
+def test_declaration_pointing_at_a_sheet_without_cells_is_refused(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], build: _Builder, what: str
+) -> None:
+    """A name pointing at a macro sheet or a sheet entry without a part: exit 2, one line."""
+    book = build(tmp_path)
+    ghost = "Macro1" if build is _macro_book else "Ghost"
+    wb = _text(book, _WB).replace(
+        "</definedNames>", f'<definedName name="sf_b_y">{ghost}!$A$1:$A$5</definedName>'
+        f'<definedName name="sf_b_x">{ghost}!$B$1:$B$5</definedName></definedNames>')
+    bad = _repack(book, tmp_path / "bad.xlsx", {_WB: wb.encode()})
+    before = bad.read_bytes()
+    status = main(["refresh", str(bad)])
+    err = capsys.readouterr().err
+    assert status == 2 and err.count("\n") == 1 and "Traceback" not in err, err
+    assert f"it points to '{ghost}', which is {what}, not a sheet of cells" in err
+    assert bad.read_bytes() == before

@@ -214,11 +214,19 @@ def _areas(d: DefinedName, pkg: Package, file: str) -> list[Area]:
     owned = {s.name.casefold() for s in pkg.owned_sheets()}
     for a in areas:
         try:
-            pkg.sheet(a.sheet)
+            entry = pkg.sheet(a.sheet)
         except KeyError:
             raise DeclarationError(
-                f"it points to sheet '{a.sheet}', which is not in this workbook", ctx
+                f"it points to sheet '{clip(a.sheet)}', which is not in this workbook", ctx
             ) from None
+        if not entry.is_worksheet:
+            what = {"chartsheet": "a chart sheet", "xlMacrosheet": "a macro sheet",
+                    "xlIntlMacrosheet": "a macro sheet", "dialogsheet": "a dialog sheet"}.get(
+                entry.kind, "not a worksheet")
+            raise DeclarationError(
+                f"it points to '{clip(a.sheet)}', which is {what}, not a sheet of cells",
+                Context(file, d.name, a.sheet), hint="point it at the cells of a worksheet",
+            )
         if a.sheet.casefold() in owned:
             raise DeclarationError(
                 f"it points to '{a.sheet}', a result sheet that sheetfit replaces on refresh",
