@@ -512,3 +512,31 @@ def test_declaration_pointing_at_a_sheet_without_cells_is_refused(
     assert status == 2 and err.count("\n") == 1 and "Traceback" not in err, err
     assert f"it points to '{ghost}', which is {what}, not a sheet of cells" in err
     assert bad.read_bytes() == before
+
+
+def test_shared_part_that_cannot_be_edited_is_refused(tmp_path: Path,
+                                                     capsys: pytest.CaptureFixture[str]) -> None:
+    """A content-types part naming an unknown encoding: exit 2, the part named, book unchanged
+    (found by the mutation fuzz in test_fuzz_packages.py)."""
+    base = _base(tmp_path)
+    ct = _text(base, _CT).replace('encoding="UTF-8"', 'encoding="UF-8"')
+    assert "UF-8" in ct
+    bad = _repack(base, tmp_path / "ct.xlsx", {_CT: ct.encode()})
+    before = bad.read_bytes()
+    status = main(["refresh", str(bad)])
+    err = capsys.readouterr().err
+    assert status == 2 and err.count("\n") == 1 and "Traceback" not in err, err
+    assert "part [Content_Types].xml is malformed" in err
+    assert bad.read_bytes() == before
+
+
+def test_malformed_app_properties_are_kept_and_the_book_refreshes(tmp_path: Path) -> None:
+    """docProps/app.xml only lists titles for file browsers: a broken one is kept byte for
+    byte rather than refusing the book (found by the mutation fuzz)."""
+    base = _base(tmp_path)
+    app = _text(base, "docProps/app.xml")
+    broken = app[: len(app) // 2].encode()  # cut in the middle: no closing tags
+    book = _repack(base, tmp_path / "app.xlsx", {"docProps/app.xml": broken})
+    out = tmp_path / "out.xlsx"
+    assert main(["refresh", str(book), "--out", str(out)]) == 0
+    assert entries(out)["docProps/app.xml"] == broken

@@ -174,6 +174,8 @@ def _string_sizes(chunks: Iterable[bytes]) -> array[int]:
             if m.start() < keep:
                 starts.append(offset + m.start())
         carry, offset = buf[keep:], offset + keep
+    if not starts:  # no <si> at all: nothing to size
+        return array("q")
     end = offset + len(carry)
     return array("q", [b - a for a, b in zip(starts, [*starts[1:], end], strict=True)])
 

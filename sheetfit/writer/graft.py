@@ -11,10 +11,11 @@ the refresh already opened; its zip is read for part bytes.
 
 from __future__ import annotations
 
+import contextlib
 import posixpath
 import re
 import zipfile
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -136,6 +137,20 @@ def _check_collisions(
             )
 
 
+@contextlib.contextmanager
+def _editing(part: str, file: str) -> Iterator[None]:
+    """Refuse a shared part the graft cannot edit safely (malformed, mis-encoded text)."""
+    try:
+        yield
+    except (ValueError, LookupError) as exc:  # UnicodeDecodeError, KeyError, IndexError too
+        reason = str(exc).splitlines()[0][:80] if str(exc) else type(exc).__name__
+        raise PackageError(
+            f"part {part} is malformed and cannot be edited safely ({reason})",
+            Context(file=file),
+            hint="open and re-save the book in a spreadsheet application",
+        ) from exc
+
+
 def graft(
     pkg: Package,
     rendered: str | Path,
@@ -198,7 +213,8 @@ def graft(
             data = read(calc.part)
             if data is None:  # calc.part is among the entries, so read() finds it
                 raise RuntimeError(f"calcChain part {calc.part} listed but not readable")
-            left = filter_calc_chain(data, {s.sheet_id for s in owned})
+            with _editing(calc.part, file):
+                left = filter_calc_chain(data, {s.sheet_id for s in owned})
             if left is None:
                 gone.add(calc.part)
                 calc_rels = rels_part_of(calc.part).lower()
@@ -219,7 +235,8 @@ def graft(
             dropped = drop_rids if src == wb_part.lower() else set()
             in_use.update(r.part for r in rels if r.part and r.rid not in dropped)
         base = posixpath.join(posixpath.dirname(wb_part), "worksheets")
-        _, listed = edit_content_types(ct_data, gone, [], rb.sheet_type)
+        with _editing(_CT_PART, file):
+            _, listed = edit_content_types(ct_data, gone, [], rb.sheet_type)
         first = next_number(in_use | listed, "sheet")
         parts = [posixpath.join(base, f"sheet{first + j}.xml") for j in range(len(rb.sheets))]
 
@@ -231,7 +248,8 @@ def graft(
             if rb.styles is None:
                 raise ValueError("rendered book has no styles part")
             if sty is not None and sty.part is not None and sty_data is not None:
-                new_styles, smap = merge_styles(sty_data, rb.styles, file, lower[sty.part])
+                with _editing(lower[sty.part], file):
+                    new_styles, smap = merge_styles(sty_data, rb.styles, file, lower[sty.part])
                 if new_styles is not sty_data:
                     edits[lower[sty.part]] = new_styles
             else:
@@ -259,27 +277,34 @@ def graft(
             raise PackageError(f"part {missing} is missing", Context(file=file))
         start = next_rid([r.rid for r in wb_rels if r.rid not in drop_rids])
         rids = [f"rId{start + j}" for j in range(len(rb.sheets))]
-        edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)
-        new_rels = edit_rels(
-            wb_rels_data,
-            drop_rids,
-            [relative_target(wb_part, p) for p in parts],
-            rids,
-            _R_WORKSHEET,
-        )
-        new_ct, listed = edit_content_types(ct_data, gone, parts, rb.sheet_type)
-        if added_styles is not None:
-            if sty is None:
+        with _editing(wb_part, file):
+            edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)
+        with _editing(rels_part_of(wb_part), file):
+            new_rels = edit_rels(
+                wb_rels_data,
+                drop_rids,
+                [relative_target(wb_part, p) for p in parts],
+                rids,
+                _R_WORKSHEET,
+            )
+            if added_styles is not None and sty is None:
                 new_rels = edit_rels(new_rels, set(), [relative_target(wb_part, added_styles)],
                                      [f"rId{start + len(rb.sheets)}"], _R_STYLES)
-            if added_styles.lower() not in listed:
+        with _editing(_CT_PART, file):
+            new_ct, listed = edit_content_types(ct_data, gone, parts, rb.sheet_type)
+            if added_styles is not None and added_styles.lower() not in listed:
                 new_ct = edit_content_types(new_ct, set(), [added_styles], _T_STYLES)[0]
         edits[lower[rels_part_of(wb_part).lower()]] = new_rels
         edits[lower[_CT_PART.lower()]] = new_ct
         app = read(_APP_PART)
         if app is not None:
             sheet_names = [s.name for s in pkg.sheets if s.kind in ("worksheet", "")]
-            new_app = update_app(app, sheet_names, [s.name for s in owned], titles)
+            try:
+                new_app = update_app(app, sheet_names, [s.name for s in owned], titles)
+            except (ValueError, LookupError):
+                # docProps/app.xml only lists titles for file browsers; a malformed one is
+                # left exactly as it is rather than refusing the whole book over it.
+                new_app = app
             if new_app is not app:
                 edits[lower[_APP_PART.lower()]] = new_app
         edits = {k: v for k, v in edits.items() if v != read(k)}
