@@ -14,6 +14,8 @@ from pathlib import Path
 import pytest
 from books import line_rows, make_book
 
+from sheetfit.reader.package import open_package
+
 #: Address space the child may use (RLIMIT_AS), and its wall-clock limit.
 MEMORY_CAP = 1536 * 1024 * 1024
 TIME_LIMIT = 120.0
@@ -81,3 +83,19 @@ def test_a_million_styled_blank_rows_after_the_data(line_book: Path, tmp_path: P
     book = _with_rows(line_book, tmp_path / "styled.xlsx", rows, b'<dimension ref="A1:C1048576"/>')
     report = _refresh_in_child(book, tmp_path / "styled_out.xlsx")
     assert report["status"] == 0 and report["seconds"] < 30
+
+
+def test_a_dimension_that_claims_the_whole_sheet(line_book: Path, tmp_path: Path) -> None:
+    """A <dimension> claiming A1:XFD1048576 over 13 rows of data (a writer's lie, or an
+    attack on readers that size their table from it): bounded, and the fit is the plain
+    book's."""
+    book = _with_rows(line_book, tmp_path / "claim.xlsx", b"", b'<dimension ref="A1:XFD1048576"/>')
+    assert b"XFD1048576" in zipfile.ZipFile(book).read("xl/worksheets/sheet1.xml")
+    report = _refresh_in_child(book, tmp_path / "claim_out.xlsx")
+    plain = _refresh_in_child(line_book, tmp_path / "plain_out.xlsx")
+    assert report["status"] == 0 and report["seconds"] < 30
+    coef = open_package(tmp_path / "plain_out.xlsx").sheet("sf m coef").part
+    with zipfile.ZipFile(tmp_path / "claim_out.xlsx") as a, \
+            zipfile.ZipFile(tmp_path / "plain_out.xlsx") as b:
+        assert a.read(coef) == b.read(coef)  # same coefficients, checks and figures
+    assert plain["status"] == 0
