@@ -11,12 +11,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = [
+    "BookBusyError",
     "CollinearError",
     "ConditioningCaution",
     "Context",
     "DataError",
     "DeclarationError",
     "ExtrapolationCaution",
+    "NoModelsError",
     "OutputError",
     "PackageError",
     "SettingError",
@@ -120,6 +122,15 @@ class OutputError(SheetfitError, OSError):
     """The refreshed workbook cannot be written where asked: a read-only or open workbook,
     a missing or read-only folder, a folder given as the file, another refresh of the same
     book under way, or the operating system refusing the write."""
+
+
+class NoModelsError(DeclarationError):
+    """The workbook declares no models (a batch run skips such books and counts them)."""
+
+
+class BookBusyError(OutputError):
+    """The workbook is held: open in a spreadsheet program, or being refreshed by another
+    sheetfit (a batch run skips such books and says why)."""
 
 
 class CollinearError(DataError):

@@ -17,7 +17,7 @@ from typing import Protocol
 import numpy as np
 
 from ..a1 import cell_ref, col_letter, quote_sheet
-from ..errors import Context, DataError, DeclarationError
+from ..errors import Context, DataError, DeclarationError, NoModelsError
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
 from ..reader.package import DefinedName, Package
 from ..reader.values import (
@@ -195,7 +195,7 @@ def find_models(pkg: Package, values: BookValues, file: str,
     """
     decls = _collect(pkg, file)
     if not decls:
-        raise DeclarationError(
+        raise NoModelsError(
             "no models are declared",
             Context(file),
             hint="define names sf_<model>_y and sf_<model>_x pointing at the response "

@@ -40,7 +40,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from sheetfit.errors import Context, OutputError, PackageError, SheetfitError
+from sheetfit.errors import BookBusyError, Context, OutputError, PackageError, SheetfitError
 from sheetfit.stopping import not_now
 
 __all__ = [
@@ -126,8 +126,10 @@ def stale_temps(path: Path) -> list[Path]:
     return sorted(found)
 
 
-def _refuse(message: str, path: Path | str, hint: str | None = None) -> OutputError:
-    return OutputError(message, Context(file=str(path)), hint=hint)
+def _refuse(message: str, path: Path | str, hint: str | None = None,
+            busy: bool = False) -> OutputError:
+    cls = BookBusyError if busy else OutputError
+    return cls(message, Context(file=str(path)), hint=hint)
 
 
 def _writable_folder(folder: Path) -> bool:
@@ -147,6 +149,7 @@ def _check_open_elsewhere(named: Path, real: Path, shown: str, hint: str) -> Non
                 f"{candidate.name} is there)",
                 shown,
                 hint=hint,
+                busy=True,
             )
 
 
@@ -260,7 +263,7 @@ def exclusive(dest: Destination, wait: float = DEFAULT_WAIT) -> Iterator[None]:
             if time.monotonic() >= deadline:
                 raise _refuse(
                     "another sheetfit is refreshing this book", dest.named,
-                    hint=f"let it finish, then refresh again (waited {wait:g} s)",
+                    hint=f"let it finish, then refresh again (waited {wait:g} s)", busy=True,
                 ) from None
             time.sleep(_POLL)
             continue
