@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 import time
 import traceback
 from collections.abc import Iterable
@@ -37,16 +38,18 @@ class Outcome:
 
 
 def refresh_one(book: str | Path, out: str | Path | None = None, *, force: bool = False,
-                backup: bool = False, wait: float | None = None) -> Outcome:
+                backup: bool = False, wait: float | None = None,
+                now: dt.datetime | None = None) -> Outcome:
     """Refresh ``book`` (to ``out`` if given) and say how it went; never raises.
 
-    Options are the command line's (``--force``, ``--backup``, ``--wait``).
+    Options are the command line's (``--force``, ``--backup``, ``--wait``); ``now`` fixes
+    the refresh time written on the index sheet (tests compare runs byte for byte).
     """
     from sheetfit.refresh import refresh  # imported here: a worker process pays it once
 
     start = time.perf_counter()
     name = str(book)
-    kwargs: dict[str, Any] = {"force": force, "backup": backup}
+    kwargs: dict[str, Any] = {"force": force, "backup": backup, "now": now}
     if wait is not None:
         kwargs["wait"] = wait
 
