@@ -1,4 +1,5 @@
-"""Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``.
+"""Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``
+and ``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``).
 
 Exit status 0 on success, 2 when the input or the target is refused (one line on stderr,
 the workbook untouched), 1 for an internal fault, 130 when stopped by SIGINT (Ctrl-C) and
@@ -38,6 +39,13 @@ def _seconds(text: str) -> float:
     return value
 
 
+def _settle(text: str) -> float:
+    value = _seconds(text)
+    if value < 0.05:
+        raise argparse.ArgumentTypeError(f"give at least 0.05 seconds, not {text}")
+    return value
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="sheetfit",
@@ -57,12 +65,26 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
                    help="how long to wait for another sheetfit refreshing the same book "
                         f"(default {DEFAULT_WAIT:g})")
+    w = sub.add_parser("watch", help="refresh declared books each time they are saved")
+    w.add_argument("path", help="a workbook, or a folder watched with its subfolders")
+    w.add_argument("--settle", metavar="SECONDS", type=_settle, default=1.0,
+                   help="how long a saved book must stay unchanged before it is refreshed "
+                        "(default 1)")
+    w.add_argument("--backup", action="store_true",
+                   help="keep the file being replaced beside it as NAME.before-refresh.xlsx")
+    w.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
+                   help="how long to wait for another sheetfit refreshing the same book "
+                        f"(default {DEFAULT_WAIT:g})")
     return p
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     args = _parser().parse_args(argv)
+    if args.command == "watch":  # until SIGINT or SIGTERM: 130 or 143, as below
+        from .watch import command
+
+        return command(args.path, settle=args.settle, backup=args.backup, wait=args.wait)
     try:
         with stop_signals():
             if args.command == "refresh":
