@@ -194,8 +194,8 @@ class Watcher:
         sig = _signature(book)
         if entry is None:
             self._pending[book] = _Pending(now, now + self.settle, sig)
-        else:
-            entry.due, entry.sig = now + self.settle, sig
+        else:  # still being written: wait afresh, and for a zip afresh
+            entry.due, entry.sig, entry.invalid = now + self.settle, sig, 0
         self.counts["events"] += 1
 
     def drain(self, timeout: float = 0.0) -> None:

@@ -296,6 +296,35 @@ def test_debounce_under_a_fake_clock(tmp_path: Path) -> None:
     assert [o.status for o in seen] == ["refreshed"]
 
 
+def test_a_slow_writer_pausing_between_chunks_is_not_refreshed_half_written(
+        tmp_path: Path) -> None:
+    """Each pause of a settle interval costs one of INVALID_TRIES looks; a new write
+    starts the count again, so a book written in many slow chunks is refreshed whole."""
+    book = tmp_path / "costs.xlsx"
+    data = built(book)
+    clock, calls = Clock(), []
+
+    def refresh(path: Path) -> Outcome:
+        calls.append(path.read_bytes())
+        return Outcome(str(path), "refreshed", 1, 0.01, "a: least squares")
+
+    w = Watcher(tmp_path, settle=1.0, refresh=refresh, clock=clock)
+    chunks = 8
+    size = -(-len(data) // chunks)
+    with open(book, "wb") as f:
+        for i in range(chunks):
+            f.write(data[i * size:(i + 1) * size])
+            f.flush()
+            w.notice("changed", book)
+            for _ in range(INVALID_TRIES):  # a pause of INVALID_TRIES settle intervals
+                clock.now += 1.0
+                w.step()
+    clock.now += 1.0
+    w.step()
+    assert calls == [data]
+    assert w.counts["not a zip yet"] == INVALID_TRIES * (chunks - 1)
+
+
 def test_a_book_that_never_settles_is_given_up_with_a_line(tmp_path: Path) -> None:
     book = tmp_path / "log.xlsx"
     book.write_bytes(b"x")
