@@ -65,7 +65,7 @@ class HoldBeforeRename(distributed.WorkerPlugin):
 @pytest.fixture(scope="module")
 def cluster() -> Iterator[distributed.LocalCluster]:
     with distributed.LocalCluster(processes=True, n_workers=2, threads_per_worker=1,
-                                  dashboard_address=None, death_timeout=30) as running, \
+                                  dashboard_address=":0", death_timeout=30) as running, \
             distributed.Client(running, timeout=60, set_as_default=False) as client:
         client.register_plugin(HoldBeforeRename())
         yield running
@@ -229,3 +229,24 @@ def test_unknown_options_are_refused_before_connecting() -> None:
     with pytest.raises(TypeError, match="unknown refresh options: out"):
         run_on_cluster([Path("a.xlsx")], "tcp://127.0.0.1:9", {"out": "b.xlsx"})
     assert run_on_cluster([], "tcp://127.0.0.1:9", {}) == []
+
+
+def test_killed_worker_reported_by_the_scheduler_counts_as_a_loss(tmp_path: Path) -> None:
+    """A scheduler that allows no failures reports the loss as KilledWorker on the task:
+    the run retries once and faults the second loss all the same."""
+    import dask
+
+    with dask.config.set({"distributed.scheduler.allowed-failures": 0}), \
+            distributed.LocalCluster(processes=True, n_workers=2, threads_per_worker=1,
+                                     dashboard_address=":0", death_timeout=30) as cluster, \
+            distributed.Client(cluster, timeout=60, set_as_default=False) as client:
+        client.register_plugin(HoldBeforeRename())
+        hold, before, outcomes, run = _hold_run(tmp_path, client)
+        killed: list[int] = []
+        _kill_holder(hold.parent, hold, before, killed)
+        _kill_holder(hold.parent, hold, before, killed)
+        run.join(timeout=120)
+        assert not run.is_alive()
+    by_name = {Path(o.book).name: o for o in outcomes}
+    assert by_name["hold.xlsx"].status == "fault" and "lost twice" in by_name["hold.xlsx"].message
+    assert by_name["plain.xlsx"].status == "refreshed" and hold.read_bytes() == before

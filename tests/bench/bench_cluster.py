@@ -67,7 +67,7 @@ def _on_cluster(folder: Path, workers: int) -> tuple[float, float]:
 
     start = time.perf_counter()
     with LocalCluster(processes=True, n_workers=workers, threads_per_worker=1,
-                      dashboard_address=None) as cluster, \
+                      dashboard_address=":0") as cluster, \
             Client(cluster, timeout=60, set_as_default=False) as client:
         client.wait_for_workers(workers, timeout=120)
         up = time.perf_counter() - start
