@@ -65,6 +65,9 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
                    help="how long to wait for another sheetfit refreshing the same book "
                         f"(default {DEFAULT_WAIT:g})")
+    r.add_argument("--scheduler", metavar="ADDRESS",
+                   help="refresh on the Dask cluster at ADDRESS (tcp://HOST:8786); BOOK may "
+                        "be a folder or a glob, seen at the same path by every worker")
     w = sub.add_parser("watch", help="refresh declared books each time they are saved")
     w.add_argument("path", help="a workbook, or a folder watched with its subfolders")
     w.add_argument("--settle", metavar="SECONDS", type=_settle, default=1.0,
@@ -87,6 +90,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         return command(args.path, settle=args.settle, backup=args.backup, wait=args.wait)
     try:
         with stop_signals():
+            if args.command == "refresh" and args.scheduler:  # a batch on a Dask cluster
+                from .batch.cluster import main_on_cluster
+                return main_on_cluster(args)
             if args.command == "refresh":
                 from .refresh import refresh
 
