@@ -108,7 +108,7 @@ def _batch(args: argparse.Namespace) -> int:
     from .batch.discover import discover
     from .batch.outcome import worst_exit
     from .batch.progress import progress
-    from .batch.table import counts, report_kind, table, write_report
+    from .batch.table import common_root, counts, report_kind, table, write_report
 
     if args.out is not None:
         return _refused(f"--out writes one workbook; {args.book} names several books, "
@@ -134,7 +134,8 @@ def _batch(args: argparse.Namespace) -> int:
               f"{len(books)} books; each book is as it was or completely refreshed",
               file=sys.stderr)
         return _stopped_status(signum)
-    print(table(outcomes, shutil.get_terminal_size((100, 24)).columns))
+    root = Path(args.book) if Path(args.book).is_dir() else common_root(books)
+    print(table(outcomes, shutil.get_terminal_size((100, 24)).columns, root))
     print(counts(outcomes))
     status = worst_exit(outcomes)
     if args.report is not None:

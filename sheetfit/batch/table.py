@@ -1,7 +1,8 @@
 """The end of a batch, whichever runner ran it: the table, the count per status, the report.
 
 The table has one row per book (book, models, status, seconds, message), messages clipped
-so each row fits the terminal's width; the count line gives every status. ``--report``
+so each row fits the terminal's width, books shown by their path below the folder (for a
+pattern: below the deepest folder holding them all); the count line gives every status. ``--report``
 writes the same rows, unclipped, as CSV or JSON (chosen by the file's suffix).
 """
 
@@ -18,29 +19,57 @@ from pathlib import Path
 from sheetfit.batch.outcome import STATUSES, Outcome
 from sheetfit.words import clip
 
-__all__ = ["COLUMNS", "REPORT_KINDS", "counts", "report_kind", "table", "write_report"]
+__all__ = ["COLUMNS", "REPORT_KINDS", "common_root", "counts", "report_kind", "table", "write_report"]
 
 COLUMNS = ("book", "models", "status", "seconds", "message")
 REPORT_KINDS = (".csv", ".json")
 _MIN_MESSAGE = 20
 
 
-def _cells(o: Outcome) -> list[str]:
-    return [o.book, str(o.models), o.status, f"{o.seconds:.2f}", " ".join(o.message.split())]
+def _shown(book: str, root: Path | None) -> str:
+    if root is None:
+        return book
+    try:
+        return Path(book).relative_to(root).as_posix()
+    except ValueError:
+        return book
 
 
-def table(outcomes: Sequence[Outcome], width: int = 100) -> str:
+def common_root(books: Sequence[Path]) -> Path | None:
+    """The deepest folder holding every book (the table shows paths below it)."""
+    try:
+        return Path(os.path.commonpath([Path(b).parent for b in books])) if books else None
+    except ValueError:  # absolute and relative paths mixed
+        return None
+
+
+def _message(o: Outcome) -> str:
+    """The message on one line, without the book's path it may start with (the row has it)."""
+    text = " ".join(o.message.split())
+    for sep in (": ", ", "):
+        if text.startswith(o.book + sep):
+            return text[len(o.book) + len(sep):]
+    return text
+
+
+def _cells(o: Outcome, root: Path | None) -> list[str]:
+    return [_shown(o.book, root), str(o.models), o.status, f"{o.seconds:.2f}", _message(o)]
+
+
+def table(outcomes: Sequence[Outcome], width: int = 100, root: Path | None = None) -> str:
     """The outcomes as a text table at most ``width`` characters wide (the message is
-    clipped to fit; a very long book path is clipped from its start)."""
-    rows = [list(COLUMNS)] + [_cells(o) for o in outcomes]
+    clipped to fit; a very long book path is clipped from its start). With ``root``, books
+    are shown by their path below it."""
+    rows = [list(COLUMNS)] + [_cells(o, root) for o in outcomes]
     widths = [max(len(r[c]) for r in rows) for c in range(4)]
-    book_cap = max(len("book"), width // 2)
+    fixed = sum(widths[1:]) + 2 * 4  # the narrow columns and the gaps
+    book_cap = max(10, min(width // 2, width - fixed - _MIN_MESSAGE))
     if widths[0] > book_cap:
         widths[0] = book_cap
         for r in rows[1:]:
             if len(r[0]) > book_cap:
                 r[0] = "…" + r[0][len(r[0]) - book_cap + 1:]
-    room = max(_MIN_MESSAGE, width - sum(widths) - 2 * 4)
+    room = max(_MIN_MESSAGE, width - widths[0] - fixed)
     lines = []
     for r in rows:
         book, models, status, seconds = r[0].ljust(widths[0]), r[1].rjust(widths[1]), \
