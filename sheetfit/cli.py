@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
+from .batch.discover import is_batch
 from .batch.outcome import Outcome
 from .errors import SheetfitError
 from .stopping import Stopped, stop_signals
@@ -151,8 +152,6 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     args = _parser().parse_args(argv)
     if args.command == "refresh":
-        from .batch.discover import is_batch
-
         if is_batch(args.book):
             with stop_signals():
                 return _batch(args)
