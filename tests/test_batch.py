@@ -240,3 +240,41 @@ def test_jobs_must_be_a_positive_whole_number(bad: str, tmp_path: Path, capsys) 
     with pytest.raises(SystemExit) as stop:
         main(["refresh", str(tmp_path), "--jobs", bad])
     assert stop.value.code == 2 and "--jobs" in capsys.readouterr().err
+
+
+def test_sigterm_stops_the_run_cleanly(tmp_path: Path) -> None:
+    """SIGTERM mid-run: exit 143 with one line; no book started after it; every book is
+    its original or a complete refreshed book; no temporary or lock file left."""
+    import os
+    import signal
+    import subprocess
+    import time
+
+    from sheetfit.reader.package import open_package
+
+    root = tmp_path / "m"
+    root.mkdir()
+    for i in range(40):
+        make_book(root / f"b{i:02}.xlsx", {"Jobs": jobs(30, seed=i)}, JOBS)
+    before = snapshot(root)
+    run = subprocess.Popen([sys.executable, "-m", "sheetfit", "refresh", str(root), "--jobs",
+                            "2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 120
+    while snapshot_changed(root, before) == 0 and time.monotonic() < deadline:
+        time.sleep(0.05)
+    run.send_signal(signal.SIGTERM)
+    out, err = run.communicate(timeout=120)
+    assert run.returncode == 143, (out, err)
+    assert err.strip().count("\n") == 0
+    assert err.startswith("sheetfit: stopped by SIGTERM after ") and " of 40 books" in err
+    after = snapshot(root)
+    assert set(after) == set(before)
+    changed = [n for n in before if after[n] != before[n]]
+    assert 0 < len(changed) < 40
+    for name in changed:  # a refreshed book is complete: it opens and carries the index
+        assert "sf index" in [s.name for s in open_package(root / name).sheets]
+    assert not [n for n in os.listdir(root) if n.startswith(".")]
+
+
+def snapshot_changed(root: Path, before: dict[str, bytes]) -> int:
+    return sum(1 for n, b in before.items() if (root / n).read_bytes() != b)
