@@ -1,6 +1,10 @@
 """Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``
 and ``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``).
 
+``BOOK`` may also be a folder or a pattern (``--jobs N``, ``--report PATH``): every book
+found is refreshed by a runner (``_runner``), then one table and a count per status are
+printed, whichever runner ran; the exit status is the worst book's.
+
 Exit status 0 on success, 2 when the input or the target is refused (one line on stderr,
 the workbook untouched), 1 for an internal fault, 130 when stopped by SIGINT (Ctrl-C) and
 143 when stopped by SIGTERM (128 + the signal number; the workbook untouched, no
@@ -10,16 +14,26 @@ temporary file left).
 from __future__ import annotations
 
 import argparse
+import shutil
 import signal
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
 
 from . import __version__
+from .batch.discover import is_batch
+from .batch.outcome import Outcome
 from .errors import SheetfitError
 from .stopping import Stopped, stop_signals
 from .writer.target import DEFAULT_WAIT
 
 __all__ = ["main"]
+
+#: A batch runner: books, options for ``refresh_one``, a callback per outcome -> outcomes
+#: in the order of the books.
+Runner = Callable[[Sequence[Path], dict[str, Any], Callable[[Outcome], None] | None],
+                  list[Outcome]]
 
 EXIT_OK, EXIT_FAULT, EXIT_REFUSED = 0, 1, 2
 
@@ -46,6 +60,16 @@ def _settle(text: str) -> float:
     return value
 
 
+def _jobs(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"give 1 or more, not {text}")
+    return value
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="sheetfit",
@@ -54,7 +78,8 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"sheetfit {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
     r = sub.add_parser("refresh", help="fit every declared model and rewrite its result sheets")
-    r.add_argument("book", help="the .xlsx workbook")
+    r.add_argument("book", help="the .xlsx workbook; or a folder (every **/*.xlsx under it) "
+                                "or a pattern such as 'month-end/*/costs*.xlsx'")
     r.add_argument("--out", metavar="PATH",
                    help="write the refreshed workbook here and leave BOOK untouched")
     r.add_argument("--force", action="store_true",
@@ -65,6 +90,12 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
                    help="how long to wait for another sheetfit refreshing the same book "
                         f"(default {DEFAULT_WAIT:g})")
+    r.add_argument("--jobs", metavar="N", type=_jobs, default=None,
+                   help="with a folder or pattern: refresh N books at a time in worker "
+                        "processes (default: the number of CPUs; 1 runs them in this process)")
+    r.add_argument("--report", metavar="PATH",
+                   help="with a folder or pattern: also write the table to PATH "
+                        "(.csv or .json)")
     r.add_argument("--scheduler", metavar="ADDRESS",
                    help="refresh on the Dask cluster at ADDRESS (tcp://HOST:8786); BOOK may "
                         "be a folder or a glob, seen at the same path by every worker")
@@ -81,6 +112,68 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+def _refused(text: str) -> int:
+    print(f"sheetfit: refused: {text}", file=sys.stderr)
+    return EXIT_REFUSED
+
+
+def _runner(args: argparse.Namespace) -> Runner:
+    """The one call that refreshes the books of a batch; everything around it is shared."""
+    if args.scheduler:
+        from .batch.cluster import run_on_cluster
+
+        return lambda books, options, on_done: run_on_cluster(books, args.scheduler, options,
+                                                              on_done)
+    from .batch.local import default_jobs, run_local
+
+    jobs = args.jobs or default_jobs()
+    return lambda books, options, on_done: run_local(books, jobs, options, on_done)
+
+
+def _batch(args: argparse.Namespace) -> int:
+    """Refresh every book of a folder or pattern; print the table; the worst book's status."""
+    from .batch.discover import discover
+    from .batch.outcome import worst_exit
+    from .batch.progress import progress
+    from .batch.table import common_root, counts, report_kind, table, write_report
+
+    if args.out is not None:
+        return _refused(f"--out writes one workbook; {args.book} names several books, "
+                        "which are refreshed in place (drop --out)")
+    if args.report is not None and report_kind(args.report) is None:
+        return _refused(f"--report {args.report}: give a path ending in .csv or .json")
+    books = [Path(args.book)] if Path(args.book).is_file() else discover(args.book)
+    if not books:
+        return _refused(f"{args.book}: no workbooks found (a folder is searched for "
+                        "**/*.xlsx; side files, backups and hidden files are left out)")
+    options = {"force": args.force, "backup": args.backup, "wait": args.wait}
+    done: list[Outcome] = []
+    try:
+        with progress(len(books)) as advance:
+            def on_done(outcome: Outcome) -> None:
+                done.append(outcome)
+                advance(outcome)
+
+            outcomes = _runner(args)(books, options, on_done)
+    except (Stopped, KeyboardInterrupt) as exc:
+        signum = exc.signum if isinstance(exc, Stopped) else signal.SIGINT
+        print(f"sheetfit: stopped by {signal.Signals(signum).name} after {len(done)} of "
+              f"{len(books)} books; each book is as it was or completely refreshed",
+              file=sys.stderr)
+        return _stopped_status(signum)
+    root = Path(args.book) if Path(args.book).is_dir() else common_root(books)
+    print(table(outcomes, shutil.get_terminal_size((100, 24)).columns, root))
+    print(counts(outcomes))
+    status = worst_exit(outcomes)
+    if args.report is not None:
+        try:
+            write_report(args.report, outcomes)
+        except OSError as exc:
+            _refused(f"--report {args.report}: cannot write it ({exc.strerror or exc})")
+            status = status or EXIT_REFUSED
+    return status
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     args = _parser().parse_args(argv)
@@ -90,9 +183,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return command(args.path, settle=args.settle, backup=args.backup, wait=args.wait)
     try:
         with stop_signals():
-            if args.command == "refresh" and args.scheduler:  # a batch on a Dask cluster
-                from .batch.cluster import main_on_cluster
-                return main_on_cluster(args)
+            if args.command == "refresh" and (is_batch(args.book) or args.scheduler):
+                return _batch(args)  # a folder or pattern, here or on a Dask cluster
+            if args.command == "refresh" and args.report is not None:
+                return _refused("--report is for a folder or pattern of books; "
+                                f"{args.book} is one book")
             if args.command == "refresh":
                 from .refresh import refresh
 

@@ -206,7 +206,7 @@ def test_cli_runs_a_folder_on_the_cluster(tmp_path: Path, cluster: distributed.L
     assert main(["refresh", str(folder), "--scheduler", cluster.scheduler_address]) == 0
     out = capsys.readouterr().out
     assert "refreshed" in out and "no models declared" in out
-    assert out.strip().endswith("1 refreshed, 1 skipped, 0 refused, 0 fault of 2 books")
+    assert out.strip().endswith("2 books: 1 refreshed, 1 skipped, 0 refused, 0 fault")
     make_book(folder / "c.xlsx", {"Data": line_rows(8)},
               {"sf_a_y": "Data!$A$1:$A$9", "sf_a_x": "Data!$B$1:$B$5"})
     assert main(["refresh", str(folder), "--scheduler", cluster.scheduler_address]) == 2

@@ -26,10 +26,7 @@ ends either way.
 
 from __future__ import annotations
 
-import argparse
-import glob
 import queue
-import sys
 import time
 import uuid
 from collections import deque
@@ -38,10 +35,10 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
-from sheetfit.batch.outcome import Outcome, refresh_one, worst_exit
+from sheetfit.batch.outcome import Outcome, refresh_one
 from sheetfit.errors import SheetfitError
 
-__all__ = ["ClusterError", "main_on_cluster", "run_on_cluster"]
+__all__ = ["ClusterError", "run_on_cluster"]
 
 #: Seconds to reach the scheduler.
 CONNECT_TIMEOUT = 30.0
@@ -297,46 +294,3 @@ class _Run:
             if self.out[book.index] is None:
                 self._fault(book, f"{why}; not refreshed on the cluster (the book is as it "
                                   "was, or completely refreshed if its worker had finished)")
-
-
-# --- the command line's distributed run ------------------------------------------------
-
-
-def _books_in(target: str) -> list[Path]:
-    """BOOK, every .xlsx in FOLDER, or the .xlsx matching GLOB, sorted."""
-    path = Path(target)
-    if path.is_dir():
-        found = [p for p in path.iterdir() if p.suffix.lower() == ".xlsx"]
-    elif path.exists():
-        found = [path]
-    else:
-        found = [Path(p) for p in glob.glob(target, recursive=True)
-                 if p.lower().endswith(".xlsx")]
-    return sorted(p for p in found if not p.name.startswith((".", "~$")))
-
-
-def main_on_cluster(args: argparse.Namespace) -> int:
-    """``sheetfit refresh BOOK|FOLDER|GLOB --scheduler ADDRESS``: a line per book; exit status.
-
-    ``args`` is the command line's (book, scheduler, out, force, backup, wait). Raises
-    :class:`ClusterError` (a refusal) when the scheduler cannot be reached.
-    """
-    if args.out is not None:
-        print("sheetfit: refused: --out writes one book; a run on a cluster refreshes the "
-              "books in place (leave out --out)", file=sys.stderr)
-        return 2
-    books = _books_in(args.book)
-    if not books:
-        print(f"sheetfit: refused: no .xlsx workbook at {args.book}", file=sys.stderr)
-        return 2
-    options = {"force": args.force, "backup": args.backup, "wait": args.wait}
-
-    def show(o: Outcome) -> None:
-        print(f"{o.status:<9} {o.book}  ({o.models} models, {o.seconds:.1f} s) {o.message}",
-              flush=True)
-
-    outcomes = run_on_cluster(books, args.scheduler, options, on_done=show)
-    counts = {s: sum(o.status == s for o in outcomes)
-              for s in ("refreshed", "skipped", "refused", "fault")}
-    print(", ".join(f"{n} {s}" for s, n in counts.items()) + f" of {len(outcomes)} books")
-    return worst_exit(outcomes)
