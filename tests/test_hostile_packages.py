@@ -85,7 +85,10 @@ _CHILD = """
 import resource, sys
 from sheetfit.cli import main
 status = main(sys.argv[1:])
-print("peak-rss-kib", resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+# VmHWM is this program's own peak (reset by exec); ru_maxrss would also count the
+# pytest process it was forked from.
+hwm = [int(l.split()[1]) for l in open("/proc/self/status") if l.startswith("VmHWM:")]
+print("peak-rss-kib", hwm[0] if hwm else resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 sys.exit(status)
 """
 

@@ -22,11 +22,14 @@ TIME_LIMIT = 120.0
 
 _CHILD = """
 import json, resource, sys, time
+def peak_kib():  # VmHWM: this program's own peak (ru_maxrss also counts the forking parent)
+    hwm = [int(l.split()[1]) for l in open("/proc/self/status") if l.startswith("VmHWM:")]
+    return hwm[0] if hwm else resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 t = time.perf_counter()
 from sheetfit.cli import main
 status = main(["refresh", sys.argv[1], "--out", sys.argv[2]])
 print(json.dumps({"status": status, "seconds": time.perf_counter() - t,
-                  "peak_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
+                  "peak_mib": peak_kib() / 1024}))
 """
 
 
