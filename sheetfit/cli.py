@@ -77,7 +77,16 @@ def _parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--version", action="version", version=f"sheetfit {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
-    r = sub.add_parser("refresh", help="fit every declared model and rewrite its result sheets")
+    # options every command that writes a book shares
+    writing = argparse.ArgumentParser(add_help=False)
+    writing.add_argument("--backup", action="store_true",
+                         help="keep the file being replaced beside it as "
+                              "NAME.before-refresh.xlsx")
+    writing.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
+                         help="how long to wait for another sheetfit refreshing the same book "
+                              f"(default {DEFAULT_WAIT:g})")
+    r = sub.add_parser("refresh", parents=[writing],
+                       help="fit every declared model and rewrite its result sheets")
     r.add_argument("book", help="the .xlsx workbook; or a folder (every **/*.xlsx under it) "
                                 "or a pattern such as 'month-end/*/costs*.xlsx'")
     r.add_argument("--out", metavar="PATH",
@@ -85,11 +94,6 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--force", action="store_true",
                    help="replace the file even when it is read-only or open in a "
                         "spreadsheet program")
-    r.add_argument("--backup", action="store_true",
-                   help="keep the file being replaced beside it as NAME.before-refresh.xlsx")
-    r.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
-                   help="how long to wait for another sheetfit refreshing the same book "
-                        f"(default {DEFAULT_WAIT:g})")
     r.add_argument("--jobs", metavar="N", type=_jobs, default=None,
                    help="with a folder or pattern: refresh N books at a time in worker "
                         "processes (default: the number of CPUs; 1 runs them in this process)")
@@ -99,16 +103,12 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--scheduler", metavar="ADDRESS",
                    help="refresh on the Dask cluster at ADDRESS (tcp://HOST:8786); BOOK may "
                         "be a folder or a glob, seen at the same path by every worker")
-    w = sub.add_parser("watch", help="refresh declared books each time they are saved")
+    w = sub.add_parser("watch", parents=[writing],
+                       help="refresh declared books each time they are saved")
     w.add_argument("path", help="a workbook, or a folder watched with its subfolders")
     w.add_argument("--settle", metavar="SECONDS", type=_settle, default=1.0,
                    help="how long a saved book must stay unchanged before it is refreshed "
                         "(default 1)")
-    w.add_argument("--backup", action="store_true",
-                   help="keep the file being replaced beside it as NAME.before-refresh.xlsx")
-    w.add_argument("--wait", metavar="SECONDS", type=_seconds, default=DEFAULT_WAIT,
-                   help="how long to wait for another sheetfit refreshing the same book "
-                        f"(default {DEFAULT_WAIT:g})")
     return p
 
 
