@@ -2,7 +2,8 @@
 and ``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``).
 
 ``BOOK`` may also be a folder or a pattern (``--jobs N``, ``--report PATH``): every book
-found is refreshed by a runner (``_runner``), then one table and a count per status are
+found is refreshed by a runner (``_runner``: worker processes here, or a Dask cluster with
+``--scheduler``), then one table and a count per status are
 printed, whichever runner ran; the exit status is the worst book's.
 
 Exit status 0 on success, 2 when the input or the target is refused (one line on stderr,
