@@ -204,6 +204,15 @@ class StripMeanResult:
         take_left = (c[right] != x) & (x - c[left] <= c[right] - x)
         return np.where(take_left, left, right).astype(np.int64)
 
+    def means_at(self, centres: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Row count and mean of y in the strip around each given centre (nan if empty).
+
+        The same strips as the grid's: at the grid centres these are ``count_`` and ``mean_``.
+        """
+        c = checks.new_rows(centres, ["centre"])[:, 0]
+        count, total = _strips(self.x_, self.y_, c, self.allowance_)
+        return readonly(count), readonly(divide(total, count))
+
     def predict(self, x_new: np.ndarray) -> np.ndarray:
         """Strip mean at each new x's lookup centre (all training rows count); never refits."""
         x = checks.new_rows(x_new, ["x"])
