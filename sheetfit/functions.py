@@ -19,7 +19,7 @@ one-line refusal (``SheetfitError`` text), with the code a spreadsheet uses:
 
 * ``#VALUE!`` wrong kinds or shapes: not a 2-D list, rows of different lengths, a cell
   that is no number, text or blank, y with more than one column, y and x of different
-  lengths, an attribute column without a number, new rows with the wrong number of
+  lengths, an attribute column with text but no number, new rows with the wrong number of
   columns, an unknown method, a setting of the wrong kind (k not whole or below 1,
   degree outside 1-10, width not positive, a yes/no that is neither), repeated
   attribute names, a vote whose y mixes numbers and text; anything unexpected (an
@@ -179,12 +179,12 @@ def _data(y: Any, x: Any, labels: bool = False) -> _Data:
     if len(yg) != len(xg):
         raise _Refusal(VALUE, f"y has {len(yg)} data rows but x has {len(xg)}; they must "
                               "cover the same rows")
+    if not xg:
+        raise _Refusal(NA, "the ranges hold no data rows (only a header)")
     n, m = len(xg), len(xg[0])
     names = _names(head, m)
-    if n == 0:
-        raise _Refusal(NA, "the ranges hold no data rows (only a header)")
-    for j in range(m):
-        if not any(_is_number(r[j]) for r in xg):
+    for j in range(m):  # text but no number: a wrong kind; only blanks: rows missing
+        if not any(_is_number(r[j]) for r in xg) and any(r[j] is not None for r in xg):
             raise _Refusal(VALUE, f"attribute '{clip(names[j])}' holds no numbers; distances "
                                   "and fits need numeric attributes")
     used: list[int] = []
@@ -491,6 +491,8 @@ def fit_rmse(y: Any, x: Any, method: Any = "least_squares", intercept: Any = Tru
     a blank or text are left out.
     """
     word = _method(method)
+    if word == "neighbour_vote":
+        raise _Refusal(VALUE, "a neighbour vote has no RMSE; loo_error gives its error rate")
     d = _data(y, x)
     if word == "least_squares":
         ls = _least_squares(d, intercept, degree)
@@ -501,11 +503,9 @@ def fit_rmse(y: Any, x: Any, method: Any = "least_squares", intercept: Any = Tru
             nm = NeighbourMean(k=kk, standard_units=_flag("standard_units", standard_units)) \
                 .fit(d.X, d.Y, names=d.names)
         return [["RMSE", "kind", "rows"], [_cell(nm.rmse_), "leave-one-out", nm.n_]]
-    if word == "strip_mean":
-        with _core(d, need=2):
-            sm = StripMean(width=_whole(width)).fit(d.X, d.Y)
-        return [["RMSE", "kind", "rows"], [_cell(sm.rmse_), "leave-one-out", sm.n_fitted_]]
-    raise _Refusal(VALUE, "a neighbour vote has no RMSE; loo_error gives its error rate")
+    with _core(d, need=2):
+        sm = StripMean(width=_whole(width)).fit(d.X, d.Y)
+    return [["RMSE", "kind", "rows"], [_cell(sm.rmse_), "leave-one-out", sm.n_fitted_]]
 
 
 @_host
