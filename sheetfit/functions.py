@@ -50,6 +50,7 @@ from typing import Any
 import numpy as np
 
 from .errors import CollinearError, DataError, SettingError, SheetfitCaution, SheetfitError
+from .fit import checks
 from .fit.leastsq import LeastSquares, LeastSquaresResult
 from .fit.neighbours import NeighbourMean, NeighbourVote, NeighbourVoteResult
 from .fit.scaling import standard_units
@@ -201,7 +202,8 @@ def _data(y: Any, x: Any, labels: bool = False) -> _Data:
         else:
             left.append(f"data row {i + 1}: {_describe(bad[1])} in {bad[0]}")
     if not used:
-        raise _Refusal(NA, f"no rows with numbers in both y and x ({n} rows, all left out)")
+        raise _Refusal(NA, f"no rows with numbers in both y and x ({n} rows, all left out; "
+                           f"{left[0]})")
     X = np.array([[float(v) for v in xg[i]] for i in used], dtype=np.float64).reshape(-1, m)
     ys = [yg[i][0] for i in used]
     if labels:
@@ -404,7 +406,7 @@ def neighbour_mean(y: Any, x: Any, new_x: Any = None, k: Any = None,
     Data rows with a blank or text are left out.
     """
     d = _data(y, x)
-    kk, show = _k(k), _flag("neighbours", neighbours) is True
+    kk, show = _k(k), checks.check_flag("neighbours", _flag("neighbours", neighbours))
     with _core(d, need=2, k=kk):
         res = NeighbourMean(k=kk, standard_units=_flag("standard_units", standard_units)) \
             .fit(d.X, d.Y, names=d.names)
@@ -438,7 +440,7 @@ def neighbour_vote(y: Any, x: Any, new_x: Any = None, k: Any = None,
     classes go to the class of the nearest neighbour, as in a refresh.
     """
     d = _data(y, x, labels=True)
-    kk, show = _k(k), _flag("neighbours", neighbours) is True
+    kk, show = _k(k), checks.check_flag("neighbours", _flag("neighbours", neighbours))
     with _core(d, need=2, k=kk):
         res: NeighbourVoteResult = NeighbourVote(
             k=kk, standard_units=_flag("standard_units", standard_units)

@@ -273,7 +273,8 @@ def code(out: Grid) -> str:
 
 def test_blanks_only_are_missing() -> None:
     blanks = [[None], [None], [None]]
-    assert code(fit_coefficients(blanks, blanks)) == NA
+    out = fit_coefficients(blanks, blanks)
+    assert code(out) == NA and "data row 1: blank in y" in out[0][1]
     assert code(neighbour_mean([[1.0], [2.0], [3.0]], blanks)) == NA
     assert code(fit_coefficients(None, X3)) == NA
 
@@ -301,6 +302,7 @@ def test_wrong_kinds_and_shapes() -> None:
     assert code(strip_means(Y3, X3, width=1)) == VALUE  # two attributes
     assert code(neighbour_mean(Y3, X3, k=2.5)) == VALUE
     assert code(neighbour_mean(Y3, X3, k=0)) == VALUE
+    assert code(neighbour_mean(Y3, X3, neighbours="some")) == VALUE
     assert code(fit_rmse(Y3, X3, method="guess")) == VALUE
     assert code(fit_rmse([["c"], ["a"], ["b"], ["a"], ["b"], ["a"]], X3, "neighbour_vote")) \
         == VALUE
@@ -324,6 +326,7 @@ def test_numerical_problems() -> None:
     constant = [["u", "v"]] + [[r[0], 3.0] for r in X3[1:]]
     assert code(fit_coefficients(Y3, constant)) == NUM
     assert code(neighbour_mean(Y3, constant)) == NUM  # no standard units
+    assert code(standard_units_of(constant)) == NUM
     assert code(neighbour_mean(Y3, X3, k=5)) == NUM  # k not below the 5 rows
     assert code(neighbour_vote([["c"], ["a"], ["b"], ["a"], ["b"], ["a"]], X3, k=9)) == NUM
 
