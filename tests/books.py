@@ -4,6 +4,8 @@ demo data, and what a graft changed, read from the packages themselves."""
 from __future__ import annotations
 
 import datetime as dt
+import multiprocessing
+import os
 import zipfile
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -11,6 +13,7 @@ from typing import Any
 
 import xlsxwriter
 
+from sheetfit.batch.outcome import Outcome, refresh_one
 from sheetfit.reader.package import open_package
 
 Row = Sequence[Any]
@@ -159,3 +162,16 @@ def sheet_changes(src: Path, out: Path) -> tuple[list[str], list[str]]:
 
     old, new = sheets(src), sheets(out)
     return [s[0] for s in old if s not in new], [s[0] for s in new if s not in old]
+
+
+# --- a refresh that ends its own worker process (the batch tests' dying worker) -----------
+# Importable by the batch's worker processes: on the book named DIES it calls os._exit, but
+# only in a child process, so the same run in one process refreshes that book as usual.
+
+DIES = "dies.xlsx"
+
+
+def die_in_child(book: str | Path, **options: Any) -> Outcome:
+    if Path(book).name == DIES and multiprocessing.parent_process() is not None:
+        os._exit(70)
+    return refresh_one(book, **options)
