@@ -110,7 +110,20 @@ def _parser() -> argparse.ArgumentParser:
     w.add_argument("--settle", metavar="SECONDS", type=_settle, default=1.0,
                    help="how long a saved book must stay unchanged before it is refreshed "
                         "(default 1)")
+    c = sub.add_parser("check", help="say whether each model's results still fit the book's "
+                                     "current inputs (never writes; exit 3 when any does not)")
+    c.add_argument("book", help="the .xlsx workbook")
+    c.add_argument("--json", action="store_true", help="print the findings as JSON")
     return p
+
+
+def _check(args: argparse.Namespace) -> int:
+    """``sheetfit check``: 0 all current, 3 any stale, edited or never refreshed."""
+    from .check import check
+
+    found = check(args.book)
+    print(found.as_json() if args.json else found.text())
+    return found.exit_status
 
 
 def _refused(text: str) -> int:
@@ -184,6 +197,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return command(args.path, settle=args.settle, backup=args.backup, wait=args.wait)
     try:
         with stop_signals():
+            if args.command == "check":
+                return _check(args)
             if args.command == "refresh" and (is_batch(args.book) or args.scheduler):
                 return _batch(args)  # a folder or pattern, here or on a Dask cluster
             if args.command == "refresh" and args.report is not None:

@@ -14,8 +14,11 @@ from typing import Protocol
 from .a1 import quote_sheet
 
 __all__ = [
+    "FORECAST_SHEET",
     "INDEX_SHEET",
+    "INPUTS_SHEET",
     "INPUT_ROLES",
+    "LOG_SHEET",
     "MARKER_NAME",
     "MAX_TAG",
     "OUTPUT_ROLES",
@@ -44,6 +47,13 @@ MARKER_NAME = "_sheetfit_owned"
 #: Title of the one index sheet per book.
 INDEX_SHEET = "sf index"
 
+#: Per-book sheets that keep the book's history: what each declared range held when last
+#: fitted (``sheetfit check`` compares), the refresh log and the forecast register. The
+#: log and the register are carried forward from the previous refresh, never rewritten.
+INPUTS_SHEET = "sf inputs"
+LOG_SHEET = "sf log"
+FORECAST_SHEET = "sf forecasts"
+
 #: Owned sheet kinds and the word used in their titles.
 SHEET_KINDS = {
     "coef": "coef",
@@ -53,6 +63,7 @@ SHEET_KINDS = {
     "nbrs": "nbrs",
     "summary": "summary",
     "strip": "strip",
+    "about": "about",
 }
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.

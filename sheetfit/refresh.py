@@ -23,6 +23,7 @@ from .errors import (
     SheetfitCaution,
     SheetfitError,
 )
+from .history import plan_history, read_history
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
@@ -134,9 +135,11 @@ def refresh(book: str | Path, out: str | Path | None = None,
             pkg = open_package(source)
             with _values(pkg, source) as values:
                 models = find_models(pkg, values, file, REGISTRY)
+                before = read_history(pkg, values)  # the log, forecasts, notes to carry on
             fits = [(m, fit_model(m)) for m in models]
             stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
             plan, summaries = plan_book(fits, stamp)
+            plan.sheets += plan_history(fits, summaries, before, stamp, __version__)
             with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
                 rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
                 graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], dest)

@@ -2,11 +2,8 @@
 
 from __future__ import annotations
 
-import hashlib
 from dataclasses import dataclass, field
 from typing import Any
-
-import numpy as np
 
 from .declare.model import ModelData
 from .fit.results import Fitted
@@ -47,18 +44,10 @@ class ModelSummary:
 
 
 def fingerprint(model: ModelData) -> str:
-    """Short SHA-256 of the values and settings a model was fitted from."""
-    h = hashlib.sha256()
-    h.update(model.tag.encode())
-    h.update(repr(sorted(model.settings.values.items())).encode())
-    for arr in (model.used, model.Y, model.X):
-        if arr.dtype == object:
-            h.update(repr([(type(v).__name__, v) for v in arr]).encode())
-        else:
-            h.update(np.ascontiguousarray(arr).tobytes())
-    if model.new is not None:
-        h.update(np.ascontiguousarray(model.new.X).tobytes())
-    return h.hexdigest()[:16]
+    """The model's input fingerprint (recipe in ``declare/fingerprint.py`` and the README)."""
+    if model.record is None:
+        raise ValueError(f"model {model.tag} was not read with its input record")
+    return model.record.fingerprint
 
 
 def _common_cautions(model: ModelData, fitted: Fitted[Any]) -> list[str]:

@@ -32,6 +32,7 @@ from ..reader.values import (
 )
 from ..settings import MethodSettings, Settings, parse_settings
 from ..words import clip, plural
+from .fingerprint import InputRecord, record_inputs, settings_text
 from .refs import Area, RefError, parse_areas
 
 __all__ = [
@@ -128,6 +129,8 @@ class ModelData:
     new: NewRows | None = None
     names: dict[str, str] = field(default_factory=dict)
     keys: Keys | None = None
+    #: What each declared range held when read (``declare/fingerprint.py``).
+    record: InputRecord | None = None
 
     @property
     def attribute_names(self) -> list[str]:
@@ -145,6 +148,10 @@ def describe_value(v: Value) -> str:
     if v.kind == UNSAVED:
         return "a formula with no saved result"
     return f"{clip(v.text, 20)} (not a number)"
+
+
+#: Declared ranges as read, by role: (defined name, areas after trimming).
+_Ranges = dict[str, tuple[str, list[Area]]]
 
 
 @dataclass
@@ -317,7 +324,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
                 hint=f"define sf_{tag}_{role}",
             )
     dy, dx = decl.names["y"], decl.names["x"]
-    settings = _settings(decl, pkg, values, file, methods)
+    ranges: _Ranges = {}
+    settings = _settings(decl, pkg, values, file, methods, ranges)
     method = methods[settings.method]
     y_areas, x_areas = _areas(dy, pkg, file), _areas(dx, pkg, file)
     last = _last_row(y_areas + x_areas, values)
@@ -331,6 +339,7 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             hint="point sf_..._y at a single column",
         )
     ya = y_areas[0]
+    ranges["y"], ranges["x"] = (dy.name, [ya]), (dx.name, x_areas)
     for a in x_areas:
         if a.n_rows != ya.n_rows:
             raise DataError(
@@ -365,19 +374,21 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
             hint="fill in the data or point the names at it",
         )
-    new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
+    new = _read_new(decl, pkg, values, file, xcols, ranges) if "new" in decl.names else None
     if "newkey" in decl.names and new is None:
         raise DeclarationError(
             f"model '{tag}' names identifiers of new rows but declares no new rows",
             Context(file, decl.names["newkey"].name), hint=f"define sf_{tag}_new or drop the name",
         )
-    keys = (_read_keys(decl.names["key"], pkg, values, file, ya, header)
+    keys = (_read_keys(decl.names["key"], pkg, values, file, ya, header, ranges)
             if "key" in decl.names else None)
     names = {role: d.name for role, d in decl.names.items()}
     model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names,
                       keys)
     if method.check is not None:
         method.check(model)
+    used_settings = settings_text(settings.values, ["method"] + [r.name for r in method.rules])
+    model.record = record_inputs(tag, ranges, values, used_settings, INPUT_ROLES)
     return model
 
 
@@ -454,12 +465,14 @@ def _read_rows(
 
 
 def _read_new(
-    decl: _Decl, pkg: Package, values: BookValues, file: str, xcols: list[Column]
+    decl: _Decl, pkg: Package, values: BookValues, file: str, xcols: list[Column],
+    ranges: _Ranges,
 ) -> NewRows:
     d = decl.names["new"]
     areas = _areas(d, pkg, file)
     areas = _trim(areas, _last_row(areas, values))
     _refuse_unsaved("the new rows", d, areas, values, file)
+    ranges["new"] = (d.name, areas)
     rows = {a.n_rows for a in areas}
     if len(rows) != 1:
         raise DataError("the areas of the new rows have different numbers of rows",
@@ -496,13 +509,13 @@ def _read_new(
             X[i, j] = v.number
     if n == 0:
         raise DataError("the new rows range holds no rows", Context(file, d.name))
-    keys = (_read_keys(decl.names["newkey"], pkg, values, file, areas[0], header)
-            if "newkey" in decl.names else None)
+    keys = (_read_keys(decl.names["newkey"], pkg, values, file, areas[0], header, ranges,
+                       "newkey") if "newkey" in decl.names else None)
     return NewRows(cols, X, keys)
 
 
 def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like: Area,
-               header: bool) -> Keys:
+               header: bool, ranges: _Ranges, role: str = "key") -> Keys:
     """Identifier columns that must cover the same sheet rows as ``like`` (y's or new's area).
 
     Whole columns take the rows of ``like``; the header row, when the model has one,
@@ -518,6 +531,7 @@ def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like
                 Context(file, d.name, a.sheet, a.a1()),
                 hint="point the identifier name at the same rows as the data it names",
             )
+    ranges[role] = (d.name, areas)
     offset = 1 if header else 0
     cols: list[Column] = []
     vals: list[list[KeyValue]] = []
@@ -540,7 +554,7 @@ def _key_value(v: Value) -> KeyValue:
 
 
 def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,
-              methods: Mapping[str, MethodSettings]) -> Settings:
+              methods: Mapping[str, MethodSettings], ranges: _Ranges) -> Settings:
     d = decl.names.get("opts")
     if d is None:
         return parse_settings([], Context(file), methods)
@@ -552,6 +566,7 @@ def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,
             "settings must be one range of two columns (setting, value)", Context(file, d.name),
         )
     a = areas[0]
+    ranges["opts"] = (d.name, areas)
     sv = values.sheet(a.sheet)
     pairs = []
     for r in range(a.row1, a.row2 + 1):

@@ -1,0 +1,392 @@
+"""``sheetfit check BOOK``: is each model's result still the fit of the book's current inputs?
+
+Reads the book (never writes), reads every declaration again as a refresh would, and
+compares per model:
+
+- the input record (``declare/fingerprint.py``) with the one the last refresh stored on
+  ``sf inputs``: a range whose digest differs is named, with the cells that changed,
+  were added or removed (cells compared by address);
+- when the inputs are unchanged and the book was refreshed by this version: the model's
+  result sheets with a fresh plan of them, cell by cell — a formula replaced by a
+  constant, a value that differs, a cell sheetfit did not write;
+- always: the cached value of every owned formula that is a plain reference to a user's
+  cell (``=Data!B5``) against that cell — a difference means the data changed and the book
+  was saved without recalculating — and owned formulas stored without a result.
+
+Status per model: ``current``, ``stale`` (inputs changed), ``edited`` (results changed by
+hand, or not recalculated), ``never refreshed``. Refusals are the refresh's own.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any
+
+from . import __version__
+from .a1 import cell_ref, col_index, quote_sheet
+from .declare.fingerprint import InputRecord, RangeRecord, cell_addresses
+from .declare.model import ModelData, find_models
+from .declare.refs import RefError, parse_areas
+from .errors import SheetfitError
+from .history._grid import read_rows
+from .history.inputs import read_inputs
+from .methods import REGISTRY
+from .owned import INDEX_SHEET, INPUTS_SHEET
+from .reader.formulas import CellKind, CellKinds, read_cell_kinds
+from .reader.package import Package, open_package
+from .reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, BookValues, Value
+from .sheets.plan import Cell, SheetPlan
+
+__all__ = ["CURRENT", "EDITED", "MISSING", "STALE", "BookCheck", "ModelCheck", "check"]
+
+CURRENT, STALE, EDITED, MISSING = "current", "stale", "edited", "never refreshed"
+#: Exit status of ``sheetfit check`` when any model is not current.
+EXIT_NOT_CURRENT = 3
+#: Cached numbers agree when within 1e-9 relative or 1e-12 absolute: the tolerance the
+#: engine tests use between LibreOffice and sheetfit (different summation orders); a
+#: book re-saved by LibreOffice keeps 15 significant digits (docs/engine-facts.md, E4).
+REL, ABS = 1e-9, 1e-12
+#: Findings listed per kind before the rest are only counted.
+LISTED = 5
+
+_PLAIN_REF = re.compile(
+    r"^=?(?:'(?P<qs>(?:[^']|'')+)'|(?P<ps>[^'!,()\s]+))!\$?(?P<c>[A-Z]{1,3})\$?(?P<r>[0-9]+)$")
+
+
+@dataclass
+class RangeChange:
+    """A declared range whose values differ from the last refresh's."""
+
+    role: str
+    name: str
+    range: str
+    changed: int
+    added: int
+    removed: int
+    cells: list[str] = field(default_factory=list)
+
+    def text(self) -> str:
+        parts = [f"{n} {w}" for n, w in ((self.changed, "changed"), (self.added, "added"),
+                                         (self.removed, "removed")) if n]
+        where = f" ({', '.join(self.cells)}{', …' if self.changed + self.added > len(self.cells) else ''})" \
+            if self.cells else ""
+        what = "; ".join(parts) if parts else "the range moved"
+        return f"{self.name} ({self.range}): {what} {'cell' if self._n == 1 else 'cells'}{where}"
+
+    @property
+    def _n(self) -> int:
+        return self.changed + self.added + self.removed
+
+
+@dataclass
+class Edit:
+    """A cell of an owned sheet that no longer holds what sheetfit wrote."""
+
+    sheet: str
+    cell: str
+    what: str
+
+    def text(self) -> str:
+        return f"{quote_sheet(self.sheet)}!{self.cell}: {self.what}"
+
+
+@dataclass
+class ModelCheck:
+    """What ``check`` found for one model."""
+
+    model: str
+    status: str
+    fingerprint: str | None = None
+    recorded: str | None = None
+    refreshed: str | None = None
+    version: str | None = None
+    changes: list[RangeChange] = field(default_factory=list)
+    edits: list[Edit] = field(default_factory=list)
+    edits_total: int = 0
+    notes: list[str] = field(default_factory=list)
+
+    def text(self) -> str:
+        head = f"  {self.model}: {self.status}"
+        if self.status == CURRENT:
+            head += f" (fingerprint {self.fingerprint}, refreshed {self.refreshed})"
+        lines = [head]
+        lines += [f"    inputs changed: {c.text()}" for c in self.changes]
+        lines += [f"    result edited: {e.text()}" for e in self.edits]
+        if self.edits_total > len(self.edits):
+            lines.append(f"    … {self.edits_total - len(self.edits)} more result cells")
+        lines += [f"    note: {n}" for n in self.notes]
+        return "\n".join(lines)
+
+
+@dataclass
+class BookCheck:
+    """The check of one book: a status per model, the exit status."""
+
+    book: str
+    models: list[ModelCheck]
+
+    @property
+    def exit_status(self) -> int:
+        return 0 if all(m.status == CURRENT for m in self.models) else EXIT_NOT_CURRENT
+
+    def text(self) -> str:
+        worst = "all current" if self.exit_status == 0 else "not all current"
+        lines = [f"check {self.book}: {worst}"] + [m.text() for m in self.models]
+        if self.exit_status:
+            lines.append("refresh the book to bring every model up to date")
+        return "\n".join(lines)
+
+    def as_json(self) -> str:
+        return json.dumps({"book": self.book, "exit_status": self.exit_status,
+                           "models": [asdict(m) for m in self.models]}, indent=2,
+                          ensure_ascii=False)
+
+
+def _values(pkg: Package, path: Path) -> BookValues:
+    parts = {s.name: s.part for s in pkg.sheets if s.is_worksheet}
+    return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
+
+
+def check(book: str | Path) -> BookCheck:
+    """Check every declared model of ``book``; never writes. SheetfitError when refused."""
+    source = Path(book)
+    file = source.name
+    try:
+        pkg = open_package(source)
+        with _values(pkg, source) as values:
+            models = find_models(pkg, values, file, REGISTRY)
+            owned = {s.name: s.part for s in pkg.owned_sheets() if s.is_worksheet}
+            stored = read_inputs(values) if INPUTS_SHEET in owned else {}
+            index = _read_index(values) if INDEX_SHEET in owned else {}
+            kinds = {t: read_cell_kinds(source, p) for t, p in owned.items()}
+            out = [_check_model(m, stored, index, owned, kinds, values) for m in models]
+            declared = {m.tag.casefold() for m in models}
+            for key, (rec, _) in stored.items():
+                if key not in declared:
+                    out.append(ModelCheck(rec.tag, STALE, notes=[
+                        ("its results are in the book but the model is no longer declared; "
+                         "the next refresh removes them")]))
+    except SheetfitError as exc:
+        raise exc.with_file(file) from None
+    return BookCheck(file, out)
+
+
+def _read_index(values: BookValues) -> dict[str, tuple[str, str, str]]:
+    """Model (case-folded) -> (refreshed, tool version, fingerprint) from the index sheet."""
+    out: dict[str, tuple[str, str, str]] = {}
+    for row in read_rows(values, INDEX_SHEET, 5, 10):
+        if not isinstance(row[0], str) or row[0] == "model":
+            break
+        out[row[0].casefold()] = (str(row[7] or ""), str(row[8] or ""), str(row[9] or ""))
+    return out
+
+
+def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
+                 index: dict[str, tuple[str, str, str]], owned: dict[str, str],
+                 kinds: dict[str, CellKinds], values: BookValues) -> ModelCheck:
+    now = model.record
+    if now is None:
+        raise ValueError(f"model {model.tag} was read without its input record")
+    key = model.tag.casefold()
+    found = ModelCheck(model.tag, CURRENT, fingerprint=now.fingerprint)
+    if key not in stored:
+        found.status = MISSING
+        return found
+    rec, written_fp = stored[key]
+    refreshed, version, index_fp = index.get(key, ("", "", ""))
+    found.recorded, found.refreshed, found.version = written_fp, refreshed or None, version or None
+    if rec.fingerprint != written_fp or (index_fp and index_fp != written_fp):
+        found.edits.append(Edit(INPUTS_SHEET if rec.fingerprint != written_fp else INDEX_SHEET,
+                                "", "the recorded fingerprint was changed by hand"))
+    if rec.fingerprint != now.fingerprint:
+        found.status = STALE
+        found.changes = _range_changes(rec, now)
+        if rec.settings != now.settings:
+            found.notes.append(f"settings as used were {rec.settings}; now {now.settings}")
+    sheets = {t: p for t, p in owned.items() if t.casefold().startswith(
+        f"sf {model.tag} ".casefold())}
+    edits: list[Edit] = []
+    edits += _data_side(sheets, kinds, values)
+    if found.status == CURRENT:
+        if version and version != __version__:
+            found.notes.append(f"refreshed by sheetfit {version}, this is {__version__}: the "
+                               "result cells were not compared with a fresh plan")
+        else:
+            edits += _against_plan(model, sheets, kinds, values)
+    found.edits_total = len(edits) + len(found.edits)
+    found.edits = (found.edits + edits)[:LISTED]
+    if found.edits and found.status == CURRENT:
+        found.status = EDITED
+    return found
+
+
+def _range_changes(old: InputRecord, now: InputRecord) -> list[RangeChange]:
+    out = []
+    roles = [r.role for r in now.ranges] + [r.role for r in old.ranges
+                                           if now.range(r.role) is None]
+    for role in roles:
+        a, b = old.range(role), now.range(role)
+        if a is not None and b is not None and a.digest == b.digest:
+            continue
+        out.append(_diff(role, a, b))
+    return out
+
+
+def _cells_of(rr: RangeRecord | None) -> dict[str, str]:
+    if rr is None:
+        return {}
+    try:
+        areas = parse_areas(rr.ref)
+    except RefError:
+        return {}
+    out = {}
+    for i, (sheet, r, c) in enumerate(cell_addresses(areas)):
+        out[f"{quote_sheet(sheet)}!{cell_ref(r, c)}"] = rr.cell(i)
+    return out
+
+
+def _diff(role: str, a: RangeRecord | None, b: RangeRecord | None) -> RangeChange:
+    old, new = _cells_of(a), _cells_of(b)
+    changed = [k for k in new if k in old and old[k] != new[k]]
+    added = [k for k in new if k not in old]
+    removed = [k for k in old if k not in new]
+    rr = b or a
+    name = rr.name if rr is not None else role
+    ref = (b.ref if b is not None else "no longer declared") if a is None or b is None \
+        or a.ref == b.ref else f"{a.ref} → {b.ref}"
+    return RangeChange(role, name, ref, len(changed), len(added), len(removed),
+                       (changed + added)[:LISTED])
+
+
+def _same(planned: Any, v: Value) -> bool:
+    """Whether a book cell's value is what the plan put there (numbers within REL/ABS)."""
+    if planned is None or planned == "":
+        return v.kind == BLANK or (v.kind == TEXT and v.text == "")
+    if isinstance(planned, bool):
+        return (v.kind == OTHER and v.text == ("TRUE" if planned else "FALSE")) or (
+            v.kind == NUMBER and v.number == float(planned))
+    if isinstance(planned, (int, float)):
+        return v.kind == NUMBER and _close(float(planned), v.number)
+    if v.kind == ERROR:
+        return str(planned) == v.text
+    return v.kind == TEXT and v.text == str(planned)
+
+
+def _close(a: float, b: float) -> bool:
+    if math.isnan(a) or math.isnan(b):
+        return math.isnan(a) and math.isnan(b)
+    return abs(a - b) <= max(ABS, REL * max(abs(a), abs(b)))
+
+
+def _shown(v: Value) -> str:
+    if v.kind == NUMBER:
+        return f"{v.number:.10g}"
+    if v.kind == BLANK:
+        return "a blank"
+    return repr(v.text[:30])
+
+
+def _against_plan(model: ModelData, sheets: dict[str, str], kinds: dict[str, CellKinds],
+                  values: BookValues) -> list[Edit]:
+    """Compare each result sheet of an up-to-date model with a fresh plan of it."""
+    from .refresh import fit_model
+
+    method = REGISTRY[model.settings.method]
+    planned = method.plan(model, fit_model(model), __version__)
+    edits: list[Edit] = []
+    for plan in planned.sheets:
+        title = next((t for t in sheets if t.casefold() == plan.title.casefold()), None)
+        if title is None:
+            edits.append(Edit(plan.title, "", "the sheet is missing"))
+            continue
+        edits += _compare_sheet(plan, title, kinds[title], values)
+    return edits
+
+
+def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
+                   values: BookValues) -> list[Edit]:
+    sv = values.sheet(title)
+    edits = []
+    seen: set[tuple[int, int]] = set()
+    for c in plan.cells:
+        pos = (c.row + 1, c.col + 1)
+        seen.add(pos)
+        v = sv.get(*pos)
+        what = _cell_edit(c, kinds.get(pos), v)
+        if what:
+            edits.append(Edit(title, c.address, what))
+    for pos in sorted(set(kinds) - seen):
+        v = sv.get(*pos)
+        if v.kind != BLANK or kinds[pos].formula is not None:
+            edits.append(Edit(title, cell_ref(*pos), f"holds {_shown(v)}, which sheetfit did "
+                              "not write (the next refresh replaces this sheet)"))
+    return edits
+
+
+def _cell_edit(c: Cell, kind: CellKind | None, v: Value) -> str:
+    """What is wrong with one planned cell in the book ('' when nothing is)."""
+    if c.formula is not None:
+        if kind is None:
+            return "its formula was cleared"
+        if kind.formula is None:
+            return f"its formula {c.formula[:40]} was replaced by {_shown(v)}"
+        if v.kind == UNSAVED or not kind.result:
+            return ""  # counted by the data-side pass, once per sheet
+        if not _same(c.value, v):
+            return f"shows {_shown(v)} where its formula gave {c.value!r:.30}"
+        return ""
+    if kind is not None and kind.formula is not None:
+        return f"a formula was typed where sheetfit wrote {c.value!r:.30}"
+    if not _same(c.value, v):
+        return f"holds {_shown(v)} where sheetfit wrote {c.value!r:.30}"
+    return ""
+
+
+def _data_side(sheets: dict[str, str], kinds: dict[str, CellKinds],
+               values: BookValues) -> list[Edit]:
+    """Owned references to a user's cell whose cached value differs from that cell."""
+    edits: list[Edit] = []
+    owned = {t.casefold() for t in kinds}
+    for title in sheets:
+        sv = values.sheet(title)
+        unsaved = 0
+        for (r, c), (formula, result) in kinds[title].items():
+            if formula is None:
+                continue
+            v = sv.get(r, c)
+            if v.kind == UNSAVED or not result:
+                unsaved += 1
+                continue
+            m = _PLAIN_REF.match(formula.strip())
+            if m is None:
+                continue
+            sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
+            if sheet.casefold() in owned:
+                continue
+            try:
+                target = values.sheet(sheet).get(int(m.group("r")), col_index(m.group("c")))
+            except KeyError:
+                continue
+            if not _same_value(v, target):
+                edits.append(Edit(title, cell_ref(r, c), (
+                    f"shows {_shown(v)} but {formula.lstrip('=')} holds {_shown(target)} "
+                    "(the data changed and the book was saved without recalculating)")))
+        if unsaved:
+            edits.append(Edit(title, "", (
+                f"{unsaved} formula cells have no saved result (the book was saved by a "
+                "program that does not calculate)")))
+    return edits
+
+
+def _same_value(a: Value, b: Value) -> bool:
+    if a.kind == NUMBER and b.kind == NUMBER:
+        return _close(a.number, b.number)
+    if {a.kind, b.kind} <= {BLANK, NUMBER} and (a.kind == BLANK or b.kind == BLANK):
+        # a reference to a blank cell shows 0
+        other = a if a.kind == NUMBER else b
+        return other.kind == BLANK or other.number == 0
+    return a.kind == b.kind and a.text == b.text

@@ -1,0 +1,158 @@
+"""The input record of a model: what each declared range held when it was read, re-derivable.
+
+A refresh stores this record (``sf inputs`` sheet, index fingerprint); ``sheetfit check``
+computes it again from the book and compares. The recipe (also in the README):
+
+1. **Cell token.** Each cell of a declared range, as the values reader sees it, becomes
+   one text: ``n:`` + the number in Python ``repr`` form (the shortest decimal that reads
+   back as the same double: ``12.0``, ``0.1``, ``1e-05``, ``1.5e+16``; a date is its serial
+   number), ``t:`` + the text, ``b:`` for a blank, ``e:`` + the error text (``e:#DIV/0!``),
+   ``l:TRUE`` / ``l:FALSE`` for a logical.
+2. **Cell digest.** The first 8 hexadecimal digits of SHA-256 of the token (UTF-8).
+3. **Range.** The range is the declared name's areas as the declaration reads them
+   (whole columns cut at the last used row; identifier columns over the rows of the
+   range they name), written ``Sheet!$A$1:$A$41`` (sheet quoted as in a formula), areas
+   joined by ``,``. Cells go area by area, row by row, left to right. The range digest is
+   the first 16 hex digits of SHA-256 of ``<range>`` + a line feed + the cell digests
+   run together.
+4. **Fingerprint.** The first 16 hex digits of SHA-256 of the lines
+   ``sheetfit inputs 1``, ``model <name>``, one ``<role> <range digest>`` per declared
+   role in the order y, x, new, opts, key, newkey, and ``settings <list>``, where the list
+   is the method's settings as used, ``name=value`` joined by ``;`` in the order
+   ``method`` then the method's own settings (yes/no for switches, ``auto`` for an unset
+   k, numbers as in step 1, text as it is); each line ends in a line feed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from ..a1 import absolute, quote_sheet
+from ..reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, BookValues, Value
+from .refs import Area
+
+__all__ = [
+    "DIGEST_HEX",
+    "RECIPE",
+    "InputRecord",
+    "RangeRecord",
+    "cell_addresses",
+    "cell_token",
+    "digest_cell",
+    "record_inputs",
+    "settings_text",
+]
+
+#: First line of the text a fingerprint hashes; changes when the recipe changes.
+RECIPE = "sheetfit inputs 1"
+#: Hex digits kept of each cell's digest.
+DIGEST_HEX = 8
+
+
+def cell_token(v: Value) -> str:
+    """The text one cell contributes (step 1 of the recipe)."""
+    if v.kind == NUMBER:
+        return "n:" + repr(float(v.number))
+    if v.kind == TEXT:
+        return "t:" + v.text
+    if v.kind == ERROR:
+        return "e:" + v.text
+    if v.kind == OTHER:
+        return "l:" + v.text
+    if v.kind == BLANK:
+        return "b:"
+    return "u:"  # a formula without a saved result: refused before a record is made
+
+
+def digest_cell(v: Value) -> str:
+    return hashlib.sha256(cell_token(v).encode("utf-8", "surrogatepass")).hexdigest()[:DIGEST_HEX]
+
+
+def range_text(areas: Sequence[Area]) -> str:
+    """``Sheet!$A$1:$A$41`` per area, joined by commas."""
+    out = []
+    for a in areas:
+        first, last = absolute(a.row1 - 1, a.col1 - 1), absolute(a.row2 - 1, a.col2 - 1)
+        out.append(f"{quote_sheet(a.sheet)}!{first}" + ("" if first == last else f":{last}"))
+    return ",".join(out)
+
+
+def cell_addresses(areas: Sequence[Area]) -> Iterator[tuple[str, int, int]]:
+    """(sheet, row, col) of every cell of the areas, in recipe order."""
+    for a in areas:
+        for r in range(a.row1, a.row2 + 1):
+            for c in range(a.col1, a.col2 + 1):
+                yield a.sheet, r, c
+
+
+@dataclass(frozen=True)
+class RangeRecord:
+    """One declared range as read: role, defined name, areas, and its digests."""
+
+    role: str
+    name: str
+    ref: str
+    cells: str  # the cell digests run together, DIGEST_HEX hex digits each
+
+    @property
+    def n_cells(self) -> int:
+        return len(self.cells) // DIGEST_HEX
+
+    @property
+    def digest(self) -> str:
+        return hashlib.sha256(f"{self.ref}\n{self.cells}".encode()).hexdigest()[:16]
+
+    def cell(self, i: int) -> str:
+        return self.cells[i * DIGEST_HEX:(i + 1) * DIGEST_HEX]
+
+
+@dataclass(frozen=True)
+class InputRecord:
+    """Every declared range of one model and its settings as used; the fingerprint."""
+
+    tag: str
+    ranges: tuple[RangeRecord, ...]
+    settings: str
+
+    @property
+    def fingerprint(self) -> str:
+        lines = [RECIPE, f"model {self.tag}"]
+        lines += [f"{r.role} {r.digest}" for r in self.ranges]
+        lines.append(f"settings {self.settings}")
+        text = "".join(line + "\n" for line in lines)
+        return hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()[:16]
+
+    def range(self, role: str) -> RangeRecord | None:
+        return next((r for r in self.ranges if r.role == role), None)
+
+
+def _setting_word(v: Any) -> str:
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if v is None:
+        return "auto"
+    if isinstance(v, float):
+        return repr(v)
+    return str(v)
+
+
+def settings_text(values: Mapping[str, Any], names: Sequence[str]) -> str:
+    """``method=least_squares;intercept=yes;degree=1`` for the settings ``names``."""
+    return ";".join(f"{n}={_setting_word(values[n])}" for n in names)
+
+
+def record_inputs(tag: str, ranges: Mapping[str, tuple[str, Sequence[Area]]],
+                  values: BookValues, settings: str, role_order: Sequence[str]) -> InputRecord:
+    """The record of a model's declared ranges (role -> (defined name, areas)) as read now."""
+    out = []
+    for role in role_order:
+        if role not in ranges:
+            continue
+        name, areas = ranges[role]
+        digests = "".join(digest_cell(values.sheet(s).get(r, c))
+                          for s, r, c in cell_addresses(areas))
+        out.append(RangeRecord(role, name, range_text(areas), digests))
+    return InputRecord(tag, tuple(out), settings)

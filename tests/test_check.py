@@ -1,0 +1,221 @@
+"""``sheetfit check``: current, stale (range and cells named), edited, never refreshed; exit
+statuses; never writes; books edited by openpyxl and by LibreOffice."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+import zipfile
+from pathlib import Path
+
+import pytest
+from books import line_rows, make_book, soffice_convert
+from lo_edit import edit_in_libreoffice
+
+from sheetfit.check import CURRENT, EDITED, MISSING, STALE, check
+from sheetfit.cli import main
+from sheetfit.owned import sheet_title
+from sheetfit.refresh import refresh
+
+NAMES = {"sf_a_y": "Data!$A$1:$A$11", "sf_a_x": "Data!$B$1:$B$11",
+         "sf_b_y": "Data!$A$1:$A$11", "sf_b_x": "Data!$C$1:$C$11"}
+
+
+def _rows() -> list[list[object]]:
+    rows = line_rows(10)
+    rows[0].append("hours")
+    for i, r in enumerate(rows[1:]):
+        r.append(float(3 + (i * 7) % 11))
+    return rows
+
+
+def _book(tmp_path: Path, name: str = "b.xlsx") -> Path:
+    p = make_book(tmp_path / name, {"Data": _rows()}, NAMES)
+    refresh(p)
+    return p
+
+
+def _set_xml(path: Path, part: str, cell: str, value: str, formula_too: bool = False) -> None:
+    """Replace one cell's stored value in the XML (as a program that does not recalculate)."""
+    tmp = path.with_suffix(".edit")
+    with zipfile.ZipFile(path) as zin, zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = zin.read(info)
+            if info.filename == part:
+                if formula_too:  # the whole cell becomes a typed number
+                    pat = re.compile(rb'<c r="' + cell.encode() + rb'"([^>]*?)(?: t="\w+")?>'
+                                     rb".*?</c>", re.DOTALL)
+                    data, n = pat.subn(b'<c r="' + cell.encode() + rb'"\1><v>' + value.encode()
+                                       + b"</v></c>", data, count=1)
+                else:
+                    pat = re.compile(rb'(<c r="' + cell.encode() + rb'"[^>]*><v>)[^<]*(</v>)')
+                    data, n = pat.subn(rb"\g<1>" + value.encode() + rb"\g<2>", data)
+                assert n == 1, (part, cell)
+            zout.writestr(info, data)
+    tmp.replace(path)
+
+
+def _part_of(path: Path, title: str) -> str:
+    from sheetfit.reader.package import open_package
+
+    return open_package(path).sheet(title).part
+
+
+def _status(found, tag: str):
+    return next(m for m in found.models if m.model == tag)
+
+
+def _digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_current_after_refresh_exit_0_and_nothing_written(tmp_path: Path, capsys) -> None:
+    p = _book(tmp_path)
+    before, files = _digest(p), sorted(tmp_path.iterdir())
+    assert main(["check", str(p)]) == 0
+    out = capsys.readouterr().out
+    assert "a: current" in out and "b: current" in out
+    assert main(["check", str(p), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["exit_status"] == 0
+    assert {m["model"]: m["status"] for m in doc["models"]} == {"a": CURRENT, "b": CURRENT}
+    assert _digest(p) == before and sorted(tmp_path.iterdir()) == files
+
+
+def test_never_refreshed_exit_3(tmp_path: Path, capsys) -> None:
+    p = make_book(tmp_path / "b.xlsx", {"Data": _rows()}, NAMES)
+    assert main(["check", str(p)]) == 3
+    assert "a: never refreshed" in capsys.readouterr().out
+    assert [m.status for m in check(p).models] == [MISSING, MISSING]
+    # a model declared after the last refresh
+    p2 = make_book(tmp_path / "c.xlsx", {"Data": _rows()},
+                   {k: v for k, v in NAMES.items() if k.startswith("sf_a")})
+    refresh(p2)
+    assert check(p2).models[0].status == CURRENT
+
+
+def test_refused_input_exit_2_one_line(tmp_path: Path, capsys) -> None:
+    p = make_book(tmp_path / "b.xlsx", {"Data": _rows()},
+                  {"sf_a_y": "Data!$A$1:$A$11", "sf_a_x": "Data!$B$1:$B$9"})
+    before = _digest(p)
+    assert main(["check", str(p)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "refused" in err[0] and "sf_a_x" in err[0]
+    assert _digest(p) == before
+    q = tmp_path / "not.xlsx"
+    q.write_bytes(b"not a zip")
+    assert main(["check", str(q)]) == 2
+
+
+def test_stale_after_one_data_cell_changes_names_range_and_cell(tmp_path: Path) -> None:
+    p = _book(tmp_path)
+    _set_xml(p, "xl/worksheets/sheet1.xml", "A4", "500")
+    before = _digest(p)
+    found = check(p)
+    assert _digest(p) == before
+    a, b = _status(found, "a"), _status(found, "b")
+    # y is shared by both models: both stale, the y range named with its one cell
+    for m in (a, b):
+        assert m.status == STALE
+        assert [(c.role, c.name, c.changed, c.added, c.removed) for c in m.changes] == [
+            ("y", m.changes[0].name, 1, 0, 0)]
+        assert m.changes[0].cells == ["Data!A4"]
+    assert a.changes[0].name == "sf_a_y" and b.changes[0].name == "sf_b_y"
+    # the fitted sheet's =Data!A4 still caches the old value: the data changed unrecalculated
+    assert any("Data!A4" in e.what for e in a.edits)
+    assert found.exit_status == 3
+    refresh(p)
+    again = check(p)
+    assert [m.status for m in again.models] == [CURRENT, CURRENT]
+
+
+def test_stale_names_x_range_only_for_the_model_that_uses_it(tmp_path: Path) -> None:
+    p = _book(tmp_path)
+    _set_xml(p, "xl/worksheets/sheet1.xml", "C7", "9.5")
+    found = check(p)
+    assert _status(found, "a").status == CURRENT
+    b = _status(found, "b")
+    assert b.status == STALE and [(c.name, c.changed) for c in b.changes] == [("sf_b_x", 1)]
+    assert b.changes[0].cells == ["Data!C7"]
+
+
+def test_appended_rows_are_counted_as_added(tmp_path: Path) -> None:
+    openpyxl = pytest.importorskip("openpyxl")
+    p = make_book(tmp_path / "w.xlsx", {"Data": _rows()},
+                  {"sf_w_y": "Data!$A:$A", "sf_w_x": "Data!$B:$B"})
+    refresh(p)
+    assert check(p).models[0].status == CURRENT
+    wb = openpyxl.load_workbook(p)
+    wb["Data"].append([180.0, 33.0])
+    wb["Data"].append([190.0, 36.0])
+    wb.save(p)
+    w = check(p).models[0]
+    assert w.status == STALE
+    assert [(c.name, c.range, c.changed, c.added, c.removed, c.cells) for c in w.changes] == [
+        ("sf_w_y", "Data!$A$1:$A$11 → Data!$A$1:$A$13", 0, 2, 0, ["Data!A12", "Data!A13"]),
+        ("sf_w_x", "Data!$B$1:$B$11 → Data!$B$1:$B$13", 0, 2, 0, ["Data!B12", "Data!B13"]),
+    ]
+
+
+def test_edited_when_a_result_formula_is_overwritten(tmp_path: Path, capsys) -> None:
+    p = _book(tmp_path)
+    part = _part_of(p, sheet_title("a", "fitted"))
+    text = zipfile.ZipFile(p).read(part).decode()
+    # the first fitted-value formula cell of the sheet
+    cell = re.search(r'<c r="([A-Z]+5)"[^>]*><f>[^<]*\$', text).group(1)
+    _set_xml(p, part, cell, "123.5", formula_too=True)
+    found = check(p)
+    a = _status(found, "a")
+    assert a.status == EDITED and _status(found, "b").status == CURRENT
+    assert any(e.cell == cell and "replaced by 123.5" in e.what for e in a.edits)
+    assert main(["check", str(p)]) == 3
+    assert f"{cell}: its formula" in capsys.readouterr().out
+
+
+def test_edited_when_a_value_cell_or_a_cached_result_changes(tmp_path: Path) -> None:
+    p = _book(tmp_path)
+    coef = _part_of(p, sheet_title("a", "coef"))
+    text = zipfile.ZipFile(p).read(coef).decode()
+    # a coefficient is a computed value (no formula) in column B
+    cell = re.search(r'<c r="(B\d+)"[^>]*><v>[^<]*</v></c>', text).group(1)
+    _set_xml(p, coef, cell, "1.5")
+    a = _status(check(p), "a")
+    assert a.status == EDITED and any(e.cell == cell for e in a.edits)
+
+
+def test_openpyxl_edit_is_stale_with_the_range_named(tmp_path: Path) -> None:
+    openpyxl = pytest.importorskip("openpyxl")
+    p = _book(tmp_path)
+    wb = openpyxl.load_workbook(p)
+    wb["Data"]["B6"] = 999.0
+    wb.save(p)
+    found = check(p)
+    a = _status(found, "a")
+    assert a.status == STALE
+    assert [(c.name, c.changed, c.cells) for c in a.changes] == [("sf_a_x", 1, ["Data!B6"])]
+    assert _status(found, "b").status == CURRENT or _status(found, "b").status == EDITED
+    # openpyxl keeps formulas but not their results: said so
+    assert any("no saved result" in e.what for e in a.edits)
+    refresh(p)
+    assert [m.status for m in check(p).models] == [CURRENT, CURRENT]
+
+
+def test_libreoffice_resave_stays_current(tmp_path: Path) -> None:
+    p = _book(tmp_path)
+    saved = soffice_convert(p, tmp_path / "lo")
+    assert [m.status for m in check(saved).models] == [CURRENT, CURRENT]
+
+
+def test_libreoffice_edit_and_save_is_stale_with_the_range_named(tmp_path: Path) -> None:
+    p = _book(tmp_path)
+    out = edit_in_libreoffice(p, tmp_path / "edited.xlsx", [("Data", "B6", 77.0)])
+    found = check(out)
+    a, b = _status(found, "a"), _status(found, "b")
+    assert a.status == STALE
+    assert [(c.name, c.changed, c.cells) for c in a.changes] == [("sf_a_x", 1, ["Data!B6"])]
+    assert b.status == CURRENT
+    # LibreOffice recalculated on the edit: the owned references follow the data
+    assert not any("saved without recalculating" in e.what for e in a.edits)
+    refresh(out)
+    assert [m.status for m in check(out).models] == [CURRENT, CURRENT]
