@@ -9,14 +9,20 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Generic
+from typing import Any, Generic
+
+import numpy as np
 
 from ..declare.model import ModelData
 from ..fit.results import Fitted, R
 from ..settings import Rule
 from ..sheets.plan import Planned
 
-__all__ = ["Fitted", "Method", "R"]
+__all__ = ["Fitted", "Forecasts", "Method", "R"]
+
+#: Forecasts of a model's new rows: the point forecasts and, when the method gives one,
+#: the low and high ends of a prediction interval for one new value (else None, None).
+Forecasts = tuple[np.ndarray, np.ndarray | None, np.ndarray | None]
 
 @dataclass(frozen=True)
 class Method(Generic[R]):
@@ -40,3 +46,9 @@ class Method(Generic[R]):
     labels: bool = False
     max_attributes: int | None = None
     check: Callable[[ModelData], None] | None = None
+    #: The figures the refresh log follows from one refresh to the next, as
+    #: (name, number) pairs; None when the method has none.
+    key_figures: Callable[[ModelData, R], list[tuple[str, float]]] | None = None
+    #: Numeric forecasts of the new rows (``Forecasts``) at a level such as 0.95, from the
+    #: result and its predictions; None for a method whose forecasts are not numbers.
+    forecasts: Callable[[ModelData, R, Any, float], Forecasts] | None = None

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from ..declare.model import ModelData
 from ..fit.checks import DEGREE_RANGE
+from ..fit.inference import intervals
 from ..fit.leastsq import LeastSquares, LeastSquaresResult
 from ..settings import Rule, integer, yes_no
 from ..sheets.leastsq import plan_least_squares
-from .base import Method
+from .base import Forecasts, Method
 
 __all__ = ["METHOD"]
 
@@ -37,6 +40,20 @@ def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
     return out
 
 
+def _key_figures(model: ModelData, res: LeastSquaresResult) -> list[tuple[str, float]]:
+    return [(str(t), float(c)) for t, c in zip(res.terms_, res.coef_)]
+
+
+def _forecasts(model: ModelData, res: LeastSquaresResult, new: object,
+               level: float) -> Forecasts:
+    """The predictions and, with residual degrees of freedom left, the prediction interval."""
+    point = np.asarray(new, dtype=float)
+    if model.new is None or res.df_resid_ < 1:
+        return point, None, None
+    iv = intervals(res, model.new.X, level)
+    return point, np.asarray(iv.obs_lo), np.asarray(iv.obs_hi)
+
+
 METHOD: Method[LeastSquaresResult] = Method(
     word="least_squares",
     title="least squares",
@@ -50,4 +67,6 @@ METHOD: Method[LeastSquaresResult] = Method(
     plan=plan_least_squares,
     figures=_figures,
     cautions=_cautions,
+    key_figures=_key_figures,
+    forecasts=_forecasts,
 )

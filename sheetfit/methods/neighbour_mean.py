@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from ..declare.model import ModelData
-from ..fit.neighbours import NeighbourMean, NeighbourMeanResult
+from ..fit.neighbours import MeanPrediction, NeighbourMean, NeighbourMeanResult
 from ..sheets.neighbours import plan_neighbour_mean
 from . import _neighbours
-from .base import Method
+from .base import Forecasts, Method
 
 __all__ = ["METHOD"]
 
@@ -21,6 +23,17 @@ def _figures(model: ModelData, res: NeighbourMeanResult) -> list[str]:
     return [_neighbours.k_figure(res), f"leave-one-out RMSE {float(res.rmse_):.6g}"]
 
 
+def _key_figures(model: ModelData, res: NeighbourMeanResult) -> list[tuple[str, float]]:
+    return [("k", float(res.k_)), ("leave-one-out RMSE", float(res.rmse_))]
+
+
+def _forecasts(model: ModelData, res: NeighbourMeanResult, new: object,
+               level: float) -> Forecasts:
+    if not isinstance(new, MeanPrediction):
+        raise TypeError(f"neighbour-mean forecasts need a MeanPrediction, not {type(new)}")
+    return np.asarray(new.value, dtype=float), None, None
+
+
 METHOD: Method[NeighbourMeanResult] = Method(
     word="neighbour_mean",
     title="neighbour mean",
@@ -30,4 +43,6 @@ METHOD: Method[NeighbourMeanResult] = Method(
     plan=plan_neighbour_mean,
     figures=_figures,
     cautions=_neighbours.cautions,
+    key_figures=_key_figures,
+    forecasts=_forecasts,
 )

@@ -39,6 +39,10 @@ def _check(model: ModelData) -> None:
     )
 
 
+def _key_figures(model: ModelData, res: NeighbourVoteResult) -> list[tuple[str, float]]:
+    return [("k", float(res.k_)), ("leave-one-out error rate", float(res.error_rate_))]
+
+
 METHOD: Method[NeighbourVoteResult] = Method(
     word="neighbour_vote",
     title="neighbour vote",
@@ -53,4 +57,5 @@ METHOD: Method[NeighbourVoteResult] = Method(
     plan=plan_neighbour_vote,
     figures=_figures,
     cautions=_neighbours.cautions,
+    key_figures=_key_figures,
 )

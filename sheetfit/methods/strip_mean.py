@@ -9,7 +9,7 @@ from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
 from ..sheets.strip import plan_strip
 from ..words import plural
-from .base import Method
+from .base import Forecasts, Method
 
 __all__ = ["METHOD"]
 
@@ -34,6 +34,14 @@ def _cautions(model: ModelData, res: StripMeanResult) -> list[str]:
     return out
 
 
+def _key_figures(model: ModelData, res: StripMeanResult) -> list[tuple[str, float]]:
+    return [("width", float(model.settings["width"])), ("leave-one-out RMSE", float(res.rmse_))]
+
+
+def _forecasts(model: ModelData, res: StripMeanResult, new: object, level: float) -> Forecasts:
+    return np.asarray(new, dtype=float), None, None
+
+
 METHOD: Method[StripMeanResult] = Method(
     word="strip_mean",
     title="strip mean",
@@ -48,4 +56,6 @@ METHOD: Method[StripMeanResult] = Method(
     plan=plan_strip,
     figures=_figures,
     cautions=_cautions,
+    key_figures=_key_figures,
+    forecasts=_forecasts,
 )

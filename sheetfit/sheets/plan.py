@@ -27,6 +27,7 @@ STYLES: dict[str, dict[str, object]] = {
     "check": {"num_format": "0.0E+00", "font_color": "#2E6B30"},
     "int": {"num_format": "0"},
     "ratio": {"num_format": "0.000000"},
+    "pct": {"num_format": "0.0%"},
     "dist": {"num_format": "0.000000"},
     "caution": {"font_color": "#8A4B00", "text_wrap": False},
 }
