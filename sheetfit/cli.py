@@ -1,5 +1,6 @@
-"""Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``
-and ``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``).
+"""Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``,
+``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``) and
+``sheetfit check BOOK [--json]`` (``check.py``; exit 0 all current, 3 not, 2 refused).
 
 ``BOOK`` may also be a folder or a pattern (``--jobs N``, ``--report PATH``): every book
 found is refreshed by a runner (``_runner``: worker processes here, or a Dask cluster with
