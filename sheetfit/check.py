@@ -195,6 +195,11 @@ def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
     found = ModelCheck(model.tag, CURRENT, fingerprint=now.fingerprint)
     if key not in stored:
         found.status = MISSING
+        if key in index:  # refreshed, but by a sheetfit that kept no input record
+            found.status = STALE
+            found.refreshed, found.version = index[key][0] or None, index[key][1] or None
+            found.notes.append("refreshed without an input record (an earlier sheetfit): "
+                               "refresh once so that changes can be traced")
         return found
     rec, written_fp = stored[key]
     refreshed, version, index_fp = index.get(key, ("", "", ""))

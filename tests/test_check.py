@@ -219,3 +219,51 @@ def test_libreoffice_edit_and_save_is_stale_with_the_range_named(tmp_path: Path)
     assert not any("saved without recalculating" in e.what for e in a.edits)
     refresh(out)
     assert [m.status for m in check(out).models] == [CURRENT, CURRENT]
+
+
+def test_fingerprint_rederived_from_the_recipe_by_hand(tmp_path: Path) -> None:
+    """The README's recipe, followed here with hashlib alone, gives the index's fingerprint."""
+    import python_calamine
+
+    rows = _rows()
+    p = make_book(tmp_path / "f.xlsx", {"Data": rows},
+                  {"sf_a_y": "Data!$A$1:$A$11", "sf_a_x": "Data!$B$1:$B$11"})
+    refresh(p)
+
+    def h(text: str) -> str:
+        return hashlib.sha256(text.encode()).hexdigest()
+
+    def token(v: object) -> str:
+        return "n:" + repr(float(v)) if isinstance(v, (int, float)) else "t:" + str(v)
+
+    def range_digest(ref: str, col: int) -> str:
+        cells = "".join(h(token(r[col]))[:8] for r in rows)
+        return h(f"{ref}\n{cells}")[:16]
+
+    text = ("sheetfit inputs 1\nmodel a\n"
+            f"y {range_digest('Data!$A$1:$A$11', 0)}\n"
+            f"x {range_digest('Data!$B$1:$B$11', 1)}\n"
+            "settings method=least_squares;intercept=yes;degree=1\n")
+    index = python_calamine.load_workbook(str(p)).get_sheet_by_name("sf index").to_python()
+    head = next(r for r in index if r and r[0] == "model")
+    row = next(r for r in index if r and r[0] == "a")
+    assert row[head.index("input fingerprint")] == h(text)[:16]
+
+
+def test_identifier_change_names_the_key_range(tmp_path: Path) -> None:
+    rows = [["month"] + r for r in _rows()]
+    for i, r in enumerate(rows[1:]):
+        r[0] = f"2025-{i + 1:02d}"
+    p = make_book(tmp_path / "k.xlsx", {"Data": rows},
+                  {"sf_a_y": "Data!$B$1:$B$11", "sf_a_x": "Data!$C$1:$C$11",
+                   "sf_a_key": "Data!$A$1:$A$11"})
+    refresh(p)
+    assert check(p).models[0].status == CURRENT
+    openpyxl = pytest.importorskip("openpyxl")
+    wb = openpyxl.load_workbook(p)
+    wb["Data"]["A3"] = "2025-02 (revised)"
+    wb.save(p)
+    a = check(p).models[0]
+    assert a.status == STALE
+    assert [(c.role, c.name, c.changed, c.cells) for c in a.changes] == [
+        ("key", "sf_a_key", 1, ["Data!A3"])]
