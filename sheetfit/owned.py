@@ -35,7 +35,7 @@ PREFIX = "sf_"
 INPUT_ROLES = ("y", "x", "new", "opts", "key", "newkey")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
-OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "se", "robust", "predlow", "predhigh")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
 #: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
