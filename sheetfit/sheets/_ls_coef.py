@@ -47,7 +47,11 @@ IDENTITY_CHECK = "1E-6"
 TABLE_HEAD = 3
 FIRST_COEF = 4
 #: Lines of the fit figures other sheets read, by their position under the heading.
-FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7}
+FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7, "sd used": 8}
+#: The residual SD from the sheet's residual cells agrees with the one computed from the
+#: exact residuals to this (relative): the residual cells carry the rounding of the
+#: fitted-value formulas, ~1e-9 relative on the hardest certified problem (NIST Filip).
+SD_AGREE = "1E-6"
 
 
 def figure_row(p: int, what: str) -> int:
@@ -130,8 +134,22 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     fig.add("RMSE", math.sqrt(ssr / n), f"=SQRT(SUMSQ({R})/{nr})", "num",
             "root mean squared residual (divides by n)")
     sd = math.sqrt(ssr / df) if df > 0 else "n/a"
-    sdr = fig.add("residual SD", sd, f'=IF({nr}>{pr},SQRT(SUMSQ({R})/({nr}-{pr})),"n/a")',
-                  "num", "standard error of the estimate (divides by n − p)")
+    sd_sheet = fig.add("residual SD", sd,
+                       f'=IF({nr}>{pr},SQRT(SUMSQ({R})/({nr}-{pr})),"n/a")', "num",
+                       "standard error of the estimate (divides by n − p), from the residual "
+                       "cells")
+    sd_exact = float(res.resid_sd_) if df > 0 else math.nan
+    agree = ("n/a" if not isinstance(sd, float) else
+             "holds" if abs(sd - sd_exact) <= float(SD_AGREE) * max(sd_exact, 1e-300)
+             or (sd_exact == 0 and sd <= 1e-9 * math.sqrt(sum_y2 / n)) else "fails")
+    sdr = fig.add("residual SD used for ranges", _na(sd_exact), None, "num",
+                  "the same from the exact residuals, computed by sheetfit; standard errors "
+                  "and intervals use it")
+    fig.add(f"check: the two agree (relative difference ≤ {SD_AGREE})", agree,
+            f'=IF(ISNUMBER({sdr}),IF(ABS({sd_sheet}-{sdr})<={SD_AGREE}*MAX({sdr},1E-300),'
+            f'"holds",IF(AND({sdr}=0,{sd_sheet}<=1E-9*SQRT(SUMSQ({Y})/{nr})),"holds","fails")),'
+            '"n/a")', "text", "the residual cells reproduce the exact residual SD")
+    sd = sd_exact if df > 0 else "n/a"
     fig.add("leave-one-out RMSE", d.rows.loo_rmse,
             f'=IF(COUNT({d.press_rng})<{nr},"n/a",SQRT(SUMSQ({d.press_rng})/{nr}))', "num",
             "RMSE when each row is predicted by the fit without it (PRESS): the figure to "

@@ -55,11 +55,6 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
              "leave-one-out residual e/(1−h)", "flags"]
     for k, head in enumerate(heads):
         rs.put(3, c0 + k, head, style="head")
-    rs.note(1, c0, (
-        f"Flags: outlier when |studentized residual| > {STUDENT_LIMIT:g}; influential when "
-        f"Cook's distance > 4/n = {4 / n:.4g}; high leverage when h > 2p/n = {2 * p / n:.4g} "
-        "(common practice). Leverage hᵢ = xᵢᵀ(XᵀX)⁻¹xᵢ, computed by sheetfit; the leverages "
-        "add up to p (check below the last row)."), width=90)
     cook_lim, lev_lim = 4 / n, 2 * p / n
     press: list[float | None] = []
     flags: list[str] = []
@@ -108,6 +103,14 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
     rs.put(last + 2, lev_c - 1, "check (|sum − p| < 1e-9)", style="label")
     rs.put(last + 2, lev_c, "holds" if abs(lev_sum - p) < 1e-9 else "fails",
            f'=IF(ABS({L}{last + 2}-{p})<1E-9,"holds","fails")')
+    rs.note(last + 4, lev_c - 1, (
+        f"Flags: outlier when |studentized residual| > {STUDENT_LIMIT:g}; influential when "
+        f"Cook's distance > 4/n = {4 / n:.4g}; high leverage when h > 2p/n = {2 * p / n:.4g} "
+        "(common practice). Leverage hᵢ = xᵢᵀ(XᵀX)⁻¹xᵢ is computed by sheetfit (QR of the "
+        "design); the leverages add up to p. The studentized residual is e/(s·√(1−h)), "
+        "Cook's distance its square × h/(p·(1−h)), and the leave-one-out residual e/(1−h) "
+        "is what the row's prediction would miss by if the row were left out of the fit."),
+        width=90)
     loo: float | str = "n/a"
     if all(v is not None for v in press):
         loo = math.sqrt(math.fsum(v * v for v in press if v is not None) / n)

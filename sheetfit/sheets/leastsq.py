@@ -132,9 +132,9 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     ssr = fsum_sq(resid)
     df = n - p
     exact = ssr <= float(EXACT_FIT) * fsum_sq(model.Y)
-    sd = math.sqrt(ssr / df) if df > 0 and not exact else None
+    sd = float(res.resid_sd_) if df > 0 and not exact else None
     infl = influence(res)
-    rows = plan_influence(rs, infl, resid, cs.ref(figure_row(p, "residual SD"), 1), sd,
+    rows = plan_influence(rs, infl, resid, cs.ref(figure_row(p, "sd used"), 1), sd,
                           cs.ref(figure_row(p, "exact"), 1), n, p)
 
     # new rows to predict, to the right of the fitted values
@@ -206,18 +206,14 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
             f"one new value: low ({pct})", f"one new value: high ({pct})", "flag"]
     for k, h in enumerate(more):
         fs.put(3, pcol + k, h, style="head")
-    fs.note(2, side, (
-        f"Predictions for the rows declared as new, with the range for the average at these "
-        f"values and the wider range for one new value, at {pct} confidence (formulas: "
-        "prediction ± t multiplier × residual SD × √leverage, or × √(1 + leverage))."),
-        width=110)
+    fs.put(2, side, (f"Predictions for the new rows, with {pct} ranges for the average at "
+                     "these values and, wider, for one new value."), style="note")
     p = len(coef)
     tq_ref = cs.ref(figure_row(p, "t multiplier"), 1)
-    sd_ref = cs.ref(figure_row(p, "residual SD"), 1)
+    sd_ref = cs.ref(figure_row(p, "sd used"), 1)
     df = res.df_resid_
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
-    ssr = fsum_sq(model.Y - _fitted_cached(model, coef, coef_ref, specs, intercept))
-    sd = math.sqrt(ssr / df) if df > 0 else None
+    sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
     for i in range(new.n):
         r = FIRST_ROW + i
@@ -249,14 +245,6 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     names.append((f"sf_{tag}_predlow", fs.col_range(pcol + 4, FIRST_ROW, last_new)))
     names.append((f"sf_{tag}_predhigh", fs.col_range(pcol + 5, FIRST_ROW, last_new)))
     return pcol + 8
-
-
-def _fitted_cached(model: ModelData, coef: np.ndarray, coef_ref: list[str],
-                   specs: list[tuple[int, int]], intercept: bool) -> np.ndarray:
-    """The fitted values as the fitted-value sheet's formulas compute them."""
-    return np.array([_prediction(coef, coef_ref, intercept, specs,
-                                 [c.cell(int(idx)) for c in model.xs], model.X[i])[1]
-                     for i, idx in enumerate(model.used)])
 
 
 def _new_flag(model: ModelData, res: LeastSquaresResult, x: np.ndarray, lev: float,

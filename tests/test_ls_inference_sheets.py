@@ -1,0 +1,144 @@
+"""The least-squares sheets' inference, as LibreOffice recalculates it, against statsmodels.
+
+Reference: statsmodels OLS (test-only) — ``bse``, ``HC3_se``, ``tvalues``, ``pvalues``,
+``conf_int``, ``rsquared_adj``, ``fvalue``, ``f_pvalue``, ``get_influence()``,
+``variance_inflation_factor``, ``het_breuschpagan``, ``get_prediction().summary_frame()``.
+Tolerance 1e-9 relative (1e-12 absolute near 0): the sheet's formulas and statsmodels
+compute the same closed forms in float64 from the same data; p-values 1e-7 absolute
+(LibreOffice's probability functions, docs/engine-facts.md E6).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import python_calamine
+import statsmodels.api as sm
+from books import make_book
+from statsmodels.stats.diagnostic import het_breuschpagan
+from statsmodels.stats.outliers_influence import variance_inflation_factor
+
+from sheetfit.a1 import col_letter
+from sheetfit.owned import sheet_title
+from sheetfit.refresh import refresh
+
+pytestmark = pytest.mark.engine
+
+N, LEVEL = 48, 0.9
+
+
+def _data() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    rng = np.random.default_rng(20261202)
+    X = np.column_stack([rng.uniform(10, 90, N), rng.integers(1, 30, N).astype(float),
+                         rng.uniform(0, 5, N)])
+    X[:, 2] += 0.02 * X[:, 0]  # some overlap between attributes
+    y = 120 + X @ [2.5, -3.0, 14.0] + rng.normal(0, 1, N) * (5 + 0.3 * X[:, 0])
+    y[7] += 150  # one row far off the plane
+    new = np.array([[50.0, 10.0, 2.0], [95.0, 29.0, 4.0], [12.0, 2.0, 0.5]])
+    return np.round(X, 3), np.round(y, 2), new
+
+
+def _rows(path: Path, title: str) -> list[list[object]]:
+    return python_calamine.load_workbook(str(path)).get_sheet_by_name(title).to_python(
+        skip_empty_area=False)
+
+
+def _column(rows, cells, head: str, first: int, count: int) -> np.ndarray:
+    """Recalculated values of a formula column under header ``head`` on row 4."""
+    c = rows[3].index(head)
+    out = [cells[f"{col_letter(c + 1)}{first + k}"].value for k in range(count)]
+    return np.array(out, dtype=float)
+
+
+def _values(rows, head: str, first: int, count: int) -> np.ndarray:
+    """Written values (not formulas) under header ``head`` on row 4."""
+    c = rows[3].index(head)
+    return np.array([rows[first - 1 + k][c] for k in range(count)], dtype=float)
+
+
+def _close(got, want, rel=1e-9, abs_=1e-12) -> None:
+    np.testing.assert_allclose(np.asarray(got, float), np.asarray(want, float), rtol=rel,
+                               atol=abs_)
+
+
+@pytest.fixture(scope="module")
+def book(tmp_path_factory, engine):
+    X, y, new = _data()
+    rows = [["cost", "miles", "crew", "weight"]] + [[float(a)] + [float(v) for v in r]
+                                                  for a, r in zip(y, X)]
+    plan = [["miles", "crew", "weight"]] + new.tolist()
+    path = tmp_path_factory.mktemp("inf") / "b.xlsx"
+    make_book(path, {"Data": rows, "Plan": plan, "Opts": [["level", LEVEL]]}, {
+        "sf_m_y": f"Data!$A$1:$A${N + 1}", "sf_m_x": f"Data!$B$1:$D${N + 1}",
+        "sf_m_new": "Plan!$A$1:$C$4", "sf_m_opts": "Opts!$A$1:$B$1"})
+    refresh(path)
+    fresh = engine.recalculate(path)
+    exog = sm.add_constant(X)
+    ols = sm.OLS(y, exog).fit()
+    return path, fresh, ols, exog, new
+
+
+def test_coefficient_table_matches_statsmodels(book) -> None:
+    path, fresh, ols, exog, _ = book
+    title = sheet_title("m", "coef")
+    rows, cells = _rows(path, title), fresh.sheet(title).cells
+    _close(_column(rows, cells, "standard error", 5, 4), ols.bse)
+    _close(_values(rows, "HC3 standard error (robust)", 5, 4), ols.HC3_se)
+    _close(_column(rows, cells, "t = coefficient / SE", 5, 4), ols.tvalues)
+    _close(_column(rows, cells, "p-value (two-sided)", 5, 4), ols.pvalues, abs_=1e-7)
+    ci = ols.conf_int(alpha=1 - LEVEL)
+    _close(_column(rows, cells, "low end (90%)", 5, 4), ci[:, 0])
+    _close(_column(rows, cells, "high end (90%)", 5, 4), ci[:, 1])
+    vif = [variance_inflation_factor(exog, j) for j in range(1, 4)]
+    _close(_column(rows, cells, "variance inflation", 6, 3), vif)
+    fig = {r[0]: i + 1 for i, r in enumerate(rows) if r and isinstance(r[0], str)}
+    at = lambda label: cells[f"B{fig[label]}"].value
+    _close(at("adjusted R²"), ols.rsquared_adj)
+    _close(at("F statistic"), ols.fvalue)
+    _close(at("p-value of F"), ols.f_pvalue, abs_=1e-7)
+    lm, lm_p, _, _ = het_breuschpagan(ols.resid, exog)
+    _close(float(rows[fig["Breusch–Pagan statistic"] - 1][1]), lm)
+    _close(at("p-value of Breusch–Pagan"), lm_p, abs_=1e-7)
+
+
+def test_row_diagnostics_match_statsmodels(book) -> None:
+    path, fresh, ols, _, _ = book
+    title = sheet_title("m", "resid")
+    rows, cells = _rows(path, title), fresh.sheet(title).cells
+    infl = ols.get_influence()
+    h = infl.hat_matrix_diag
+    _close(_values(rows, "leverage h", 5, N), h)
+    _close(_column(rows, cells, "studentized residual", 5, N), infl.resid_studentized_internal)
+    _close(_column(rows, cells, "Cook's distance", 5, N), infl.cooks_distance[0])
+    _close(_column(rows, cells, "leave-one-out residual e/(1−h)", 5, N),
+           ols.resid / (1 - h), abs_=1e-9)
+    flags = [rows[4 + i][rows[3].index("flags")] for i in range(N)]
+    assert "outlier" in flags[7]  # the row pushed 150 off the plane
+    big = np.flatnonzero(np.abs(infl.resid_studentized_internal) > 3)
+    assert [i for i, f in enumerate(flags) if "outlier" in str(f)] == list(big)
+
+
+def test_new_row_intervals_match_statsmodels(book) -> None:
+    path, fresh, ols, _, new = book
+    title = sheet_title("m", "fitted")
+    rows, cells = _rows(path, title), fresh.sheet(title).cells
+    frame = ols.get_prediction(sm.add_constant(new, has_constant="add")).summary_frame(
+        alpha=1 - LEVEL)
+    _close(_column(rows, cells, "predicted cost", 5, 3), frame["mean"])
+    _close(_column(rows, cells, "average: low (90%)", 5, 3), frame["mean_ci_lower"])
+    _close(_column(rows, cells, "average: high (90%)", 5, 3), frame["mean_ci_upper"])
+    _close(_column(rows, cells, "one new value: low (90%)", 5, 3), frame["obs_ci_lower"])
+    _close(_column(rows, cells, "one new value: high (90%)", 5, 3), frame["obs_ci_upper"])
+    flags = [rows[4 + i][rows[3].index("flag")] for i in range(3)]
+    assert flags[0] == "" and "miles" in flags[1] and "extrapolated" in flags[1]
+
+
+def test_every_new_formula_recalculates_to_its_cached_value(book, engine) -> None:
+    from engine.compare import compare_to_cached
+
+    path = book[0]
+    mismatches = compare_to_cached(path, engine)
+    assert mismatches.checked > 10 * N
+    assert not mismatches, mismatches.report()
