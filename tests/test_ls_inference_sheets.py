@@ -142,3 +142,50 @@ def test_every_new_formula_recalculates_to_its_cached_value(book, engine) -> Non
     mismatches = compare_to_cached(path, engine)
     assert mismatches.checked > 10 * N
     assert not mismatches, mismatches.report()
+
+
+def _anscombe(which: str) -> tuple[list[float], list[float]]:
+    import csv
+
+    xs, ys = [], []
+    with open(Path(__file__).parent / "reference" / "anscombe.csv", newline="") as fh:
+        for row in csv.DictReader(fh):
+            if row["set"] == which:
+                xs.append(float(row["x"]))
+                ys.append(float(row["y"]))
+    return xs, ys
+
+
+@pytest.mark.parametrize("which", ["III", "IV"])
+def test_anscombe_rows_that_drive_the_line_are_flagged(which: str, tmp_path: Path) -> None:
+    """Set III's outlier is the row flagged by Cook's distance; set IV's lone x = 19 has
+    leverage 1 and is flagged, with no leave-one-out quantities.
+
+    Source: Anscombe, F. J. (1973), Graphs in Statistical Analysis, The American
+    Statistician 27(1):17-21 (the data; the line 3.00 + 0.500x and r = 0.816 are printed
+    there, to those digits).
+    """
+    x, y = _anscombe(which)
+    rows = [["y", "x"]] + [[b, a] for a, b in zip(x, y)]
+    path = make_book(tmp_path / "a.xlsx", {"Data": rows},
+                     {"sf_a_y": "Data!$A$1:$A$12", "sf_a_x": "Data!$B$1:$B$12"})
+    refresh(path)
+    coef = _rows(path, sheet_title("a", "coef"))
+    assert round(float(coef[4][1]), 2) == 3.00 and round(float(coef[5][1]), 3) == 0.500
+    rs = _rows(path, sheet_title("a", "resid"))
+    head = rs[3]
+    flags = [str(rs[4 + i][head.index("flags")]) for i in range(11)]
+    lev = [float(rs[4 + i][head.index("leverage h")]) for i in range(11)]
+    cook = [rs[4 + i][head.index("Cook's distance")] for i in range(11)]
+    if which == "III":
+        far = max(range(11), key=lambda i: abs(y[i] - (3.0 + 0.5 * x[i])))
+        assert x[far] == 13.0  # the published outlier, (13, 12.74)
+        assert "influential" in flags[far]
+        assert max(range(11), key=lambda i: float(cook[i])) == far
+        assert float(cook[far]) > 4 / 11
+    else:
+        lone = x.index(19.0)
+        assert lev[lone] == pytest.approx(1.0, abs=1e-12)
+        assert "high leverage" in flags[lone] and cook[lone] == ""
+        fig = {r[0]: r[1] for r in coef if r and isinstance(r[0], str)}
+        assert fig["leave-one-out RMSE"] == "n/a"
