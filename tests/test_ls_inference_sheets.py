@@ -189,3 +189,36 @@ def test_anscombe_rows_that_drive_the_line_are_flagged(which: str, tmp_path: Pat
         assert "high leverage" in flags[lone] and cook[lone] == ""
         fig = {r[0]: r[1] for r in coef if r and isinstance(r[0], str)}
         assert fig["leave-one-out RMSE"] == "n/a"
+
+
+def test_rule_in_use_is_compared_fairly(tmp_path: Path, engine) -> None:
+    """A declared rule (5,000 a month plus 0.45 per km, invented) beside the fit: its RMSE on
+    the same rows as a formula, and the verdict from the fit's leave-one-out RMSE.
+
+    Reference: numpy on the same numbers (the rule's RMSE is a plain mean of squares) and
+    statsmodels' hat diagonal for the leave-one-out residuals e/(1 − h).
+    """
+    rng = np.random.default_rng(7)
+    km = rng.uniform(2000, 9000, 30).round(0)
+    cost = (4200 + 0.52 * km + rng.normal(0, 300, 30)).round(2)
+    rows = [["cost", "km"]] + [[float(c), float(k)] for c, k in zip(cost, km)]
+    path = make_book(tmp_path / "r.xlsx", {"Data": rows, "Rule": [[5000.0], [0.45]]},
+                     {"sf_r_y": "Data!$A$1:$A$31", "sf_r_x": "Data!$B$1:$B$31",
+                      "sf_r_rule": "Rule!$A$1:$A$2"})
+    refresh(path)
+    title = sheet_title("r", "coef")
+    rows_c = _rows(path, title)
+    cells = engine.recalculate(path).sheet(title).cells
+    at = {r[0]: i + 1 for i, r in enumerate(rows_c) if r and isinstance(r[0], str)}
+    rule_rmse = float(np.sqrt(np.mean((cost - (5000 + 0.45 * km)) ** 2)))
+    got = cells[f"B{at['RMSE of the rule on these rows']}"].value
+    assert got == pytest.approx(rule_rmse, rel=1e-12)
+    ols = sm.OLS(cost, sm.add_constant(km)).fit()
+    press = ols.resid / (1 - ols.get_influence().hat_matrix_diag)
+    loo = float(np.sqrt(np.mean(press**2)))
+    assert cells[f"B{at['leave-one-out RMSE of the fit']}"].value == pytest.approx(loo, rel=1e-9)
+    want = "the fit" if loo < rule_rmse else "the rule"
+    assert cells[f"B{at['closer on rows it did not see']}"].value == want
+    from engine.compare import compare_to_cached
+
+    assert not (m := compare_to_cached(path, engine)), m.report()

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from ..declare.model import ModelData
+from ..errors import Context, DataError
 from ..fit.checks import DEGREE_RANGE
-from ..fit.leastsq import LeastSquares, LeastSquaresResult
+from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
 from ..settings import Rule, integer, share, yes_no
 from ..sheets._ls_words import least_squares_cautions
 from ..sheets.leastsq import plan_least_squares
@@ -19,6 +20,22 @@ def _fit(model: ModelData) -> LeastSquaresResult:
     st = model.settings
     est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
     return est.fit(model.X, model.Y, names=model.attribute_names)
+
+
+def _check(model: ModelData) -> None:
+    """A declared rule has one coefficient per term, in the coefficient column's order."""
+    rule = model.rule
+    if rule is None:
+        return
+    st = model.settings
+    degree = int(st["degree"])
+    p = int(bool(st["intercept"])) + (degree if degree > 1 else len(model.xs))
+    if len(rule.values) != p:
+        terms = _term_names(model.attribute_names, bool(st["intercept"]), degree)
+        raise DataError(
+            f"the rule has {len(rule.values)} coefficients but the model has {p} terms "
+            f"({', '.join(terms)})", Context(model.file, rule.name),
+            hint="give one coefficient per term, in that order")
 
 
 def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
@@ -42,6 +59,8 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("level", "a share from 0.5 to 0.999", 0.95, share(0.5, 0.999),
              "confidence level of the coefficient ranges and prediction intervals"),
     ),
+    check=_check,
+    compares_rule=True,
     fit=_fit,
     plan=plan_least_squares,
     figures=_figures,

@@ -23,7 +23,7 @@ from ..a1 import absolute, col_letter
 from ..fit.inference import breusch_pagan, coef_table
 from ..fit.leastsq import LeastSquaresResult
 from ._ls_rows import RowColumns
-from ._ls_words import BP_LEVEL, range_words
+from ._ls_words import BP_LEVEL, number, range_words
 from .common import fsum_sq
 from .plan import SheetPlan
 
@@ -60,6 +60,17 @@ def figure_row(p: int, what: str) -> int:
 (C_TERM, C_COEF, C_WORDS, C_LO, C_HI, C_SE, C_HC3, C_T, C_P, C_VIF, C_COS, C_OK) = range(12)
 
 
+@dataclass(frozen=True)
+class RuleFit:
+    """The rule in use today: its cells and values, its fitted values on the data rows."""
+
+    name: str
+    cells: list[str]
+    values: list[float]
+    fitted_rng: str
+    fitted: np.ndarray
+
+
 @dataclass
 class CoefInputs:
     """What the coefficient sheet reads: the result, the sheets' ranges, cached values."""
@@ -84,6 +95,7 @@ class CoefInputs:
     left_out: int
     range_lines: list[tuple[str, float, float, str]] = field(default_factory=list)
     data_rows: list[int] = field(default_factory=list)
+    rule: RuleFit | None = None
 
 
 def _na(v: float) -> float | str:
@@ -214,6 +226,8 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     row = _plan_range(cs, row, d)
     if one_line:
         row = _plan_high_low(cs, row + 1, d, coef)
+    if d.rule is not None:
+        row = _plan_rule(cs, row + 1, d, coef, fig.refs)
 
     # --- how the numbers were computed (bottom) ----------------------------------------
     inv_cell, row = _plan_matrices(cs, row + 1, d)
@@ -281,6 +295,7 @@ class _Figures:
     def __init__(self, cs: SheetPlan, head_row: int) -> None:
         self.cs, self.row = cs, head_row + 1
         self.first = self.row
+        self.refs: dict[str, tuple[str, object]] = {}
         for c, h in enumerate(["how well it fits", "value", "what it is"]):
             cs.put(head_row, c, h, style="head")
 
@@ -290,6 +305,7 @@ class _Figures:
         self.cs.put(self.row, 1, value, formula, style)  # type: ignore[arg-type]
         self.cs.put(self.row, 2, what, style="note")
         ref = absolute(self.row, 1)
+        self.refs[label] = (ref, value)
         self.row += 1
         return ref
 
@@ -361,6 +377,69 @@ def _plan_high_low(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float]) ->
         cs.put(r0 + k, 1, value, formula, style)  # type: ignore[arg-type]
         cs.put(r0 + k, 2, what, style="note")
     return r0 + len(lines)
+
+
+def _plan_rule(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float],
+               figs: dict[str, tuple[str, object]]) -> int:
+    """The rule in use today beside the least-squares fit: coefficients, RMSE, a verdict."""
+    rule = d.rule
+    if rule is None:
+        raise ValueError("_plan_rule needs a rule")
+    n = d.res.n_
+    for c, h in enumerate(["the rule in use today", "rule", "least squares",
+                           "difference (rule − fit)"]):
+        cs.put(row, c, h, style="head")
+    r = row + 1
+    for k, term in enumerate(d.res.terms_):
+        cs.put(r, 0, term, style="label")
+        cs.put(r, 1, rule.values[k], f"={rule.cells[k]}", "coef")
+        cs.put(r, 2, coef[k], f"={absolute(FIRST_COEF + k, C_COEF)}", "coef")
+        cs.put(r, 3, rule.values[k] - coef[k], f"={absolute(r, 1)}-{absolute(r, 2)}", "coef")
+        r += 1
+    sq = math.fsum((float(a) - float(b)) * (float(a) - float(b))
+                   for a, b in zip(d.Y, rule.fitted))
+    rule_rmse = math.sqrt(sq / n)
+    n_ref = figs["rows used (n)"][0]
+    rmse_ref, rmse = figs["RMSE"]
+    loo_ref, loo = figs["leave-one-out RMSE"]
+    rr = absolute(r, 1)
+    lines: list[tuple[str, object, str | None, str, str]] = [
+        ("RMSE of the rule on these rows", rule_rmse,
+         f"=SQRT(SUMXMY2({d.y_rng},{rule.fitted_rng})/{n_ref})", "num",
+         "the rule was not fitted to these rows, so this is its honest error here"),
+        ("RMSE of the fit on these rows", rmse, f"={rmse_ref}", "num",
+         "least squares minimises this on these rows: in-sample the rule can only tie or lose"),
+        ("leave-one-out RMSE of the fit", loo, f"={loo_ref}", "num",
+         "the fair comparison: each row predicted by the fit without it"),
+    ]
+    loo_v = float(loo) if isinstance(loo, float) else math.nan
+    fair = math.isfinite(loo_v)
+    closer = ("n/a" if not fair else "the fit" if loo_v < rule_rmse
+              else "the rule" if loo_v > rule_rmse else "neither")
+    gap = rule_rmse - loo_v
+    lr = absolute(r + 2, 1)
+    lines.append(("closer on rows it did not see", closer,
+                  (f'=IF(ISNUMBER({lr}),IF({lr}<{rr},"the fit",IF({lr}>{rr},"the rule",'
+                   '"neither")),"n/a")'), "text",
+                  "leave-one-out RMSE of the fit against the rule's"))
+    lines.append(("by (rule RMSE − fit leave-one-out RMSE)", gap if fair else "n/a",
+                  f'=IF(ISNUMBER({lr}),{rr}-{lr},"n/a")', "num",
+                  "positive: the fit predicts better than the rule"))
+    for k, (label, value, formula, style, what) in enumerate(lines):
+        cs.put(r + k, 0, label, style="label")
+        cs.put(r + k, 1, value, formula, style)  # type: ignore[arg-type]
+        cs.put(r + k, 2, what, style="note")
+    r += len(lines)
+    if fair:
+        share = gap / rule_rmse if rule_rmse else math.nan
+        verdict = (f"the fit is closer by {number(gap)} ({share:.0%})." if closer == "the fit"
+                   else f"the rule is closer by {number(-gap)}." if closer == "the rule"
+                   else "they tie.")
+        text = (f"On these {n} rows the rule's RMSE is {number(rule_rmse)}; the fit's "
+                f"leave-one-out RMSE is {number(loo_v)}: {verdict}")
+        cs.put(r, 0, text, style="note")
+        r += 1
+    return r
 
 
 def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-untyped-def]

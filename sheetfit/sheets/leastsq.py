@@ -24,6 +24,7 @@ from ._ls_coef import (
     EXACT_FIT,
     FIRST_COEF,
     CoefInputs,
+    RuleFit,
     figure_row,
     plan_coef_sheet,
 )
@@ -119,6 +120,9 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         fs.put(r, fit_col, value, formula, "num")
     fs.widths = {0: 9, fit_col: 16}
     fs.freeze = (FIRST_ROW, 1)
+    rule_fit: RuleFit | None = None
+    if model.rule is not None:
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last)
     term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
@@ -139,7 +143,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
 
     # new rows to predict, to the right of the fitted values
     names: list[tuple[str, str]] = []
-    side = fit_col + 2
+    side = fit_col + (3 if rule_fit is not None else 2)
     if model.new is not None:
         side = _plan_new(fs, model, fitted_, coef, coef_ref, specs, intercept, side, names,
                          level, cs, infl)
@@ -154,7 +158,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         term_rngs=term_rngs, press_rng=rs.col_range(rows.press_col, FIRST_ROW, last),
         rows=rows, method_note=res.method_note_, version=version,
         cautions=least_squares_cautions(res) + fitted_.cautions, left_out=len(model.left_out),
-        range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used])
+        range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
+        rule=rule_fit)
     coef_rng = plan_coef_sheet(cs, d_in)
     names = [
         (f"sf_{tag}_coef", coef_rng if "!" in coef_rng else f"{_q(cs.title)}!{coef_rng}"),
@@ -172,6 +177,24 @@ def _q(title: str) -> str:
 
 def _col_abs(col: int, r1: int, r2: int) -> str:
     return f"{absolute(r1, col)}:{absolute(r2, col)}"
+
+
+def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
+                      intercept: bool, col: int, last: int) -> RuleFit:
+    """The rule in use today, applied to every data row (its coefficients × the data)."""
+    rule = model.rule
+    if rule is None:
+        raise ValueError("_plan_rule_column needs a declared rule")
+    fs.put(3, col, "rule in use: fitted", style="head")
+    values = np.empty(len(model.used))
+    for i, idx in enumerate(model.used):
+        formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
+                                        [c.cell(int(idx)) for c in model.xs], model.X[i])
+        values[i] = value
+        fs.put(FIRST_ROW + i, col, value, formula, "num")
+    fs.widths[col] = 16
+    return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
+                   fs.col_range(col, FIRST_ROW, last), values)
 
 
 def put_keys(sheet: SheetPlan, r: int, col: int, keys: Keys, i: int) -> None:
