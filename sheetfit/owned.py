@@ -54,6 +54,7 @@ SHEET_KINDS = {
     "nbrs": "nbrs",
     "summary": "summary",
     "strip": "strip",
+    "audit": "audit",
 }
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.

@@ -21,6 +21,7 @@ __all__ = [
     "Rule",
     "Settings",
     "all_rules",
+    "amount_or_sd",
     "choice",
     "integer",
     "k_value",
@@ -79,6 +80,18 @@ def share(lo: float, hi: float) -> Callable[[Any], float]:
         return value
 
     return parse
+
+
+def amount_or_sd(raw: Any) -> tuple[str, float]:
+    """An amount ("250") or a multiple of the residual SD ("2 sd"): ("amount"|"sd", value)."""
+    text = str(raw).strip().lower()
+    kind = "amount"
+    if text.endswith("sd"):
+        kind, text = "sd", text[:-2].strip().rstrip("×*x").strip()
+    value = float(text.replace(",", "")) if isinstance(raw, str) or kind == "sd" else float(raw)
+    if not (math.isfinite(value) and value > 0):
+        raise ValueError
+    return kind, value
 
 
 def choice(options: tuple[str, ...]) -> Callable[[Any], str]:

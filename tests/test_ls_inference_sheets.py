@@ -222,3 +222,60 @@ def test_rule_in_use_is_compared_fairly(tmp_path: Path, engine) -> None:
     from engine.compare import compare_to_cached
 
     assert not (m := compare_to_cached(path, engine)), m.report()
+
+
+def test_audit_sheet_lists_rows_beyond_threshold_and_keeps_notes(tmp_path: Path,
+                                                                 engine) -> None:
+    """Rows with |actual − fitted| > 2 residual SD are listed by identity; notes typed by the
+    auditor survive a refresh, beside the same row, even after rows are inserted above.
+
+    Reference: statsmodels residuals and residual SD (sqrt(scale)) choose the listed rows.
+    """
+    import openpyxl
+    from engine.compare import compare_to_cached
+
+    rng = np.random.default_rng(31)
+    n = 40
+    units = rng.uniform(100, 900, n).round(0)
+    cost = (800 + 3.1 * units + rng.normal(0, 60, n)).round(2)
+    cost[[5, 22]] += [600, -550]
+    invoices = [f"INV-{1000 + i}" for i in range(n)]
+    rows = [["invoice", "cost", "units"]] + [[v, float(c), float(u)]
+                                             for v, c, u in zip(invoices, cost, units)]
+    names = {"sf_q_y": "Data!$B:$B", "sf_q_x": "Data!$C:$C", "sf_q_key": "Data!$A:$A",
+             "sf_q_opts": "Opts!$A$1:$B$1"}
+    path = make_book(tmp_path / "q.xlsx", {"Data": rows, "Opts": [["threshold", "2 sd"]]}, names)
+    refresh(path)
+    ols = sm.OLS(cost, sm.add_constant(units)).fit()
+    beyond = [invoices[i] for i in np.flatnonzero(np.abs(ols.resid) > 2 * np.sqrt(ols.scale))]
+    assert "INV-1005" in beyond and "INV-1022" in beyond
+    title = sheet_title("q", "audit")
+    sheet = _rows(path, title)
+    listed = [r[0] for r in sheet[4:] if str(r[0]).startswith("INV-")]
+    assert listed == beyond
+    assert not (m := compare_to_cached(path, engine)), m.report()
+
+    # the auditor types notes, then two rows are inserted at the top of the data
+    wb = openpyxl.load_workbook(path)
+    ws = wb[title]
+    head = [c.value for c in ws[4]]
+    at = {r[0].value: r[0].row for r in ws.iter_rows(min_row=5) if r[0].value}
+    ws.cell(at["INV-1022"], head.index("explanation") + 1, "credit note posted twice")
+    ws.cell(at["INV-1022"], head.index("conclusion") + 1, "corrected in December")
+    wb.save(path)
+    rows2 = [rows[0], ["INV-0998", 1500.0, 230.0], ["INV-0999", 2100.0, 420.0]] + rows[1:]
+    wb = openpyxl.load_workbook(path)
+    data = wb["Data"]
+    data.insert_rows(2, 2)
+    for j, v in enumerate(rows2[1]):
+        data.cell(2, j + 1, v)
+    for j, v in enumerate(rows2[2]):
+        data.cell(3, j + 1, v)
+    wb.save(path)
+    refresh(path)
+    sheet = _rows(path, title)
+    where = {r[0]: r for r in sheet[4:] if r and r[0]}
+    row = where["INV-1022"]
+    assert row[sheet[3].index("explanation")] == "credit note posted twice"
+    assert row[sheet[3].index("conclusion")] == "corrected in December"
+    assert row[sheet[3].index("data row")] == 26  # moved down by the two inserted rows

@@ -140,6 +140,9 @@ class ModelData:
     names: dict[str, str] = field(default_factory=dict)
     keys: Keys | None = None
     rule: RuleCells | None = None
+    #: What people typed on this model's owned sheets at the last refresh, to be written
+    #: back (by sheet kind, then row identity): filled by the refresh, not a declaration.
+    kept: dict[str, dict[str, list[str | float]]] = field(default_factory=dict)
 
     @property
     def attribute_names(self) -> list[str]:

@@ -6,7 +6,7 @@ from ..declare.model import ModelData
 from ..errors import Context, DataError
 from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
-from ..settings import Rule, integer, share, yes_no
+from ..settings import Rule, amount_or_sd, integer, share, yes_no
 from ..sheets._ls_words import least_squares_cautions
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
@@ -58,6 +58,9 @@ METHOD: Method[LeastSquaresResult] = Method(
              "polynomial degree in the one attribute (2 adds x^2, ...)"),
         Rule("level", "a share from 0.5 to 0.999", 0.95, share(0.5, 0.999),
              "confidence level of the coefficient ranges and prediction intervals"),
+        Rule("threshold", "an amount (250) or a multiple of the residual SD (2 sd)", None,
+             amount_or_sd, "audit: list the rows whose actual differs from the fitted value "
+             "by more than this, on an audit sheet"),
     ),
     check=_check,
     compares_rule=True,

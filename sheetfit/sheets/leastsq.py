@@ -17,6 +17,7 @@ from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
 from ..owned import sheet_title
+from ._ls_audit import Threshold, audit_caution, plan_audit
 from ._ls_coef import (
     C_COEF,
     C_HC3,
@@ -160,6 +161,9 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         cautions=least_squares_cautions(res) + fitted_.cautions, left_out=len(model.left_out),
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
         rule=rule_fit)
+    audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level)
+    if audit is not None and audit[1]:
+        d_in.cautions.append(audit[1])
     coef_rng = plan_coef_sheet(cs, d_in)
     names = [
         (f"sf_{tag}_coef", coef_rng if "!" in coef_rng else f"{_q(cs.title)}!{coef_rng}"),
@@ -168,7 +172,30 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
         (f"sf_{tag}_resid", resid_rng),
     ] + names
-    return Planned([cs, fs, rs], names)
+    return Planned([cs, fs, rs] + ([audit[0]] if audit is not None else []), names)
+
+
+def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_col: int,
+                fit_col: int, fitted: np.ndarray, cs: SheetPlan,
+                level: float) -> tuple[SheetPlan, str | None] | None:
+    """The audit sheet when a threshold is set, and its caution (or None)."""
+    setting = model.settings.values.get("threshold")
+    if setting is None:
+        return None
+    kind, value = setting
+    threshold = Threshold(float(value), kind == "sd")
+    n, p = res.n_, res.p_
+    df = res.df_resid_
+    sd = float(res.resid_sd_) if df > 0 else None
+    tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else math.nan
+    half = tq * sd * math.sqrt(1 + p / n) if sd is not None else math.nan
+    rows = range(len(model.used))
+    sheet = plan_audit(
+        model, [fs.ref(FIRST_ROW + i, obs_col, fixed=False) for i in rows],
+        [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], fitted, threshold,
+        cs.ref(figure_row(p, "sd used"), 1), sd, half, level)
+    thr = threshold.value * sd if threshold.per_sd and sd is not None else threshold.value
+    return sheet, audit_caution(thr, half, level)
 
 
 def _q(title: str) -> str:
