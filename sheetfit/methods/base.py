@@ -52,3 +52,5 @@ class Method(Generic[R]):
     #: Numeric forecasts of the new rows (``Forecasts``) at a level such as 0.95, from the
     #: result and its predictions; None for a method whose forecasts are not numbers.
     forecasts: Callable[[ModelData, R, Any, float], Forecasts] | None = None
+    #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
+    compares_rule: bool = False
