@@ -17,10 +17,12 @@ computes it again from the book and compares. The recipe (also in the README):
    run together.
 4. **Fingerprint.** The first 16 hex digits of SHA-256 of the lines
    ``sheetfit inputs 1``, ``model <name>``, one ``<role> <range digest>`` per declared
-   role in the order y, x, new, opts, key, newkey, and ``settings <list>``, where the list
+   role in the order y, x, new, opts, key, newkey, rule, and ``settings <list>``, where the list
    is the method's settings as used, ``name=value`` joined by ``;`` in the order
-   ``method`` then the method's own settings (yes/no for switches, ``auto`` for an unset
-   k, numbers as in step 1, text as it is); each line ends in a line feed.
+   ``method`` then the method's own settings in its record's order (yes/no for switches,
+   nothing after ``=`` for a setting without a value such as an automatic k, numbers as
+   in step 1, a threshold as ``sd 2.0`` or ``amount 250.0``, text as it is); each line
+   ends in a line feed.
 """
 
 from __future__ import annotations
@@ -133,9 +135,11 @@ def _setting_word(v: Any) -> str:
     if isinstance(v, bool):
         return "yes" if v else "no"
     if v is None:
-        return "auto"
+        return ""
     if isinstance(v, float):
         return repr(v)
+    if isinstance(v, tuple):
+        return " ".join(_setting_word(p) for p in v)
     return str(v)
 
 

@@ -47,9 +47,11 @@ def _setting(v: Any) -> str:
     if isinstance(v, bool):
         return "yes" if v else "no"
     if v is None:
-        return "auto"
+        return "not set"
     if isinstance(v, float):
         return f"{v:g}"
+    if isinstance(v, tuple):
+        return " ".join(_setting(p) for p in v)
     return str(v)
 
 

@@ -29,10 +29,11 @@ _HEADS = ["model", "role", "defined name", "range (or settings as used)", "cells
 def plan_inputs(records: Sequence[InputRecord]) -> SheetPlan:
     s = SheetPlan(INPUTS_SHEET)
     s.put(0, 0, "sheetfit — the inputs each model was last fitted from", style="title")
-    s.note(1, 0, "One row per declared range: its cells' digests as read at the last refresh. "
-           "'sheetfit check BOOK' reads the ranges again and names the ones that changed. "
-           "The recipe is in sheetfit's README (section 'Checking a book'). Replaced on "
-           "every refresh; do not edit.")
+    s.put(1, 0, ("One row per declared range: its cells' digests as read at the last refresh; "
+                 "'sheetfit check BOOK' reads the ranges again and names the ones that changed."),
+          style="note")
+    s.put(2, 0, ("The recipe is in sheetfit's README (section 'Checking a book'). Replaced on "
+                 "every refresh; do not edit."), style="note")
     for c, h in enumerate(_HEADS):
         s.put(FIRST_ROW - 2, c, h, style="head")
     r = FIRST_ROW - 1
