@@ -70,16 +70,17 @@ class RangeChange:
     cells: list[str] = field(default_factory=list)
 
     def text(self) -> str:
-        parts = [f"{n} {w}" for n, w in ((self.changed, "changed"), (self.added, "added"),
-                                         (self.removed, "removed")) if n]
-        where = f" ({', '.join(self.cells)}{', …' if self.changed + self.added > len(self.cells) else ''})" \
-            if self.cells else ""
-        what = "; ".join(parts) if parts else "the range moved"
-        return f"{self.name} ({self.range}): {what} {'cell' if self._n == 1 else 'cells'}{where}"
-
-    @property
-    def _n(self) -> int:
-        return self.changed + self.added + self.removed
+        counts = [(n, w) for n, w in ((self.changed, "changed"), (self.added, "added"),
+                                      (self.removed, "removed")) if n]
+        if counts:
+            (n, w), rest = counts[0], counts[1:]
+            what = ", ".join([f"{n} {'cell' if n == 1 else 'cells'} {w}"]
+                             + [f"{m} {v}" for m, v in rest])
+        else:
+            what = "the range moved"
+        more = ", …" if self.changed + self.added > len(self.cells) else ""
+        where = f" ({', '.join(self.cells)}{more})" if self.cells else ""
+        return f"{self.name} ({self.range}): {what}{where}"
 
 
 @dataclass

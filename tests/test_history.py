@@ -273,7 +273,16 @@ def test_the_register_keeps_only_the_newest_forecasts(tmp_path: Path, monkeypatc
     monkeypatch.setattr(forecasts_mod, "REGISTER_CAP", 4)
     p = _book(tmp_path)
     refresh(p)
-    refresh(p)
-    reg = _rows(p, FORECAST_SHEET)
-    head = next(i for i, r in enumerate(reg) if r[0] == "forecast made (UTC)")
-    assert len([r for r in reg[head + 1:] if r[0]]) == 4
+    refresh(p)  # the same forecasts, still open: not registered twice
+
+    def register_rows() -> list[list[object]]:
+        reg = _rows(p, FORECAST_SHEET)
+        head = next(i for i, r in enumerate(reg) if r[0] == "forecast made (UTC)")
+        return [r for r in reg[head + 1:] if r[0]]
+
+    assert [r[2] for r in register_rows()] == ["2026-01", "2026-02", "2026-03"]
+    _append(p, [], plan=[[_month(i), _units(i) + 1.0] for i in (12, 13, 14)])
+    refresh(p)  # three new forecasts of the same months: six in all, the newest four kept
+    rows = register_rows()
+    assert [r[2] for r in rows] == ["2026-03", "2026-01", "2026-02", "2026-03"]
+    assert rows[0][3] != rows[3][3]

@@ -113,6 +113,7 @@ def register(previous: list[Forecast], entries: list[tuple[ModelData, Any]],
         actuals = by_tag.get(f.model.casefold(), {})
         if f.actual is None and f.identifier in actuals:
             f.actual, f.known = actuals[f.identifier], stamp
+    open_ = {(f.model.casefold(), f.identifier, f.forecast) for f in rows if f.actual is None}
     for model, fc in entries:
         if fc is None or model.new is None or model.new.keys is None:
             continue
@@ -122,6 +123,8 @@ def register(previous: list[Forecast], entries: list[tuple[ModelData, Any]],
             value = float(point[i])
             if not key.strip(" /") or not math.isfinite(value):
                 continue
+            if (model.tag.casefold(), key, value) in open_:
+                continue  # the same forecast, still open: a repeated refresh adds nothing
             low = float(lo[i]) if lo is not None and np.isfinite(lo[i]) else None
             high = float(hi[i]) if hi is not None and np.isfinite(hi[i]) else None
             rows.append(Forecast(stamp, model.tag, key, value, low, high,
