@@ -92,7 +92,8 @@ class Edit:
     what: str
 
     def text(self) -> str:
-        return f"{quote_sheet(self.sheet)}!{self.cell}: {self.what}"
+        where = quote_sheet(self.sheet) + (f"!{self.cell}" if self.cell else "")
+        return f"{where}: {self.what}"
 
 
 @dataclass
