@@ -28,6 +28,7 @@ from typing import Any
 
 from . import __version__
 from .a1 import cell_ref, col_index, quote_sheet
+from .carry import read_kept
 from .declare.fingerprint import InputRecord, RangeRecord, cell_addresses
 from .declare.model import ModelData, find_models
 from .declare.refs import RefError, parse_areas
@@ -161,6 +162,8 @@ def check(book: str | Path) -> BookCheck:
         pkg = open_package(source)
         with _values(pkg, source) as values:
             models = find_models(pkg, values, file, REGISTRY)
+            for m in models:  # notes people typed on owned sheets belong in the fresh plan
+                m.kept = read_kept(values, m.tag)
             owned = {s.name: s.part for s in pkg.owned_sheets() if s.is_worksheet}
             stored = read_inputs(values) if INPUTS_SHEET in owned else {}
             index = _read_index(values) if INDEX_SHEET in owned else {}

@@ -286,3 +286,30 @@ def test_formula_scan_and_parse_agree(book: str, tmp_path: Path) -> None:
             data = z.read(n)
             scanned = _scan(data)
             assert scanned is not None and scanned == _parse(io.BytesIO(data)), n
+
+
+def test_notes_typed_on_the_audit_sheet_are_not_edits(tmp_path: Path) -> None:
+    """A note typed in the audit sheet's columns for people keeps the model current."""
+    rows = _rows()
+    rows[4][0] = 400.0  # one row far off the line, so the audit sheet lists it
+    p = make_book(tmp_path / "au.xlsx", {"Data": rows, "Opts": [["threshold", "2 sd"]]},
+                  {"sf_a_y": "Data!$A$1:$A$11", "sf_a_x": "Data!$B$1:$B$11",
+                   "sf_a_opts": "Opts!$A$1:$B$1"})
+    refresh(p)
+    audit = sheet_title("a", "audit")
+    grid = python_calamine_rows(p, audit)
+    heads = grid[3]
+    listed = next(i for i, r in enumerate(grid[4:], start=5) if r[0] != "")
+    col = "ABCDEFGHIJKLMNOPQRSTUVWXYZ"[heads.index("explanation")]
+    out = edit_in_libreoffice(p, tmp_path / "noted.xlsx",
+                              [(audit, f"{col}{listed}", "invoice posted twice; reversed in May")])
+    assert [m.status for m in check(out).models] == [CURRENT]
+    refresh(out)
+    assert [m.status for m in check(out).models] == [CURRENT]
+
+
+def python_calamine_rows(path: Path, title: str) -> list[list[object]]:
+    import python_calamine
+
+    return python_calamine.load_workbook(str(path)).get_sheet_by_name(title).to_python(
+        skip_empty_area=False)
