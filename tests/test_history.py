@@ -286,3 +286,26 @@ def test_the_register_keeps_only_the_newest_forecasts(tmp_path: Path, monkeypatc
     rows = register_rows()
     assert [r[2] for r in rows] == ["2026-03", "2026-01", "2026-02", "2026-03"]
     assert rows[0][3] != rows[3][3]
+
+
+def test_outcome_sentences_in_words() -> None:
+    """The sentence for mixed, missing and single intervals, worked by hand."""
+    from sheetfit.history.forecasts import Forecast, Outcomes
+
+    def f(forecast: float, actual: float, lo: float | None = None, hi: float | None = None,
+          level: float | None = None) -> Forecast:
+        return Forecast("t", "m", "id", forecast, lo, hi, level, "t2", actual)
+
+    # errors (100 − 90) / 100 = +10 % and (50 − 55) / 50 = −10 %: mean 0; 50 is below [52, 60]
+    both = Outcomes("m", [f(90.0, 100.0, 80.0, 120.0, 0.9), f(55.0, 50.0, 52.0, 60.0, 0.9)])
+    assert both.sentence() == ("Of 2 forecasts now known, 1 fell inside their 90 % interval; "
+                               "the average error was +0.0 %.")
+    mixed = Outcomes("m", [f(90.0, 100.0, 80.0, 120.0, 0.95), f(100.0, 110.0)])
+    # errors: +10/100 = +10 %, +10/110 = +9.0909 %: mean +9.5 %
+    assert mixed.sentence() == ("Of 2 forecasts now known, 1 had a recorded 95 % interval and "
+                                "1 of those fell inside it; the average error was +9.5 % "
+                                "(actuals above the forecasts).")
+    none = Outcomes("m", [f(120.0, 100.0)])
+    assert none.sentence() == ("Of 1 forecast now known, none had a recorded interval; the "
+                               "average error was -20.0 % (actuals below the forecasts).")
+    assert Outcomes("m", []).sentence() == ""

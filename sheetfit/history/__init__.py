@@ -20,7 +20,7 @@ from ..reader.values import BookValues
 from ..sheets.plan import SheetPlan
 from ..summary import ModelSummary
 from .about import UserCells, plan_about, read_about
-from .forecasts import LEVEL, Forecast, outcomes, plan_forecasts, read_forecasts, register
+from .forecasts import Forecast, outcomes, plan_forecasts, read_forecasts, register
 from .inputs import plan_inputs
 from .log import LogRow, log_rows, plan_log, read_log
 
@@ -75,7 +75,7 @@ def plan_history(fits: list[tuple[ModelData, Fitted[Any]]], summaries: list[Mode
         entries.append((model, method.title, figures))
         fc = None
         if method.forecasts is not None and fitted.new is not None:
-            fc = method.forecasts(model, fitted.result, fitted.new, LEVEL)
+            fc = method.forecasts(model, fitted.result, fitted.new)
         forecast_entries.append((model, fc))
     log = log_rows(before.log, entries, stamp, version)
     register_rows = register(before.forecasts, forecast_entries, stamp)

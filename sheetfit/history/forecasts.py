@@ -3,8 +3,8 @@ turned out once a later refresh finds the actual value among the data rows.
 
 A refresh registers each new row of a model that declares identifiers for its new rows
 (``newkey``) and whose method gives numeric forecasts: when (UTC), model, identifier,
-forecast, and the prediction interval for one new value at ``LEVEL`` when the method
-gives one. A later refresh that finds the identifier among the model's used data rows
+forecast, and the prediction interval for one new value with its level when the method
+gives one (least squares: at the model's ``level`` setting). A later refresh that finds the identifier among the model's used data rows
 records the actual value there, once; the sheet then shows error = actual − forecast,
 error % = error / |actual|, and whether the actual fell inside the interval, as formulas.
 Rows are carried forward like the log, the newest ``REGISTER_CAP`` kept.
@@ -26,11 +26,9 @@ from ..sheets.plan import SheetPlan
 from ._grid import Plain, read_rows
 from .log import key_text
 
-__all__ = ["LEVEL", "REGISTER_CAP", "Forecast", "Outcomes", "outcomes", "plan_forecasts",
+__all__ = ["REGISTER_CAP", "Forecast", "Outcomes", "outcomes", "plan_forecasts",
            "read_forecasts", "register"]
 
-#: Level of the prediction intervals recorded with forecasts.
-LEVEL = 0.95
 #: Forecasts the register keeps: the newest, oldest dropped first.
 REGISTER_CAP = 500
 _HEADS = ["forecast made (UTC)", "model", "identifier", "forecast", "interval low",
@@ -117,7 +115,7 @@ def register(previous: list[Forecast], entries: list[tuple[ModelData, Any]],
     for model, fc in entries:
         if fc is None or model.new is None or model.new.keys is None:
             continue
-        point, lo, hi = fc
+        point, lo, hi, level = fc
         for i in range(model.new.n):
             key = key_text(model.new.keys.row(i))
             value = float(point[i])
@@ -128,7 +126,7 @@ def register(previous: list[Forecast], entries: list[tuple[ModelData, Any]],
             low = float(lo[i]) if lo is not None and np.isfinite(lo[i]) else None
             high = float(hi[i]) if hi is not None and np.isfinite(hi[i]) else None
             rows.append(Forecast(stamp, model.tag, key, value, low, high,
-                                 LEVEL if low is not None else None))
+                                 level if low is not None else None))
     return rows[-REGISTER_CAP:]
 
 
@@ -146,20 +144,21 @@ class Outcomes:
         what = f"Of {n} forecast{'s' if n != 1 else ''} now known, "
         with_iv = [f for f in self.known if f.inside is not None]
         inside = sum(1 for f in with_iv if f.inside)
-        level = f"{100 * LEVEL:g} %"
+        levels = {f.level for f in with_iv if f.level is not None}
+        level = f"{100 * levels.pop():g} %" if len(levels) == 1 else "recorded"
         if not with_iv:
             what += "none had a recorded interval"
         elif len(with_iv) == n:
             what += f"{_count(inside, n)} fell inside {'its' if n == 1 else 'their'} {level} interval"
         else:
-            what += (f"{len(with_iv)} had a recorded {level} interval and {_count(inside, n)} "
-                     "of those fell inside it")
+            what += (f"{len(with_iv)} had a recorded {level} interval and "
+                     f"{_count(inside, len(with_iv))} of those fell inside it")
         pct = [f.error_pct for f in self.known if f.error_pct is not None]
         if pct:
             avg = 100 * float(np.mean(pct))
-            what += (f"; the average error was {avg:+.1f} % "
-                     f"({'actuals above' if avg > 0 else 'actuals below' if avg < 0 else 'no bias against'} "
-                     "the forecasts)")
+            what += f"; the average error was {avg:+.1f} %"
+            if round(avg, 1) != 0:
+                what += f" (actuals {'above' if avg > 0 else 'below'} the forecasts)"
         return what + "."
 
 

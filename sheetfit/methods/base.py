@@ -21,8 +21,9 @@ from ..sheets.plan import Planned
 __all__ = ["Fitted", "Forecasts", "Method", "R"]
 
 #: Forecasts of a model's new rows: the point forecasts and, when the method gives one,
-#: the low and high ends of a prediction interval for one new value (else None, None).
-Forecasts = tuple[np.ndarray, np.ndarray | None, np.ndarray | None]
+#: the low and high ends of a prediction interval for one new value and its level (else
+#: None, None, None).
+Forecasts = tuple[np.ndarray, np.ndarray | None, np.ndarray | None, float | None]
 
 @dataclass(frozen=True)
 class Method(Generic[R]):
@@ -49,8 +50,8 @@ class Method(Generic[R]):
     #: The figures the refresh log follows from one refresh to the next, as
     #: (name, number) pairs; None when the method has none.
     key_figures: Callable[[ModelData, R], list[tuple[str, float]]] | None = None
-    #: Numeric forecasts of the new rows (``Forecasts``) at a level such as 0.95, from the
-    #: result and its predictions; None for a method whose forecasts are not numbers.
-    forecasts: Callable[[ModelData, R, Any, float], Forecasts] | None = None
+    #: Numeric forecasts of the new rows (``Forecasts``), from the result and its
+    #: predictions; None for a method whose forecasts are not numbers.
+    forecasts: Callable[[ModelData, R, Any], Forecasts] | None = None
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False

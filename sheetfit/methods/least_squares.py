@@ -55,14 +55,15 @@ def _key_figures(model: ModelData, res: LeastSquaresResult) -> list[tuple[str, f
     return [(str(t), float(c)) for t, c in zip(res.terms_, res.coef_)]
 
 
-def _forecasts(model: ModelData, res: LeastSquaresResult, new: object,
-               level: float) -> Forecasts:
-    """The predictions and, with residual degrees of freedom left, the prediction interval."""
+def _forecasts(model: ModelData, res: LeastSquaresResult, new: object) -> Forecasts:
+    """The predictions and, with residual degrees of freedom left, the prediction interval
+    for one new value at the model's level (the interval the result sheets show)."""
     point = np.asarray(new, dtype=float)
     if model.new is None or res.df_resid_ < 1:
-        return point, None, None
+        return point, None, None, None
+    level = float(model.settings["level"])
     iv = intervals(res, model.new.X, level)
-    return point, np.asarray(iv.obs_lo), np.asarray(iv.obs_hi)
+    return point, np.asarray(iv.obs_lo), np.asarray(iv.obs_hi), level
 
 
 METHOD: Method[LeastSquaresResult] = Method(

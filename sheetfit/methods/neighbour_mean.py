@@ -27,11 +27,10 @@ def _key_figures(model: ModelData, res: NeighbourMeanResult) -> list[tuple[str, 
     return [("k", float(res.k_)), ("leave-one-out RMSE", float(res.rmse_))]
 
 
-def _forecasts(model: ModelData, res: NeighbourMeanResult, new: object,
-               level: float) -> Forecasts:
+def _forecasts(model: ModelData, res: NeighbourMeanResult, new: object) -> Forecasts:
     if not isinstance(new, MeanPrediction):
         raise TypeError(f"neighbour-mean forecasts need a MeanPrediction, not {type(new)}")
-    return np.asarray(new.value, dtype=float), None, None
+    return np.asarray(new.value, dtype=float), None, None, None
 
 
 METHOD: Method[NeighbourMeanResult] = Method(

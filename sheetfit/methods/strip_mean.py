@@ -38,8 +38,8 @@ def _key_figures(model: ModelData, res: StripMeanResult) -> list[tuple[str, floa
     return [("width", float(model.settings["width"])), ("leave-one-out RMSE", float(res.rmse_))]
 
 
-def _forecasts(model: ModelData, res: StripMeanResult, new: object, level: float) -> Forecasts:
-    return np.asarray(new, dtype=float), None, None
+def _forecasts(model: ModelData, res: StripMeanResult, new: object) -> Forecasts:
+    return np.asarray(new, dtype=float), None, None, None
 
 
 METHOD: Method[StripMeanResult] = Method(
