@@ -313,3 +313,19 @@ def python_calamine_rows(path: Path, title: str) -> list[list[object]]:
 
     return python_calamine.load_workbook(str(path)).get_sheet_by_name(title).to_python(
         skip_empty_area=False)
+
+
+def test_a_book_refreshed_without_input_records_is_stale_with_a_note(tmp_path: Path,
+                                                                     monkeypatch) -> None:
+    """A refresh that kept no input record (as earlier versions did) cannot be traced."""
+    from sheetfit import history
+
+    real = history.plan_inputs
+    monkeypatch.setattr(history, "plan_inputs", lambda records: real([]))
+    p = _book(tmp_path)
+    monkeypatch.undo()
+    found = check(p)
+    assert [m.status for m in found.models] == [STALE, STALE]
+    assert all("without an input record" in m.notes[0] for m in found.models)
+    refresh(p)
+    assert [m.status for m in check(p).models] == [CURRENT, CURRENT]
