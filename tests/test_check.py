@@ -329,3 +329,14 @@ def test_a_book_refreshed_without_input_records_is_stale_with_a_note(tmp_path: P
     assert all("without an input record" in m.notes[0] for m in found.models)
     refresh(p)
     assert [m.status for m in check(p).models] == [CURRENT, CURRENT]
+
+
+@pytest.mark.parametrize("book", ["delivery_costs", "field_jobs", "open_invoices"])
+def test_example_books_stay_current_after_a_libreoffice_resave(book: str, tmp_path: Path) -> None:
+    """Every method's result sheets, saved again by LibreOffice, still check as current."""
+    p = tmp_path / f"{book}.xlsx"
+    refresh(Path(__file__).resolve().parents[1] / "example_books" / f"{book}.xlsx", p)
+    assert check(p).exit_status == 0
+    saved = soffice_convert(p, tmp_path / "lo")
+    found = check(saved)
+    assert found.exit_status == 0, found.text()
