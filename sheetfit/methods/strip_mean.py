@@ -47,12 +47,12 @@ def _cautions(model: ModelData, res: StripMeanResult) -> list[str]:
 
 #: What a strip mean is, and how to read it (on its own sheets and the index).
 STANDING = (
-    "A strip mean describes the data between the smallest and largest attribute values "
-    "seen; beyond them it repeats the end strip's mean.",
-    "The residuals and the RMSE are leave-one-out: each row is fitted without itself, an "
-    "honest estimate of the error on a new row.",
-    "A strip with few rows gives an unsteady mean; read the rows-in-strip count beside "
-    "each estimate.",
+    ("A strip mean describes the data between the smallest and largest attribute values "
+    "seen; beyond them it repeats the end strip's mean."),
+    ("The residuals and the RMSE are leave-one-out: each row is fitted without itself, an "
+    "honest estimate of the error on a new row."),
+    ("A strip with few rows gives an unsteady mean; read the rows-in-strip count beside "
+    "each estimate."),
 )
 
 

@@ -51,8 +51,8 @@ COLNOTE_ROW = 2
 #: Cautions that hold for every model, whatever its method (common practice in cost
 #: and audit work). Each method's own cautions are in its record (sheetfit/methods/).
 GENERAL_CAUTIONS = (
-    "Association is not cause: a good fit does not show that the attributes drive the "
-    "response.",
+    ("Association is not cause: a good fit does not show that the attributes drive the "
+    "response."),
     "A relationship holds only while the business it describes stays the same.",
     ("These results support, and do not replace, your organisation's policies and the "
      "professional judgement of the preparer and the reviewer."),
@@ -164,12 +164,16 @@ def plan_methods(sheet: SheetPlan, row: int, lines: Sequence[str], width: int = 
 
 
 def plan_cautions(sheet: SheetPlan, row: int, cautions: Sequence[str],
-                  heading: str = "Read with care") -> int:
-    """A cautions section (one line each) from ``row``; returns the next free row."""
+                  heading: str = "Read with care", width: int = 110) -> int:
+    """A cautions section from ``row``, each caution a bullet wrapped at ``width``
+    characters (a long line would widen the printed page); returns the next free row."""
     sheet.put(row, 0, heading, style="label")
-    for k, text in enumerate(cautions):
-        sheet.put(row + 1 + k, 0, f"• {text}", style="caution")
-    return row + 2 + len(cautions)
+    r = row + 1
+    for text in cautions:
+        for k, line in enumerate(textwrap.wrap(text, width)):
+            sheet.put(r, 0, ("• " if k == 0 else "   ") + line, style="caution")
+            r += 1
+    return r + 1
 
 
 # --- shared sheets ----------------------------------------------------------------------

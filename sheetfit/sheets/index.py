@@ -8,7 +8,7 @@ from ..a1 import quote_sheet
 from ..owned import INDEX_SHEET
 from ..summary import ModelSummary
 from ..words import plural
-from .common import GENERAL_CAUTIONS, check_cell, plan_cautions
+from .common import GENERAL_CAUTIONS, check_cell, column_notes, plan_cautions
 from .plan import SheetPlan
 
 __all__ = ["GENERAL_CAUTIONS", "finish_model_sheets", "link_to", "plan_index"]
@@ -65,8 +65,8 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
     s.put(1, 0, f"Refreshed {refreshed} by sheetfit {version}. Sheets whose names start with "
           "'sf ' are sheetfit's: they are replaced on every refresh, so keep your own work "
           "elsewhere.", style="note")
-    heads = ["model", "method", "response", "attributes", "rows used", "check: rows on the "
-             "fitted sheet", "rows left out", "new rows", "refreshed (UTC)", "tool version",
+    heads = ["model", "method", "response", "attributes", "rows used", ("check: rows on the "
+             "fitted sheet"), "rows left out", "new rows", "refreshed (UTC)", "tool version",
              "input fingerprint", "status", "cautions"]
     for c, h in enumerate(heads):
         s.put(3, c, h, style="head")
@@ -89,7 +89,7 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
         s.put(r, 11, m.status)
         s.put(r, 12, f"{len(m.cautions)}, listed below" if m.cautions else "none", style=(
             "flag" if m.cautions else "text"))
-    s.put(2, 5, "holds when the fitted sheet lists every row used", style="colnote")
+    column_notes(s, {5: "holds when the fitted sheet lists every row used"})
     r = 4 + len(summaries) + 1
     s.put(r, 0, "The sheets of each model (click to open; each sheet links back here)",
           style="label")
@@ -107,4 +107,5 @@ def plan_index(summaries: list[ModelSummary], refreshed: str, version: str) -> S
     plan_cautions(s, r, GENERAL_CAUTIONS, "Cautions for every model")
     s.widths = {0: 14, 1: 14, 2: 16, 3: 24, 8: 22, 10: 18, 12: 16}
     s.freeze = (4, 1)
+    s.pages_wide = 1
     return s

@@ -145,7 +145,7 @@ def _std_sheet(model: ModelData, res: _Result, new: _Prediction | None
                 ss.put(r, nx + m + j, Zn[i][j], _z_formula(c.cell(i), xc + j, on), "z")
             new_refs.append(ss.ref(r, nx + m) + ":" + absolute(r, nx + 2 * m - 1))
     ss.widths = {0: 16}
-    ss.freeze = (_STD_FIRST, 1)
+    ss.freeze = (_STD_FIRST, 1 + o)
     return ss, zrefs, new_refs
 
 
@@ -261,8 +261,8 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     else:
         notes.update({pred_col: f"AVERAGE of the {k} values to the left",
                       pred_col + 1: "MIN, MEDIAN, MAX of the same values"})
-    ystyle = "text" if vote else decimal_style(res.y_.tolist())
-    derived = "text" if vote else decimal_style(res.y_.tolist(), least=2)
+    ystyle = "class" if vote else decimal_style(res.y_.tolist())
+    derived = "class" if vote else decimal_style(res.y_.tolist(), least=2)
     ctx = _Cells(model, res.y_.tolist(), zrefs, k, k_cell, focus_cell, vote, o, ystyle, derived)
     fitted_refs: list[str] = []
     kst = key_styles(model.keys)
@@ -285,7 +285,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
                        ns.col_range(pred_col, new_start, new_start + model.new.n - 1)))
     ns.widths = {0: 9}
     column_notes(ns, notes)
-    ns.freeze = (FIRST_ROW, 1)
+    ns.freeze = (FIRST_ROW, 1 + o)
 
     fs, fit_rng = _fitted_sheet(model, res, fitted_refs, vote, ns.title, o, ystyle, derived)
     sheets = [summary, ss, ns, fs]
@@ -369,7 +369,7 @@ def _neighbour_row(ns: SheetPlan, r: int, i: int, rows: _Rows, zref: str, c: _Ce
         ns.put(r, nb + 3 * k + m, pv[m], f"=SUMPRODUCT(--EXACT({block},{cell}))", "int")
     vb = f"{col_letter(nb + 3 * k + 1)}{r + 1}:{col_letter(nb + 4 * k)}{r + 1}"
     col = nb + 4 * k
-    ns.put(r, col, rows.value[i], f"=INDEX({block},MATCH(MAX({vb}),{vb},0))", "text")
+    ns.put(r, col, rows.value[i], f"=INDEX({block},MATCH(MAX({vb}),{vb},0))", "class")
     ns.put(r, col + 1, rows.votes[i], f"=MAX({vb})", "int")
     ns.put(r, col + 2, rows.score[i], f"=MAX({vb})/{c.k_cell}", "pct")
     ns.put(r, col + 3, rows.share[i], f"=SUMPRODUCT(--EXACT({block},{c.focus_cell}))/{c.k_cell}",
@@ -419,7 +419,7 @@ def _fitted_sheet(model: ModelData, res: _Result, refs: list[str], vote: bool,
     if vote:
         notes[ob + 2] = "1 when the two agree exactly (EXACT)"
     column_notes(fs, notes)
-    fs.freeze = (FIRST_ROW, 1)
+    fs.freeze = (FIRST_ROW, 1 + o)
     return fs, fs.col_range(ob + 1, FIRST_ROW, last)
 
 
@@ -494,7 +494,7 @@ def _k_table(s: SheetPlan, row: int, res: _Result, k: int, label: str, err_cell:
     _head_row(s, row, ["k", f"leave-one-out {label}", ""])
     first = row + 1
     for i, (kk, err) in enumerate(res.k_table_):
-        s.put(first + i, 0, int(kk), style="int")
+        s.put(first + i, 0, int(kk), style="row")
         s.put(first + i, 1, float(err), style=style)
         if int(kk) == k:
             s.put(first + i, 2, "◀ used", style="label")
@@ -523,8 +523,8 @@ def _methods(s: SheetPlan, row: int, res: _Result, vote: bool) -> None:
         ("k: " + ("as given in the settings." if res.k_given_ else "the k with the smallest "
          "leave-one-out error " + ("rate" if vote else "RMSE") + " for k = 1 … "
          f"{len(res.k_table_)} (ties: the smaller k).")),
-        "The neighbour rows are chosen by sheetfit; every distance, value and prediction on "
-        "these sheets is a native formula you can recalculate.",
+        ("The neighbour rows are chosen by sheetfit; every distance, value and prediction on "
+        "these sheets is a native formula you can recalculate."),
     ])
 
 
@@ -668,11 +668,11 @@ def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResul
     for rank, i in enumerate(order, start=1):
         r = top + rank
         src = at.start + i
-        s.put(r, 0, rank, style="int")
+        s.put(r, 0, rank, style="row")
         s.put(r, 1, new.first_ref[i], f"={ns.ref(src, 0, fixed=False)}", "row")
         put_keys(s, r, 2, model.new.keys, i, nst)
         s.put(r, p, shares[i], f"={ns.ref(src, pred_col + 3, fixed=False)}", "pct")
-        s.put(r, p + 1, new.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "text")
+        s.put(r, p + 1, new.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "class")
         if new.votes is not None:
             s.put(r, p + 2, new.votes[i], f"={ns.ref(src, pred_col + 1, fixed=False)}", "int")
         s.put(r, p + 3, _flag(i, at), style="flag")

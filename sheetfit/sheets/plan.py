@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
 
-__all__ = ["PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
+__all__ = ["FIT_WIDTH", "PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
            "decimals_shown"]
 
 Scalar = float | int | str | bool | None
@@ -23,23 +23,26 @@ Scalar = float | int | str | bool | None
 STYLES: dict[str, dict[str, object]] = {
     "text": {},
     "title": {"bold": True, "font_size": 13},
-    "note": {"italic": True, "font_color": "#555555"},
+    "note": {"italic": True, "font_color": "#555555", "indent": 1},
     # one line under a header saying what the column computes, wrapped in the column
     "colnote": {"italic": True, "font_color": "#555555", "font_size": 8, "text_wrap": True,
                 "valign": "top"},
     "head": {"bold": True, "bottom": 1, "text_wrap": True, "valign": "top"},
     "label": {"bold": True},
     "key": {"num_format": "General", "align": "left"},  # identifiers, shown as they are
-    "num": {"num_format": "#,##0.00##"},  # any number: separators, 2 to 4 decimals
-    "coef": {"num_format": "#,##0.000000"},  # fallback; coef_style() gives 6 significant digits
-    "check": {"num_format": "0.0E+00", "font_color": "#2E6B30"},
-    "verdict": {"bold": True, "font_color": "#2E6B30", "align": "center"},  # holds / fails
-    "int": {"num_format": "#,##0"},  # counts
-    "row": {"num_format": "0", "align": "left"},  # sheet row numbers
-    "ratio": {"num_format": "0.0000"},  # R², correlation: a number between -1 and 1
-    "pct": {"num_format": "0.0%"},  # rates and shares
-    "dist": {"num_format": "0.0000"},  # distances in standard units
-    "z": {"num_format": "0.000"},  # standard units
+    # number formats end in "_)": a space's width after every number, so a number never
+    # runs into the text of the next column
+    "num": {"num_format": "#,##0.00##_)"},  # any number: separators, 2 to 4 decimals
+    "coef": {"num_format": "#,##0.000000_)"},  # fallback; coef_style() gives 6 significant digits
+    "check": {"num_format": "0.0E+00_)", "font_color": "#2E6B30"},
+    "verdict": {"bold": True, "font_color": "#2E6B30", "align": "center"},  # holds / FAILS
+    "int": {"num_format": "#,##0_)"},  # counts
+    "row": {"num_format": "0", "align": "left"},  # sheet row numbers, ranks: left, under their header
+    "ratio": {"num_format": "0.0000_)"},  # R², correlation: a number between -1 and 1
+    "pct": {"num_format": "0.0%_)"},  # rates and shares
+    "dist": {"num_format": "0.0000_)"},  # distances in standard units
+    "z": {"num_format": "0.000_)"},  # standard units
+    "class": {"align": "center"},  # class labels of a vote
     "caution": {"font_color": "#8A4B00", "text_wrap": False},
     "flag": {"bold": True, "font_color": "#8A4B00"},  # beside the number it qualifies
     "link": {"font_color": "#1F4E9E", "underline": 1},
@@ -47,7 +50,7 @@ STYLES: dict[str, dict[str, object]] = {
 }
 #: Thousands-separated formats with a fixed number of decimals, "dec0" … "dec9".
 for _d in range(10):
-    STYLES[f"dec{_d}"] = {"num_format": "#,##0" + ("." + "0" * _d if _d else "")}
+    STYLES[f"dec{_d}"] = {"num_format": "#,##0" + ("." + "0" * _d if _d else "") + "_)"}
     STYLES[f"answer{_d}"] = {"bold": True, "num_format": STYLES[f"dec{_d}"]["num_format"]}
 
 
@@ -103,7 +106,8 @@ class SheetPlan:
     """Every cell of one owned sheet, plus column widths, frozen panes and print setup.
 
     Print setup: ``landscape`` None decides by width (wider than :data:`PORTRAIT_WIDTH`
-    characters of columns), ``fit_width`` fits the columns to one page width, and
+    characters of columns), ``fit_width`` fits the columns to ``pages_wide`` page widths
+    (by default as many as :data:`FIT_WIDTH` characters a page need), and
     ``repeat_rows`` (first, last; 0-based) repeat on every printed page (default: the
     rows above the frozen pane).
     """
@@ -116,6 +120,7 @@ class SheetPlan:
     status_cell: tuple[int, int] | None = None  # where the refresh writes the status line
     landscape: bool | None = None
     fit_width: bool = True
+    pages_wide: int | None = None  # None: as many as FIT_WIDTH characters a page take
     repeat_rows: tuple[int, int] | None = None
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
@@ -169,20 +174,23 @@ class SheetPlan:
         a lower bound.
         """
         need: dict[int, float] = {}
+        taken = {(c.row, c.col) for c in self.cells if c.value not in (None, "")}
         for c in self.cells:
-            if c.style in ("note", "title", "caution", "colnote") or c.value is None:
+            if c.style in ("note", "title", "caution", "colnote", "flag") or c.value is None:
                 continue
             if c.style == "head":
                 text = str(c.value)
                 words = max((len(w) for w in text.split()), default=0)
                 w = max(words + 2, math.ceil(len(text) / 2) + 3)
             elif isinstance(c.value, (int, float)) and not isinstance(c.value, bool):
-                w = 12 if c.style not in ("int", "row") else max(6, len(f"{c.value:,}") + 2)
+                w = 12 if c.style not in ("int", "row") else max(6, len(f"{c.value:,}") + 3)
+            elif (c.row, c.col + 1) not in taken:
+                continue  # text with room to its right overflows into it
             else:
                 w = min(40, len(str(c.value)) + 2)
             need[c.col] = max(need.get(c.col, 0), w)
-        for col, w in need.items():
-            self.widths[col] = max(self.widths.get(col, 0), float(w))
+        for col, width in need.items():
+            self.widths[col] = max(self.widths.get(col, 0), float(width))
 
     def total_width(self) -> float:
         """Characters of width of the used columns (default width 8.43)."""
@@ -192,6 +200,9 @@ class SheetPlan:
 
 #: A sheet wider than this many characters of columns prints landscape.
 PORTRAIT_WIDTH = 100
+#: Characters of columns printed on one page width; a wider sheet is printed as many
+#: pages wide as it takes (shrunk any further it would be too small to read).
+FIT_WIDTH = 200
 
 
 @dataclass

@@ -19,6 +19,7 @@ from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, FEW_IN_STRIP, StripMeanResult
 from ..owned import sheet_title
+from ..words import plural
 from .common import (
     FIRST_ROW,
     column_notes,
@@ -122,7 +123,7 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     for j, cval in enumerate(centres):
         r = first + j
         R = r + 1
-        ss.put(r, 0, j + 1, style="int")
+        ss.put(r, 0, j + 1, style="row")
         if even:
             ss.put(r, 1, cval, f"={absolute(st + 2, 1)}+{j}*{absolute(st + 3, 1)}", "num")
         else:
@@ -179,7 +180,7 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     column_notes(fs, {ob: "your data cell", ob + 2: "the row's centre on the curve sheet",
                       ob + 3: "looked up on the curve sheet",
                       fit_col: "(sum − own value) ÷ (rows − 1): the other rows' mean"})
-    fs.freeze = (FIRST_ROW, 1)
+    fs.freeze = (FIRST_ROW, 1 + o)
     names: list[tuple[str, str]] = []
     side = len(fh) + 1
     if model.new is not None and fitted.new is not None:
@@ -213,14 +214,14 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
         ss.put(f + 1 + i, 1, value, formula, style)
         ss.put(f + 1 + i, 2, what, style="note")
     plan_methods(ss, g_last + 2, [
-        f"A strip holds the rows with |{xname} − centre| ≤ width; a relative allowance of "
-        f"{EDGE_ALLOWANCE:g} absorbs rounding at the edge, in Python and in the formulas alike.",
-        f"Centres: the distinct values of {xname} when there are at most 200, otherwise "
-        f"{EVEN_CENTRES} evenly spaced centres from the smallest to the largest value.",
-        "Each data row is fitted from the other rows in the strip at its centre "
+        (f"A strip holds the rows with |{xname} − centre| ≤ width; a relative allowance of "
+        f"{EDGE_ALLOWANCE:g} absorbs rounding at the edge, in Python and in the formulas alike."),
+        (f"Centres: the distinct values of {xname} when there are at most 200, otherwise "
+        f"{EVEN_CENTRES} evenly spaced centres from the smallest to the largest value."),
+        ("Each data row is fitted from the other rows in the strip at its centre "
         "(leave-one-out); a new row takes the strip mean at the nearest centre (on a tie, "
         f"the lower), and is flagged when fewer than {FEW_IN_STRIP} data rows lie within "
-        "± width of its own value.",
+        "± width of its own value."),
     ])
     ss.widths = {0: 26, 1: 14, 2: 14, 3: 16, 4: 16, 5: 16}
     ss.freeze = None
@@ -314,5 +315,5 @@ def _flag(i: int, near: int, extrapolated: list[int]) -> str:
     if near == 0:
         out.append("no data within ± width: the nearest strip's mean")
     elif near < FEW_IN_STRIP:
-        out.append(f"only {near} data rows within ± width")
+        out.append(f"only {plural(near, 'data row')} within ± width")
     return "; ".join(out)

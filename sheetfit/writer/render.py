@@ -6,6 +6,7 @@ written here is a temporary file and never the user's workbook.
 
 from __future__ import annotations
 
+import math
 import re
 from pathlib import Path
 from typing import Any
@@ -13,7 +14,7 @@ from typing import Any
 import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
-from ..sheets.plan import PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan
+from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan
 
 __all__ = ["render"]
 
@@ -59,13 +60,19 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
 
 def _print_setup(ws: Worksheet, sheet: SheetPlan) -> None:
     """Printed for review: one page wide, landscape when wide, header rows on every page."""
-    wide = sheet.total_width() > PORTRAIT_WIDTH if sheet.landscape is None else sheet.landscape
+    total = sheet.total_width()
+    wide = total > PORTRAIT_WIDTH if sheet.landscape is None else sheet.landscape
     if wide:
         ws.set_landscape()
     else:
         ws.set_portrait()
     if sheet.fit_width:
-        ws.fit_to_pages(1, 0)
+        # as many pages wide as it takes to stay legible (FIT_WIDTH characters a page);
+        # on a sheet of several pages the frozen columns (row, identifiers) repeat
+        pages = sheet.pages_wide or max(1, math.ceil(total / FIT_WIDTH))
+        ws.fit_to_pages(pages, 0)
+        if pages > 1 and sheet.freeze and sheet.freeze[1] > 0:
+            ws.repeat_columns(0, sheet.freeze[1] - 1)
     rows = sheet.repeat_rows
     if rows is None and sheet.freeze and sheet.freeze[0] > 0:
         rows = (0, sheet.freeze[0] - 1)
