@@ -43,3 +43,5 @@ class Method(Generic[R]):
     max_attributes: int | None = None
     check: Callable[[ModelData], None] | None = None
     standing: tuple[str, ...] = ()
+    #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
+    compares_rule: bool = False

@@ -233,6 +233,7 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.
     column_notes(rs, {ob: "your data cell", fc: "from the fitted-value sheet",
                       rc: "observed − fitted, row by row"})
     rs.freeze = (FIRST_ROW, 1)
+    rs.columns.update({"observed": ob, "fitted": fc, "resid": rc})
     return rs
 
 

@@ -122,6 +122,10 @@ class SheetPlan:
     fit_width: bool = True
     pages_wide: int | None = None  # None: as many as FIT_WIDTH characters a page take
     repeat_rows: tuple[int, int] | None = None
+    #: Where named columns of a row-by-row sheet are ("resid" → 3), for planners that
+    #: add columns to a sheet another function laid out.
+    columns: dict[str, int] = field(default_factory=dict)
+    _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text", link: str | None = None) -> Cell:
@@ -132,6 +136,9 @@ class SheetPlan:
             raise KeyError(style)
         if link is not None and formula is not None:
             raise ValueError("a hyperlink cell holds text, not a formula")
+        if (row, col) in self._taken:
+            raise ValueError(f"{self.title}: cell {cell_ref(row + 1, col + 1)} planned twice")
+        self._taken.add((row, col))
         cell = Cell(row, col, value, formula, style, link)
         if style == "head":  # column headers wrap onto two lines
             self.heights.setdefault(row, 30.0)
@@ -162,7 +169,7 @@ class SheetPlan:
         return max((c.row for c in self.cells), default=-1)
 
     def is_free(self, row: int, col: int) -> bool:
-        return all(c.row != row or c.col != col for c in self.cells)
+        return (row, col) not in self._taken
 
     def fit_columns(self) -> None:
         """Widen columns so header words never break mid-word and values fit.
