@@ -23,7 +23,7 @@ from sheetfit.errors import DataError, SettingError
 from sheetfit.fit import checks
 from sheetfit.fit._arrays import divide, readonly
 
-__all__ = ["EDGE_ALLOWANCE", "EVEN_CENTRES", "FEW_IN_STRIP", "MAX_DISTINCT", "StripMean", "StripMeanResult"]
+__all__ = ["EDGE_ALLOWANCE", "EVEN_CENTRES", "MAX_DISTINCT", "StripMean", "StripMeanResult"]
 
 #: Relative allowance at a strip's edge: abs(x − c) <= width · (1 + EDGE_ALLOWANCE) is inside.
 EDGE_ALLOWANCE = 1e-12
@@ -31,9 +31,6 @@ EDGE_ALLOWANCE = 1e-12
 MAX_DISTINCT = 200
 #: Number of centres on the even grid (j = 0 … EVEN_CENTRES − 1).
 EVEN_CENTRES = 101
-#: A new row with fewer data rows than this within ± width of its own x is flagged: its
-#: prediction (the strip mean at the nearest centre) rests on few or no similar cases.
-FEW_IN_STRIP = 5
 _GRIDS = ("auto", "distinct", "even")
 
 

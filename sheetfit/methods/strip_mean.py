@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 
 from ..declare.model import ModelData
-from ..fit.strip import FEW_IN_STRIP, StripMean, StripMeanResult
+from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
-from ..sheets.strip import plan_strip
+from ..sheets.strip import FEW_IN_STRIP, plan_strip
 from ..words import plural
 from .base import Method
 

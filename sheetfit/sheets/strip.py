@@ -17,7 +17,7 @@ import numpy as np
 from ..a1 import absolute, col_letter
 from ..declare.model import ModelData
 from ..fit.results import Fitted
-from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, FEW_IN_STRIP, StripMeanResult
+from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, StripMeanResult
 from ..owned import sheet_title
 from ..words import plural
 from .common import (
@@ -33,7 +33,12 @@ from .common import (
 )
 from .plan import Planned, SheetPlan, decimal_style
 
-__all__ = ["EDGE", "plan_strip"]
+__all__ = ["EDGE", "FEW_IN_STRIP", "plan_strip"]
+
+#: A new row with fewer data rows than this within ± width of its own value is flagged
+#: (a reading threshold, not part of the method): its estimate, the strip mean at the
+#: nearest centre, rests on few or no similar cases.
+FEW_IN_STRIP = 5
 
 #: The edge allowance as the formulas write it: |x − c| <= width·(1 + 1E-12) is inside.
 EDGE = f"(1+{EDGE_ALLOWANCE:G})"
