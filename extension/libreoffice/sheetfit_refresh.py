@@ -21,6 +21,7 @@ State SUCCESS with "refreshed PATH", or FAILURE with the message the box showed.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import shlex
 import shutil
@@ -166,28 +167,28 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
         self.ctx = ctx
         self.frame = None
 
-    # XInitialization: the framework hands the frame the command runs in
-    def initialize(self, args: tuple) -> None:  # noqa: N802 - UNO method names
+    # UNO interface methods keep UNO's names. XInitialization: the frame the command runs in
+    def initialize(self, args: tuple) -> None:
         if args:
             self.frame = args[0]
 
     # XServiceInfo
-    def getImplementationName(self) -> str:  # noqa: N802
+    def getImplementationName(self) -> str:
         return IMPLEMENTATION
 
-    def supportsService(self, name: str) -> bool:  # noqa: N802
+    def supportsService(self, name: str) -> bool:
         return name in SERVICES
 
-    def getSupportedServiceNames(self) -> tuple:  # noqa: N802
+    def getSupportedServiceNames(self) -> tuple:
         return SERVICES
 
     # XDispatchProvider
-    def queryDispatch(self, url, target, flags):  # noqa: N802
+    def queryDispatch(self, url, target, flags):
         if url.Protocol == PROTOCOL and url.Path == COMMAND:
             return self
         return None
 
-    def queryDispatches(self, requests):  # noqa: N802
+    def queryDispatches(self, requests):
         return tuple(self.queryDispatch(r.FeatureURL, r.FrameName, r.SearchFlags)
                      for r in requests)
 
@@ -195,7 +196,7 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
     def dispatch(self, url, args) -> None:
         self._refresh()
 
-    def dispatchWithNotification(self, url, args, listener) -> None:  # noqa: N802
+    def dispatchWithNotification(self, url, args, listener) -> None:
         state, message = self._refresh()
         if listener is not None:
             event = uno.createUnoStruct("com.sun.star.frame.DispatchResultEvent")
@@ -204,7 +205,7 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
             event.Result = message
             listener.dispatchFinished(event)
 
-    def addStatusListener(self, listener, url) -> None:  # noqa: N802
+    def addStatusListener(self, listener, url) -> None:
         event = uno.createUnoStruct("com.sun.star.frame.FeatureStateEvent")
         event.Source = self
         event.FeatureURL = url
@@ -212,7 +213,7 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
         event.Requery = False
         listener.statusChanged(event)
 
-    def removeStatusListener(self, listener, url) -> None:  # noqa: N802
+    def removeStatusListener(self, listener, url) -> None:
         pass
 
     # the command --------------------------------------------------------------------
@@ -278,7 +279,7 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
 
     def _message(self, text: str) -> None:
         """A message box over the document window (returns at once when headless)."""
-        try:
+        with contextlib.suppress(Exception):  # no window to show it on: the caller still gets it
             toolkit = self.ctx.getServiceManager().createInstanceWithContext(
                 "com.sun.star.awt.Toolkit", self.ctx)
             parent = self.frame.getContainerWindow() if self.frame is not None else None
@@ -287,8 +288,6 @@ class RefreshHandler(unohelper.Base, XInitialization, XDispatchProvider, XNotify
                 1, TITLE, text)  # 1: com.sun.star.awt.MessageBoxButtons.BUTTONS_OK
             box.execute()
             box.dispose()
-        except Exception:  # noqa: BLE001 - no window to show it on; the caller still gets it
-            pass
 
 
 g_ImplementationHelper = unohelper.ImplementationHelper()
