@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import contextlib
 import importlib.util
+import json
 import os
 import pwd
 import re
@@ -356,3 +357,95 @@ def test_the_setting_chooses_the_program(calc: Engine, tmp_path: Path) -> None:
     finally:
         with contextlib.suppress(Exception):
             calc.set_setting(SETTINGS, "Command", "")
+
+
+_STEPS = r"""
+import json, sys
+sys.path.insert(0, sys.argv[1])
+import sheetfit_refresh as ext
+case, arg = sys.argv[2], json.loads(sys.argv[3])
+try:
+    if case == "resolve":
+        out = ext.resolve_command(arg["configured"], arg["environ"])
+    elif case == "run":
+        ext.REFRESH_TIMEOUT = arg.get("timeout", ext.REFRESH_TIMEOUT)
+        out = ext.run_sheetfit(arg["command"], arg["path"], arg["environ"])
+    elif case == "location":
+        out = ext.check_location(arg["url"], arg["filter"], arg["readonly"])
+    else:
+        out = sorted(ext.child_environment(arg))
+    print(json.dumps({"ok": out}))
+except ext.Refusal as exc:
+    print(json.dumps({"refusal": str(exc)}))
+"""
+
+
+def _fake(folder: Path, name: str, body: str) -> Path:
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / name
+    path.write_text("#!/bin/sh\n" + body + "\n", encoding="utf-8")
+    path.chmod(0o755)
+    return path
+
+
+@pytest.mark.engine
+def test_plain_steps_under_libreoffices_python(tmp_path: Path) -> None:
+    """The handler's steps that need no running office, in the Python that runs them."""
+    info = find_engine()
+    if info is None:
+        _unavailable(f"LibreOffice's Python with uno is required in CI: {INSTALL_HINT}")
+        return
+
+    def step(case: str, arg: Any) -> dict[str, Any]:
+        done = subprocess.run([info.python, "-c", _STEPS, str(SOURCE), case, json.dumps(arg)],
+                              capture_output=True, text=True, timeout=60, check=True)
+        return dict(json.loads(done.stdout))
+
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    bare = {"PATH": str(empty)}
+    said = step("resolve", {"configured": "", "environ": bare})["refusal"]
+    assert "no program named sheetfit on PATH" in said and "SHEETFIT_COMMAND" in said
+    said = step("resolve", {"configured": "", "environ": {**bare, "SHEETFIT_COMMAND": "/no/sf"}})
+    assert "'/no/sf', from the environment variable SHEETFIT_COMMAND" in said["refusal"]
+    said = step("resolve", {"configured": "'unclosed", "environ": bare})["refusal"]
+    assert "cannot be read as a command" in said
+    found = _fake(tmp_path / "bin", "sheetfit", "exit 0")
+    on_path = {"PATH": str(found.parent)}
+    assert step("resolve", {"configured": "", "environ": on_path}) == {"ok": [str(found)]}
+    # The setting wins over the environment variable, and keeps its arguments.
+    both = {**on_path, "SHEETFIT_COMMAND": "/no/sf"}
+    assert step("resolve", {"configured": f"{found} -v", "environ": both}) == {
+        "ok": [str(found), "-v"]}
+
+    book = str(tmp_path / "b.xlsx")
+    seen = tmp_path / "argv"
+    ok = _fake(tmp_path / "ok", "sheetfit", f'printf "%s\\n" "$@" > {seen}; exit 0')
+    assert step("run", {"command": [str(ok)], "path": book, "environ": on_path}) == {"ok": None}
+    assert seen.read_text().splitlines() == ["refresh", "--force", book]
+    refused = _fake(tmp_path / "no", "sheetfit", 'echo "sheetfit: refused: b.xlsx, plain" >&2; exit 2')
+    assert step("run", {"command": [str(refused)], "path": book, "environ": on_path}) == {
+        "refusal": "sheetfit: refused: b.xlsx, plain"}
+    fault = _fake(tmp_path / "fault", "sheetfit", 'echo "sheetfit: internal fault" >&2; exit 1')
+    said = step("run", {"command": [str(fault)], "path": book, "environ": on_path})["refusal"]
+    assert "exit status 1" in said and "sheetfit: internal fault" in said
+    slow = _fake(tmp_path / "slow", "sheetfit", f"exec {shutil.which('sleep')} 30")
+    t0 = time.monotonic()
+    said = step("run", {"command": [str(slow)], "path": book, "environ": on_path,
+                        "timeout": 1.0})["refusal"]
+    assert "did not finish within 1 seconds and was stopped" in said
+    assert time.monotonic() - t0 < 25  # the child was killed at the limit, not waited for
+
+    xlsx = "Calc MS Excel 2007 XML"
+    url = (tmp_path / "b.xlsx").as_uri()
+    (tmp_path / "b.xlsx").write_bytes(b"")
+    assert step("location", {"url": url, "filter": xlsx, "readonly": False}) == {"ok": book}
+    said = step("location", {"url": url, "filter": xlsx, "readonly": True})["refusal"]
+    assert "read-only" in said
+    said = step("location", {"url": "https://host/b.xlsx", "filter": xlsx,
+                             "readonly": False})["refusal"]
+    assert "not a file on this computer" in said
+    said = step("location", {"url": url, "filter": "calc8", "readonly": False})["refusal"]
+    assert ".xlsx workbooks only" in said
+    assert step("environment", {"PYTHONHOME": "/x", "PYTHONPATH": "/y", "HOME": "/h"}) == {
+        "ok": ["HOME"]}
