@@ -27,6 +27,7 @@ __all__ = [
     "label",
     "parse_settings",
     "positive",
+    "share",
     "yes_no",
 ]
 
@@ -66,6 +67,18 @@ def positive(raw: Any) -> float:
     if not (math.isfinite(value) and value > 0):
         raise ValueError
     return value
+
+
+def share(lo: float, hi: float) -> Callable[[Any], float]:
+    """A number from lo to hi; a percentage ("95%") is read as its share."""
+    def parse(raw: Any) -> float:
+        text = str(raw).strip()
+        value = float(text[:-1]) / 100 if text.endswith("%") else float(raw)
+        if not (math.isfinite(value) and lo <= value <= hi):
+            raise ValueError
+        return value
+
+    return parse
 
 
 def choice(options: tuple[str, ...]) -> Callable[[Any], str]:

@@ -5,7 +5,8 @@ from __future__ import annotations
 from ..declare.model import ModelData
 from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult
-from ..settings import Rule, integer, yes_no
+from ..settings import Rule, integer, share, yes_no
+from ..sheets._ls_words import least_squares_cautions
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
@@ -27,14 +28,7 @@ def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
-    out = []
-    if res.r2_uncentred_:
-        out.append("no intercept: R² is uncentred (about zero) and reads higher than a "
-                   "centred R²")
-    if res.df_resid_ < 10:
-        out.append(f"only {res.df_resid_} residual degrees of freedom: R² and the residual "
-                   "SD are unstable")
-    return out
+    return least_squares_cautions(res)
 
 
 METHOD: Method[LeastSquaresResult] = Method(
@@ -45,6 +39,8 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("intercept", "yes or no", True, yes_no, "whether the model has a constant term"),
         Rule("degree", f"a whole number from {_LO} to {_HI}", 1, integer(_LO, _HI),
              "polynomial degree in the one attribute (2 adds x^2, ...)"),
+        Rule("level", "a share from 0.5 to 0.999", 0.95, share(0.5, 0.999),
+             "confidence level of the coefficient ranges and prediction intervals"),
     ),
     fit=_fit,
     plan=plan_least_squares,

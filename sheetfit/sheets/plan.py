@@ -56,6 +56,9 @@ class SheetPlan:
     widths: dict[int, float] = field(default_factory=dict)
     heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
+    #: Where named columns of a row-by-row sheet are ("resid" → 3), for planners that
+    #: add columns to a sheet another function laid out.
+    columns: dict[str, int] = field(default_factory=dict)
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text") -> Cell:
