@@ -22,6 +22,8 @@ from ..owned import sheet_title
 from ..words import plural
 from .common import (
     FIRST_ROW,
+    check_cell,
+    check_words,
     column_notes,
     key_heads,
     key_styles,
@@ -63,7 +65,7 @@ class _Layout:
     @classmethod
     def of(cls, n_new: int) -> _Layout:
         figures = 3 + (n_new + 3 if n_new else 2)
-        status = figures + 4
+        status = figures + 5
         settings = status + 2
         return cls(3, figures, status, settings, settings + 5)
 
@@ -218,6 +220,14 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
         ss.put(f + 1 + i, 0, label, style="label")
         ss.put(f + 1 + i, 1, value, formula, style)
         ss.put(f + 1 + i, 2, what, style="note")
+    if res.n_fitted_:
+        # the formulas' RMSE against the numeric core's, computed apart (fsum in Python)
+        rmse_cell, c = absolute(f + 3, 1), f + 4
+        ss.put(c, 0, "check: the RMSE equals sheetfit's own", style="label")
+        ss.put(c, 1, 0.0, f"={rmse_cell}-{res.rmse_!r}", "check")
+        formula, verdict = check_cell(absolute(c, 1), 0.0, 1e-9, rmse_cell, res.rmse_)
+        ss.put(c, 2, verdict, formula, "verdict")
+        ss.put(c, 3, check_words(1e-9, "|difference| / max(1, RMSE)"), style="note")
     plan_methods(ss, g_last + 2, [
         (f"A strip holds the rows with |{xname} − centre| ≤ width; a relative allowance of "
         f"{EDGE_ALLOWANCE:g} absorbs rounding at the edge, in Python and in the formulas alike."),
