@@ -181,12 +181,23 @@ def check(book: str | Path) -> BookCheck:
 
 
 def _read_index(values: BookValues) -> dict[str, tuple[str, str, str]]:
-    """Model (case-folded) -> (refreshed, tool version, fingerprint) from the index sheet."""
+    """Model (case-folded) -> (refreshed, tool version, fingerprint) from the index sheet,
+    its columns found by their headers (the first row whose column A reads "model")."""
     out: dict[str, tuple[str, str, str]] = {}
-    for row in read_rows(values, INDEX_SHEET, 5, 10):
-        if not isinstance(row[0], str) or row[0] == "model":
+    rows = read_rows(values, INDEX_SHEET, 1, 30)
+    at = next((i for i, r in enumerate(rows) if r[0] == "model"), None)
+    if at is None:
+        return out
+    head = [str(h or "") for h in rows[at]]
+    want = ("refreshed (UTC)", "tool version", "input fingerprint")
+    if not all(w in head for w in want):
+        return out
+    cols = [head.index(w) for w in want]
+    for row in rows[at + 1:]:
+        if not isinstance(row[0], str) or not row[0]:
             break
-        out[row[0].casefold()] = (str(row[7] or ""), str(row[8] or ""), str(row[9] or ""))
+        got = [str(row[c] or "") for c in cols]
+        out[row[0].casefold()] = (got[0], got[1], got[2])
     return out
 
 
@@ -302,13 +313,13 @@ def _shown(v: Value) -> str:
 
 def _against_plan(model: ModelData, sheets: dict[str, str], kinds: dict[str, CellKinds],
                   values: BookValues) -> list[Edit]:
-    """Compare each result sheet of an up-to-date model with a fresh plan of it."""
-    from .refresh import fit_model
+    """Compare each result sheet of an up-to-date model with a fresh plan of it, made as the
+    refresh makes it (its book plan without the index, which lists every model)."""
+    from .refresh import fit_model, plan_book
 
-    method = REGISTRY[model.settings.method]
-    planned = method.plan(model, fit_model(model), __version__)
+    book, _ = plan_book([(model, fit_model(model))], "")
     edits: list[Edit] = []
-    for plan in planned.sheets:
+    for plan in book.sheets[1:]:
         title = next((t for t in sheets if t.casefold() == plan.title.casefold()), None)
         if title is None:
             edits.append(Edit(plan.title, "", "the sheet is missing"))

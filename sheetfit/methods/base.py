@@ -31,8 +31,10 @@ class Method(Generic[R]):
 
     ``fit`` runs the numeric core on a declared model's arrays (no workbook access);
     ``plan`` lays out the sheets from the fitted result; ``figures`` and ``cautions``
-    give the summary lines for the index sheet and the command line; ``check`` refuses
-    declarations only this method cannot use (after the cells are read).
+    give the summary lines for the index sheet and the command line (``cautions``: what
+    this fit's data give cause to say); ``standing`` are the cautions of what the method
+    is, said of every model using it, on its own sheets and the index; ``check``
+    refuses declarations only this method cannot use (after the cells are read).
     """
 
     word: str
@@ -53,5 +55,6 @@ class Method(Generic[R]):
     #: Numeric forecasts of the new rows (``Forecasts``), from the result and its
     #: predictions; None for a method whose forecasts are not numbers.
     forecasts: Callable[[ModelData, R, Any], Forecasts] | None = None
+    standing: tuple[str, ...] = ()
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False

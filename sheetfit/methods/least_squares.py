@@ -65,6 +65,14 @@ def _forecasts(model: ModelData, res: LeastSquaresResult, new: object) -> Foreca
     iv = intervals(res, model.new.X, level)
     return point, np.asarray(iv.obs_lo), np.asarray(iv.obs_hi), level
 
+#: What a least-squares fit is, and how to read it (on its own sheets and the index).
+STANDING = (
+    ("A fitted line describes the data between the smallest and largest attribute values "
+    "seen (the relevant range); outside it a prediction is an extrapolation. The intercept "
+    "is the fixed part within that range, not the cost at zero activity."),
+    "The residuals here are in-sample: they understate the error on new rows.",
+    "Outliers pull the line; look at the residual sheet and a scatter of the data.",
+)
 
 METHOD: Method[LeastSquaresResult] = Method(
     word="least_squares",
@@ -88,4 +96,5 @@ METHOD: Method[LeastSquaresResult] = Method(
     cautions=_cautions,
     key_figures=_key_figures,
     forecasts=_forecasts,
+    standing=STANDING,
 )

@@ -44,4 +44,5 @@ METHOD: Method[NeighbourMeanResult] = Method(
     cautions=_neighbours.cautions,
     key_figures=_key_figures,
     forecasts=_forecasts,
+    standing=_neighbours.MEAN_STANDING,
 )

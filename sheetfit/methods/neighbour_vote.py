@@ -58,4 +58,5 @@ METHOD: Method[NeighbourVoteResult] = Method(
     figures=_figures,
     cautions=_neighbours.cautions,
     key_figures=_key_figures,
+    standing=_neighbours.VOTE_STANDING,
 )

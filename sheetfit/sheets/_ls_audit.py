@@ -96,9 +96,9 @@ def plan_audit(model: ModelData, obs_refs: list[str], fit_refs: list[str],
         s.put(r, 0, ident)
         s.put(r, 1, int(model.y.row_of(int(idx))), style="int")
         if keys is not None:
-            for j, c in enumerate(keys.columns):
+            for j, kc in enumerate(keys.columns):
                 v = keys.values[j][int(idx)]
-                cell = c.cell(int(idx))
+                cell = kc.cell(int(idx))
                 s.put(r, 2 + j, "" if v is None else v, f'=IF(ISBLANK({cell}),"",{cell})',
                       "num" if isinstance(v, float) else "text")
         a = r + 1
