@@ -17,6 +17,7 @@ from ..methods import REGISTRY
 from ..owned import FORECAST_SHEET, LOG_SHEET, SHEET_KINDS
 from ..reader.package import Package
 from ..reader.values import BookValues
+from ..sheets.index import back_link
 from ..sheets.plan import SheetPlan
 from ..summary import ModelSummary
 from .about import UserCells, plan_about, read_about
@@ -95,4 +96,6 @@ def plan_history(fits: list[tuple[ModelData, Fitted[Any]]], summaries: list[Mode
     sheets += [plan_inputs(records), plan_log(log)]
     if register_rows:
         sheets.append(plan_forecasts(register_rows, sentences))
+    for s in sheets:
+        back_link(s)
     return sheets

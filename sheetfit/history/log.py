@@ -11,6 +11,7 @@ before (the previous row's value after) and value after.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -96,7 +97,8 @@ def read_log(values: BookValues) -> list[LogRow]:
             if isinstance(r[2], str) and r[2]]
 
 
-def log_rows(previous: list[LogRow], entries: list[tuple[ModelData, str, list[tuple[str, float]]]],
+def log_rows(previous: list[LogRow],
+             entries: list[tuple[ModelData, str, list[tuple[str, float]]]],
              stamp: str, version: str) -> list[LogRow]:
     """The log after this refresh: the previous rows, one new row per model, the last LOG_CAP.
 
@@ -108,8 +110,13 @@ def log_rows(previous: list[LogRow], entries: list[tuple[ModelData, str, list[tu
     rows = list(previous)
     for model, title, figures in entries:
         before = last.get(model.tag.casefold(), {})
+        # a figure that does not exist this time (an RMSE with no fitted row) is left blank
+        now: list[tuple[str, float | None]] = [(n, v if math.isfinite(v) else None)
+                                               for n, v in figures]
         shift, where = None, ""
-        for name, after in figures:
+        for name, after in now:
+            if after is None:
+                continue
             b = before.get(name)
             if b is None or b == 0:
                 continue
@@ -121,8 +128,8 @@ def log_rows(previous: list[LogRow], entries: list[tuple[ModelData, str, list[tu
                               shift, where if shift else None,
                               f"above {100 * SHIFT_LEVEL:g} %" if shift is not None
                               and shift > SHIFT_LEVEL else None]
-        for name, after in figures[:FIGURES]:
-            cells += [name, before.get(name), after]
+        for name, value in now[:FIGURES]:
+            cells += [name, before.get(name), value]
         rows.append(LogRow(cells))
     return rows[-LOG_CAP:]
 

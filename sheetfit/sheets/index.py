@@ -11,7 +11,7 @@ from ..words import plural
 from .common import GENERAL_CAUTIONS, check_cell, column_notes, plan_cautions
 from .plan import SheetPlan
 
-__all__ = ["GENERAL_CAUTIONS", "finish_model_sheets", "link_to", "plan_index"]
+__all__ = ["GENERAL_CAUTIONS", "back_link", "finish_model_sheets", "link_to", "plan_index"]
 
 
 def link_to(title: str, cell: str = "A1") -> str:
@@ -44,10 +44,10 @@ def finish_model_sheets(sheets: list[SheetPlan], m: ModelSummary) -> None:
                   f"Read with care: what a {m.title} model is")
     for s in sheets:
         s.fit_columns()
-        _back_link(s)
+        back_link(s)
 
 
-def _back_link(s: SheetPlan) -> None:
+def back_link(s: SheetPlan) -> None:
     """A link to the index in the title row, to the right of the title text."""
     title = next((c for c in s.cells if c.row == 0 and c.col == 0), None)
     need = (len(str(title.value)) * 1.2 + 2) if title is not None else 0
