@@ -7,7 +7,7 @@ from ..errors import Context, DataError
 from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
 from ..settings import Rule, amount_or_sd, integer, share, yes_no
-from ..sheets._ls_words import least_squares_cautions
+from ..sheets._ls_words import audit_threshold_caution, least_squares_cautions
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
@@ -45,7 +45,10 @@ def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
-    return least_squares_cautions(res)
+    out = least_squares_cautions(res)
+    audit = audit_threshold_caution(res, model.settings.values.get("threshold"),
+                                    float(model.settings.values.get("level", 0.95)))
+    return out + ([audit] if audit else [])
 
 
 #: What a least-squares fit is, and how to read it (on its own sheets and the index).
@@ -53,8 +56,12 @@ STANDING = (
     ("A fitted line describes the data between the smallest and largest attribute values "
     "seen (the relevant range); outside it a prediction is an extrapolation. The intercept "
     "is the fixed part within that range, not the cost at zero activity."),
-    "The residuals here are in-sample: they understate the error on new rows.",
-    "Outliers pull the line; look at the residual sheet and a scatter of the data.",
+    ("The residuals are in-sample and understate the error on new rows; the leave-one-out "
+     "RMSE does not, and is the figure to compare models and rules by."),
+    ("Outliers and high-leverage rows pull the line; the residual sheet flags them "
+     "(studentized residual, Cook's distance, leverage)."),
+    ("Predicting from an extreme row: the next value tends to be closer to the average "
+     "(regression toward the mean)."),
 )
 
 METHOD: Method[LeastSquaresResult] = Method(

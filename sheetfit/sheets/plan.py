@@ -40,6 +40,7 @@ STYLES: dict[str, dict[str, object]] = {
     "row": {"num_format": "0", "align": "left"},  # sheet row numbers, ranks: left, under their header
     "ratio": {"num_format": "0.0000_)"},  # R², correlation: a number between -1 and 1
     "pct": {"num_format": "0.0%_)"},  # rates and shares
+    "pvalue": {"num_format": "0.0000_)"},  # p-values: four decimals (0.0000 reads "below 0.00005")
     "dist": {"num_format": "0.0000_)"},  # distances in standard units
     "z": {"num_format": "0.000_)"},  # standard units
     "class": {"align": "center"},  # class labels of a vote
