@@ -18,6 +18,7 @@ import numpy as np
 
 from ..a1 import cell_ref, col_letter, quote_sheet
 from ..errors import Context, DataError, DeclarationError, NoModelsError
+from ..fit.totals import find_totals
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
 from ..reader.package import DefinedName, Package
 from ..reader.values import (
@@ -322,6 +323,7 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
     xcols = [_make_column(a, c, header, values, offset) for a, c in x_cols]
     _check_headers(xcols, dx, file)
     used, left, Y, X = _read_rows(ycol, xcols, n_rows, values, method.labels)
+    used, left, Y, X = _leave_out_totals(ycol, used, left, Y, X, method.labels)
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
     most = method.max_attributes
     if most is not None and len(xcols) > most:
@@ -419,6 +421,36 @@ def _read_rows(
     else:
         Y = data[used, 0].copy()
     return used, left, Y, data[used, 1:].copy()
+
+
+def _leave_out_totals(
+    ycol: Column, used: np.ndarray, left: list[LeftOut], Y: np.ndarray, X: np.ndarray,
+    labels: bool,
+) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray]:
+    """Leave out rows that look like totals or subtotals of the rows above them.
+
+    Compared: y and every attribute (only the attributes when y holds class labels). With
+    a single column to compare, chance equalities are too common to call a row a total,
+    so nothing is left out (``sheetfit.fit.totals`` has the rule).
+    """
+    Z = X if labels else np.column_stack([Y, X])
+    if Z.shape[1] < 2 or len(used) == 0:
+        return used, left, Y, X
+    totals = find_totals(Z)
+    if not totals:
+        return used, left, Y, X
+    what = "every attribute equals its sum" if labels else "y and every attribute equal their sums"
+    keep = np.ones(len(used), dtype=bool)
+    left = list(left)
+    for t in totals:
+        keep[t.row] = False
+        r1, r2 = ycol.row_of(int(used[t.first])), ycol.row_of(int(used[t.last]))
+        extra = f"; its {plural(t.skipped, 'subtotal')} not counted" if t.skipped else ""
+        i = int(used[t.row])
+        left.append(LeftOut(i, ycol.row_of(i),
+                            f"looks like the total of rows {r1}–{r2} ({what}{extra})"))
+    left.sort(key=lambda lo: lo.index)
+    return used[keep], left, Y[keep], X[keep]
 
 
 def _read_new(
