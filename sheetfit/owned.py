@@ -30,8 +30,9 @@ __all__ = [
 #: Every declaration and output name starts with this prefix (case-insensitive).
 PREFIX = "sf_"
 
-#: Roles a user declares: response, attributes, rows to predict, settings.
-INPUT_ROLES = ("y", "x", "new", "opts")
+#: Roles a user declares: response, attributes, rows to predict, settings, and the
+#: identifier columns of the data rows (``key``) and of the rows to predict (``newkey``).
+INPUT_ROLES = ("y", "x", "new", "opts", "key", "newkey")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
 OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")

@@ -1,6 +1,6 @@
 """Find the models declared with defined names and turn their cells into arrays.
 
-A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts),
+A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts, key, newkey),
 workbook- or sheet-scoped. This module checks everything that comes out of the
 named ranges (one place, one wording): references, lengths, headers, values, settings.
 Messages name the file, the defined name, the sheet and the cell. What the numbers themselves must satisfy (enough
@@ -37,6 +37,8 @@ from .refs import Area, RefError, parse_areas
 
 __all__ = [
     "Column",
+    "KeyValue",
+    "Keys",
     "LeftOut",
     "MethodReading",
     "ModelData",
@@ -77,12 +79,33 @@ class LeftOut:
     reason: str
 
 
+#: What an identifier cell holds, as shown beside a row: a number (dates as serials),
+#: text, or None for a blank.
+KeyValue = float | str | None
+
+
+@dataclass
+class Keys:
+    """Identifier columns (a month, a job or invoice number ...) beside the model's rows.
+
+    ``values[j][i]`` is what column j holds in the i-th row of the declared range
+    (all rows, used or not; index as ``Column.cell(i)``).
+    """
+
+    columns: list[Column]
+    values: list[list[KeyValue]]
+
+    def row(self, i: int) -> list[KeyValue]:
+        return [v[i] for v in self.values]
+
+
 @dataclass
 class NewRows:
     """Rows of attribute values to predict (the ``new`` declaration)."""
 
     columns: list[Column]
     X: np.ndarray
+    keys: Keys | None = None
 
     @property
     def n(self) -> int:
@@ -105,6 +128,7 @@ class ModelData:
     X: np.ndarray
     new: NewRows | None = None
     names: dict[str, str] = field(default_factory=dict)
+    keys: Keys | None = None
 
     @property
     def attribute_names(self) -> list[str]:
@@ -344,8 +368,16 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             hint="fill in the data or point the names at it",
         )
     new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
+    if "newkey" in decl.names and new is None:
+        raise DeclarationError(
+            f"model '{tag}' names identifiers of new rows but declares no new rows",
+            Context(file, decl.names["newkey"].name), hint=f"define sf_{tag}_new or drop the name",
+        )
+    keys = (_read_keys(decl.names["key"], pkg, values, file, ya, header)
+            if "key" in decl.names else None)
     names = {role: d.name for role, d in decl.names.items()}
-    model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+    model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names,
+                      keys)
     if method.check is not None:
         method.check(model)
     return model
@@ -496,7 +528,47 @@ def _read_new(
             X[i, j] = v.number
     if n == 0:
         raise DataError("the new rows range holds no rows", Context(file, d.name))
-    return NewRows(cols, X)
+    keys = (_read_keys(decl.names["newkey"], pkg, values, file, areas[0], header)
+            if "newkey" in decl.names else None)
+    return NewRows(cols, X, keys)
+
+
+def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like: Area,
+               header: bool) -> Keys:
+    """Identifier columns that must cover the same sheet rows as ``like`` (y's or new's area).
+
+    Whole columns take the rows of ``like``; the header row, when the model has one,
+    names the columns. Any cell content is accepted: identifiers are shown, never fitted.
+    """
+    areas = [a.with_rows(like.row1, like.row2) if a.whole_columns else a
+             for a in _areas(d, pkg, file)]
+    for a in areas:
+        if (a.row1, a.row2) != (like.row1, like.row2):
+            raise DataError(
+                f"identifiers in {a.a1()} do not cover the rows of the range they name "
+                f"({like.a1()})",
+                Context(file, d.name, a.sheet, a.a1()),
+                hint="point the identifier name at the same rows as the data it names",
+            )
+    offset = 1 if header else 0
+    cols: list[Column] = []
+    vals: list[list[KeyValue]] = []
+    for a, c in _columns(areas):
+        sv = values.sheet(a.sheet)
+        name = sv.get(like.row1, c).text.strip() if header else ""
+        col = Column(name or col_letter(c), a.sheet, c, like.row1 + offset)
+        cols.append(col)
+        vals.append([_key_value(sv.get(col.row_of(i), c))
+                     for i in range(like.n_rows - offset)])
+    return Keys(cols, vals)
+
+
+def _key_value(v: Value) -> KeyValue:
+    if v.kind == NUMBER:
+        return v.number
+    if v.kind == BLANK:
+        return None
+    return v.text
 
 
 def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,
