@@ -2,19 +2,46 @@
 
 from __future__ import annotations
 
+import warnings
+
 from ..declare.model import ModelData
+from ..errors import Context, DataError, FewRowsLevelCaution
 from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult
-from ..settings import Rule, integer, yes_no
+from ..settings import Rule, integer, levels, yes_no
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
 __all__ = ["METHOD"]
 
 _LO, _HI = DEGREE_RANGE
+#: Levels of a text attribute with fewer rows than this get a caution. Common practice
+#: (a rule of thumb, not a law): an indicator estimated from a handful of rows rests on
+#: those rows alone, and one unusual row moves it a lot.
+FEW_LEVEL_ROWS = 5
+
+
+def _warn_few_rows(model: ModelData) -> None:
+    for name, counts in model.level_counts.items():
+        for level, count in counts.items():
+            if count < FEW_LEVEL_ROWS:
+                warnings.warn(FewRowsLevelCaution(
+                    f"text attribute '{name}': level '{level}' has only {count} "
+                    f"row{'' if count == 1 else 's'} (fewer than {FEW_LEVEL_ROWS}, a common "
+                    "rule of thumb); what the model says about it rests on those rows alone"),
+                    stacklevel=2)
+
+
+def _check(model: ModelData) -> None:
+    if model.baselines and int(model.settings["degree"]) > 1:
+        raise DataError(
+            "a polynomial (degree above 1) needs one numeric attribute; "
+            f"'{next(iter(model.baselines))}' is a text attribute",
+            Context(model.file, model.names.get("opts", model.names.get("x"))), hint="fit degree 1, or use a numeric attribute")
 
 
 def _fit(model: ModelData) -> LeastSquaresResult:
+    _warn_few_rows(model)
     st = model.settings
     est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
     return est.fit(model.X, model.Y, names=model.attribute_names)
@@ -23,7 +50,11 @@ def _fit(model: ModelData) -> LeastSquaresResult:
 def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
     r2 = "R² (uncentred)" if res.r2_uncentred_ else "R²"
     coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms_, res.coef_))
-    return [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
+    lines = [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
+    if model.baselines:
+        lines.append("text attributes measured against baseline " + "; ".join(
+            f"{name} = {level}" for name, level in model.baselines.items()))
+    return lines
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
@@ -45,7 +76,12 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("intercept", "yes or no", True, yes_no, "whether the model has a constant term"),
         Rule("degree", f"a whole number from {_LO} to {_HI}", 1, integer(_LO, _HI),
              "polynomial degree in the one attribute (2 adds x^2, ...)"),
+        Rule("baseline", "a level of each text attribute, separated by ; in the order of x",
+             None, levels, "the level of a text attribute the others are measured against "
+             "(default: its most frequent level)"),
     ),
+    text_attributes=True,
+    check=_check,
     fit=_fit,
     plan=plan_least_squares,
     figures=_figures,

@@ -122,7 +122,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         fs.put(r, 0, int(y.row_of(int(idx))), style="int")
         fs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
         formula, value, terms_row = _prediction(
-            coef, coef_ref, intercept, specs, [c.cell(int(idx)) for c in model.xs], model.X[i])
+            coef, coef_ref, intercept, specs, [c.value_ref(int(idx)) for c in model.xs],
+            model.X[i])
         for k, (ref, tv) in enumerate(terms_row):
             fs.put(r, 2 + k, tv, f"={ref}", "num")
         fitted[i] = value
@@ -207,9 +208,9 @@ def _plan_new(fs: SheetPlan, model: ModelData, coef: np.ndarray, coef_ref: list[
         r = FIRST_ROW + i
         fs.put(r, side, new.columns[0].row_of(i), style="int")
         for j, c in enumerate(new.columns):
-            fs.put(r, side + 1 + j, float(new.X[i, j]), f"={c.cell(i)}", "num")
+            fs.put(r, side + 1 + j, float(new.X[i, j]), f"={c.value_ref(i)}", "num")
         formula, value, _ = _prediction(
-            coef, coef_ref, intercept, specs, [c.cell(i) for c in new.columns], new.X[i])
+            coef, coef_ref, intercept, specs, [c.value_ref(i) for c in new.columns], new.X[i])
         fs.put(r, pcol, value, formula, "num")
     fs.widths[pcol] = 16
     names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, FIRST_ROW + new.n - 1)))
