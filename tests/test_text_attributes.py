@@ -14,7 +14,7 @@ from books import make_book
 
 from sheetfit.declare.model import find_models
 from sheetfit.errors import DataError, FewRowsLevelCaution, SettingError
-from sheetfit.fit.inference import coef_table, intervals
+from sheetfit.fit.inference import coef_table, influence, intervals
 from sheetfit.methods import REGISTRY
 from sheetfit.owned import sheet_title
 from sheetfit.reader.package import open_package
@@ -109,6 +109,17 @@ def test_blank_and_number_in_a_text_attribute_leave_the_row_out(tmp_path: Path) 
     assert len(model.used) == 38
 
 
+def test_totals_compare_numeric_attributes_only(tmp_path: Path) -> None:
+    """A total row under data with a text attribute is found from y and the numbers."""
+    rows = _visits(12)
+    rows.append([sum(r[0] for r in rows[1:]), sum(r[1] for r in rows[1:]), "Total"])
+    model = _model(_book(tmp_path / "t.xlsx", rows))
+    assert [(lo.sheet_row, lo.reason) for lo in model.left_out] == [
+        (14, ("looks like the total of rows 2–13 (y and every numeric attribute equal their "
+             "sums)"))]
+    assert "Total" not in model.level_counts["region"]
+
+
 def test_single_level_is_refused(tmp_path: Path) -> None:
     rows = [r if i == 0 else [r[0], r[1], "Harbour"] for i, r in enumerate(_visits())]
     with pytest.raises(DataError, match="single level"):
@@ -146,8 +157,9 @@ def test_few_rows_caution(tmp_path: Path) -> None:
 
 def test_matches_statsmodels_dummy_coding(tmp_path: Path) -> None:
     """Source: statsmodels formula API, C(region, Treatment(reference=...)): its own dummy
-    coding gives the same coefficients, standard errors, p-values, intervals and
-    predictions (1e-9 relative; see test_fit_inference.py for the tolerance)."""
+    coding gives the same coefficients, standard errors, p-values, intervals, HC3,
+    leverages, Cook's distances and predictions (1e-9 relative; see
+    test_fit_inference.py for the tolerance)."""
     rows = _visits(60, seed=23, isles=3)  # a one-row level has leverage 1: HC3 undefined
     new = [["hours", "region"], [3.0, "Plain"], [9.0, "Isles"], [6.0, "Harbour"]]
     model = _model(_book(tmp_path / "m.xlsx", rows, [["baseline", "Hills"]], new))
@@ -163,6 +175,9 @@ def test_matches_statsmodels_dummy_coding(tmp_path: Path) -> None:
                          (tab.lo, ref.conf_int()[0]), (tab.hi, ref.conf_int()[1]),
                          (tab.hc3_se, ref.HC3_se)]:
         np.testing.assert_allclose(np.asarray(ours)[order], theirs.to_numpy(), rtol=1e-9)
+    inf, got = ref.get_influence(), influence(res)
+    np.testing.assert_allclose(got.leverage, inf.hat_matrix_diag, rtol=1e-9)
+    np.testing.assert_allclose(got.cooks, inf.cooks_distance[0], rtol=1e-9)
     assert model.new is not None
     frame = ref.get_prediction(pd.DataFrame(new[1:], columns=new[0])).summary_frame()
     iv = intervals(res, model.new.X)

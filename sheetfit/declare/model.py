@@ -375,7 +375,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
            if method.text_attributes else [False] * len(xcols))
     used, left, Y, X, texts = _read_rows(ycol, xcols, n_rows, values, method.labels, cat)
     num = [j for j, t in enumerate(cat) if not t]
-    keep, left = _leave_out_totals(ycol, used, left, Y, X[:, num], method.labels)
+    keep, left = _leave_out_totals(ycol, used, left, Y, X[:, num], method.labels,
+                                   len(num) < len(cat))
     used, Y, X = used[keep], Y[keep], X[keep]
     texts = {j: [t for t, k in zip(col, keep) if k] for j, col in texts.items()}
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
@@ -533,7 +534,7 @@ def _expand(xcols: list[Column], X: np.ndarray, texts: dict[int, list[str]],
 
 def _leave_out_totals(
     ycol: Column, used: np.ndarray, left: list[LeftOut], Y: np.ndarray, X: np.ndarray,
-    labels: bool,
+    labels: bool, some_text: bool = False,
 ) -> tuple[np.ndarray, list[LeftOut]]:
     """Which used rows to keep, leaving out rows that look like totals of the rows above.
 
@@ -549,7 +550,8 @@ def _leave_out_totals(
     totals = find_totals(Z)
     if not totals:
         return keep, left
-    what = "every attribute equals its sum" if labels else "y and every attribute equal their sums"
+    attrs = "every numeric attribute" if some_text else "every attribute"
+    what = f"{attrs} equals its sum" if labels else f"y and {attrs} equal their sums"
     left = list(left)
     for t in totals:
         keep[t.row] = False
