@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import inspect
 import math
+from fractions import Fraction
 
 import numpy as np
 import pytest
@@ -222,3 +223,41 @@ def test_anscombe_iv_lone_point_has_leverage_one() -> None:
     # its leave-one-out quantities are undefined, not huge numbers
     assert math.isnan(inf.cooks[lone]) and math.isnan(inf.student[lone])
     assert math.isnan(inf.loo_rmse)
+
+
+def test_breusch_pagan_on_a_collinear_polynomial_matches_exact_arithmetic() -> None:
+    """A cubic in x ≈ 1000 (raw powers nearly collinear): LM equals n·R² of e² on 1, x, x²,
+    x³ computed in exact rational arithmetic (the residuals taken as given), to 1e-9.
+
+    This once lost the 4th digit (a float least-squares solve on the raw powers, whose
+    condition number is about 5e16); the reference here needs no conditioning at all.
+    """
+    rng = np.random.default_rng(1)
+    x = rng.uniform(1000, 1010, 40)
+    y = 1 + 2 * x - 0.001 * x**2 + 1e-6 * x**3 + rng.normal(0, 0.1, 40) * (x - 999)
+    res = LeastSquares(degree=3).fit(x[:, None], y)
+    e2 = [Fraction(float(v)) ** 2 for v in res.resid_]
+    cols = [[Fraction(float(v)) ** k for v in x] for k in range(4)]
+    gram = [[sum(a * b for a, b in zip(ci, cj)) for cj in cols] for ci in cols]
+    rhs = [sum(a * b for a, b in zip(ci, e2)) for ci in cols]
+    beta = _solve_exact(gram, rhs)
+    fit = [sum(b * c[i] for b, c in zip(beta, cols)) for i in range(40)]
+    mean = sum(e2) / 40
+    r2 = 1 - sum((a - f) ** 2 for a, f in zip(e2, fit)) / sum((a - mean) ** 2 for a in e2)
+    lm, _ = breusch_pagan(res)
+    assert lm == pytest.approx(float(40 * r2), rel=1e-9)
+
+
+def _solve_exact(a: list[list[Fraction]], b: list[Fraction]) -> list[Fraction]:
+    """Gauss–Jordan elimination in rationals (small, nonsingular systems)."""
+    m = [row[:] + [v] for row, v in zip(a, b)]
+    size = len(m)
+    for c in range(size):
+        piv = next(r for r in range(c, size) if m[r][c] != 0)
+        m[c], m[piv] = m[piv], m[c]
+        m[c] = [v / m[c][c] for v in m[c]]
+        for r in range(size):
+            if r != c and m[r][c] != 0:
+                f = m[r][c]
+                m[r] = [v - f * w for v, w in zip(m[r], m[c])]
+    return [row[-1] for row in m]
