@@ -250,7 +250,7 @@ def test_output_name_left_at_ref_error_is_replaced(tmp_path: Path) -> None:
                    "sf_a_coef": "#REF!"})
     refresh(p)
     names = {d.name: d.text for d in open_package(p).defined_names}
-    assert names["sf_a_coef"] == "'sf a coef'!$B$8:$B$9"
+    assert names["sf_a_coef"] == "'sf a coef'!$B$5:$B$6"
 
 
 def test_identifier_columns_follow_the_rows_they_name(tmp_path: Path) -> None:
@@ -284,3 +284,25 @@ def test_identifiers_must_cover_the_same_rows(tmp_path: Path) -> None:
                    "sf_a_newkey": "Data!$C$1:$C$7"})
     with pytest.raises(DeclarationError, match="declares no new rows"):
         _models(p)
+
+
+def test_rule_declarations_are_checked(tmp_path: Path) -> None:
+    """The rule must be numbers, one per term, and only on a least-squares model."""
+    base = {"sf_a_y": "Data!$A$1:$A$7", "sf_a_x": "Data!$B$1:$B$7"}
+    p = make_book(tmp_path / "a.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0], [3.0]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$3"})
+    with pytest.raises(DataError, match="the rule has 3 coefficients but the model has 2 terms"):
+        _models(p)
+    p = make_book(tmp_path / "b.xlsx", {"Data": line_rows(6), "Rule": [[1.0], ["two"]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2"})
+    with pytest.raises(DataError, match="text 'two' where a number is needed"):
+        _models(p)
+    p = make_book(tmp_path / "c.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0]],
+                                        "Opts": [["method", "neighbour_mean"]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2", "sf_a_opts": "Opts!$A$1:$B$1"})
+    with pytest.raises(DeclarationError, match="no coefficients to compare with a rule"):
+        _models(p)
+    p = make_book(tmp_path / "d.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2"})
+    (m,) = _models(p)
+    assert m.rule is not None and m.rule.cells == ["Rule!A1", "Rule!A2"]

@@ -1,6 +1,7 @@
 """Find the models declared with defined names and turn their cells into arrays.
 
-A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts, key, newkey),
+A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts, key, newkey,
+rule),
 workbook- or sheet-scoped. This module checks everything that comes out of the
 named ranges (one place, one wording): references, lengths, headers, values, settings.
 Messages name the file, the defined name, the sheet and the cell. What the numbers themselves must satisfy (enough
@@ -45,6 +46,7 @@ __all__ = [
     "MethodReading",
     "ModelData",
     "NewRows",
+    "RuleCells",
     "describe_value",
     "find_models",
 ]
@@ -115,6 +117,15 @@ class Keys:
         return [v[i] for v in self.values]
 
 
+@dataclass(frozen=True)
+class RuleCells:
+    """The coefficients of the rule in use today: their cells (as formula references), values."""
+
+    name: str
+    cells: list[str]
+    values: np.ndarray
+
+
 @dataclass
 class NewRows:
     """Rows of attribute values to predict (the ``new`` declaration)."""
@@ -145,6 +156,10 @@ class ModelData:
     new: NewRows | None = None
     names: dict[str, str] = field(default_factory=dict)
     keys: Keys | None = None
+    rule: RuleCells | None = None
+    #: What people typed on this model's owned sheets at the last refresh, to be written
+    #: back (by sheet kind, then row identity): filled by the refresh, not a declaration.
+    kept: dict[str, dict[str, list[str | float]]] = field(default_factory=dict)
     #: Text attribute (its header name) → its baseline level, for methods that code
     #: text attributes as indicators (``Method.text_attributes``); empty otherwise.
     baselines: dict[str, str] = field(default_factory=dict)
@@ -234,6 +249,9 @@ class MethodReading(MethodSettings, Protocol):
 
     @property
     def check(self) -> Callable[[ModelData], None] | None: ...
+
+    @property
+    def compares_rule(self) -> bool: ...
 
 
 def find_models(pkg: Package, values: BookValues, file: str,
@@ -417,10 +435,15 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
         )
     keys = (_read_keys(decl.names["key"], pkg, values, file, ya, header)
             if "key" in decl.names else None)
+    rule = _read_rule(decl.names["rule"], pkg, values, file) if "rule" in decl.names else None
+    if rule is not None and not method.compares_rule:
+        raise DeclarationError(
+            f"a {method.title} model has no coefficients to compare with a rule",
+            Context(file, rule.name), hint="declare the rule on a least-squares model")
     names = {role: d.name for role, d in decl.names.items()}
     model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names,
-                      keys, {c.name: c.baseline for c in codings.values()},
-                      {c.name: dict(c.counts) for c in codings.values()})
+                      keys, rule, baselines={c.name: c.baseline for c in codings.values()},
+                      level_counts={c.name: dict(c.counts) for c in codings.values()})
     if method.check is not None:
         method.check(model)
     return model
@@ -670,6 +693,29 @@ def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like
         vals.append([_key_value(sv.get(col.row_of(i), c))
                      for i in range(like.n_rows - offset)])
     return Keys(cols, vals)
+
+
+def _read_rule(d: DefinedName, pkg: Package, values: BookValues, file: str) -> RuleCells:
+    """The rule's coefficients: numbers in a column or a row, read in order."""
+    cells: list[str] = []
+    nums: list[float] = []
+    for a in _areas(d, pkg, file):
+        if a.whole_columns:
+            raise DataError("the rule's coefficients must be a few cells, not whole columns",
+                            Context(file, d.name, a.sheet, a.a1()),
+                            hint="point the name at the cells holding the rule's coefficients")
+        sv = values.sheet(a.sheet)
+        for r in range(a.row1, a.row2 + 1):
+            for c in range(a.col1, a.col2 + 1):
+                v = sv.get(r, c)
+                if v.kind != NUMBER:
+                    raise DataError(
+                        f"the rule's coefficients hold {describe_value(v)} where a number is "
+                        "needed", Context(file, d.name, a.sheet, cell_ref(r, c)),
+                        hint="give the rule's coefficients as numbers, intercept first")
+                cells.append(f"{quote_sheet(a.sheet)}!{cell_ref(r, c)}")
+                nums.append(v.number)
+    return RuleCells(d.name, cells, np.array(nums))
 
 
 def _key_value(v: Value) -> KeyValue:

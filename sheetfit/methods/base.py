@@ -43,3 +43,5 @@ class Method(Generic[R]):
     #: without it a text cell in x leaves its row out.
     text_attributes: bool = False
     check: Callable[[ModelData], None] | None = None
+    #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
+    compares_rule: bool = False

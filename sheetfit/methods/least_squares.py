@@ -7,8 +7,9 @@ import warnings
 from ..declare.model import ModelData
 from ..errors import Context, DataError, FewRowsLevelCaution
 from ..fit.checks import DEGREE_RANGE
-from ..fit.leastsq import LeastSquares, LeastSquaresResult
-from ..settings import Rule, integer, levels, yes_no
+from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
+from ..settings import Rule, amount_or_sd, integer, levels, share, yes_no
+from ..sheets._ls_words import least_squares_cautions
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
@@ -32,19 +33,34 @@ def _warn_few_rows(model: ModelData) -> None:
                     stacklevel=2)
 
 
-def _check(model: ModelData) -> None:
-    if model.baselines and int(model.settings["degree"]) > 1:
-        raise DataError(
-            "a polynomial (degree above 1) needs one numeric attribute; "
-            f"'{next(iter(model.baselines))}' is a text attribute",
-            Context(model.file, model.names.get("opts", model.names.get("x"))), hint="fit degree 1, or use a numeric attribute")
-
-
 def _fit(model: ModelData) -> LeastSquaresResult:
     _warn_few_rows(model)
     st = model.settings
     est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
     return est.fit(model.X, model.Y, names=model.attribute_names)
+
+
+def _check(model: ModelData) -> None:
+    """A polynomial has a numeric attribute; a declared rule has one coefficient per term,
+    in the coefficient column's order."""
+    if model.baselines and int(model.settings["degree"]) > 1:
+        raise DataError(
+            "a polynomial (degree above 1) needs one numeric attribute; "
+            f"'{next(iter(model.baselines))}' is a text attribute",
+            Context(model.file, model.names.get("opts", model.names.get("x"))),
+            hint="fit degree 1, or use a numeric attribute")
+    rule = model.rule
+    if rule is None:
+        return
+    st = model.settings
+    degree = int(st["degree"])
+    p = int(bool(st["intercept"])) + (degree if degree > 1 else len(model.xs))
+    if len(rule.values) != p:
+        terms = _term_names(model.attribute_names, bool(st["intercept"]), degree)
+        raise DataError(
+            f"the rule has {len(rule.values)} coefficients but the model has {p} terms "
+            f"({', '.join(terms)})", Context(model.file, rule.name),
+            hint="give one coefficient per term, in that order")
 
 
 def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
@@ -58,14 +74,7 @@ def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
-    out = []
-    if res.r2_uncentred_:
-        out.append("no intercept: R² is uncentred (about zero) and reads higher than a "
-                   "centred R²")
-    if res.df_resid_ < 10:
-        out.append(f"only {res.df_resid_} residual degrees of freedom: R² and the residual "
-                   "SD are unstable")
-    return out
+    return least_squares_cautions(res)
 
 
 METHOD: Method[LeastSquaresResult] = Method(
@@ -76,12 +85,18 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("intercept", "yes or no", True, yes_no, "whether the model has a constant term"),
         Rule("degree", f"a whole number from {_LO} to {_HI}", 1, integer(_LO, _HI),
              "polynomial degree in the one attribute (2 adds x^2, ...)"),
+        Rule("level", "a share from 0.5 to 0.999", 0.95, share(0.5, 0.999),
+             "confidence level of the coefficient ranges and prediction intervals"),
+        Rule("threshold", "an amount (250) or a multiple of the residual SD (2 sd)", None,
+             amount_or_sd, "audit: list the rows whose actual differs from the fitted value "
+             "by more than this, on an audit sheet"),
         Rule("baseline", "a level of each text attribute, separated by ; in the order of x",
              None, levels, "the level of a text attribute the others are measured against "
              "(default: its most frequent level)"),
     ),
     text_attributes=True,
     check=_check,
+    compares_rule=True,
     fit=_fit,
     plan=plan_least_squares,
     figures=_figures,
