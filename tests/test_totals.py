@@ -205,3 +205,18 @@ def test_too_few_rows_after_totals_still_refused(tmp_path: Path) -> None:
     assert len(model.used) == 2
     with pytest.raises(DataError, match="rows"):
         fit_model(model)
+
+
+def test_worksheet_function_leaves_the_total_out_too() -> None:
+    """The worksheet functions read rows as a refresh does: the total row is left out."""
+    from sheetfit.functions import fit_coefficients
+
+    data = _routes(15)
+    cells = [["cost", "stops", "km"]] + [list(map(float, r)) for r in data]
+    total = [list(map(float, data.sum(axis=0)))]
+    y = [[r[0]] for r in cells]
+    x = [r[1:] for r in cells]
+    plain = fit_coefficients(y, x)
+    with_total = fit_coefficients(y + [[total[0][0]]], x + [total[0][1:]])
+    assert with_total == plain
+    assert [r[1] for r in plain[1:]] == list(LeastSquares().fit(data[:, 1:], data[:, 0]).coef_)

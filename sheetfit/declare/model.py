@@ -20,6 +20,7 @@ import numpy as np
 from ..a1 import cell_ref, col_letter, quote_sheet
 from ..errors import Context, DataError, DeclarationError, NoModelsError
 from ..fit.totals import find_totals
+from ..fit.totals import reason as totals_reason
 from ..labels import label_text
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
 from ..reader.package import DefinedName, Package
@@ -579,10 +580,8 @@ def _leave_out_totals(
     for t in totals:
         keep[t.row] = False
         r1, r2 = ycol.row_of(int(used[t.first])), ycol.row_of(int(used[t.last]))
-        extra = f"; its {plural(t.skipped, 'subtotal')} not counted" if t.skipped else ""
         i = int(used[t.row])
-        left.append(LeftOut(i, ycol.row_of(i),
-                            f"looks like the total of rows {r1}–{r2} ({what}{extra})"))
+        left.append(LeftOut(i, ycol.row_of(i), totals_reason(r1, r2, t, what)))
     left.sort(key=lambda lo: lo.index)
     return keep, left
 

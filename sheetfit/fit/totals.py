@@ -38,7 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["TOTAL_RTOL", "Total", "find_totals"]
+__all__ = ["TOTAL_RTOL", "Total", "find_totals", "reason"]
 
 #: Relative tolerance of "equal to the sum" (9 significant digits; see the module note).
 TOTAL_RTOL = 1e-9
@@ -91,6 +91,13 @@ class _Running:
         if self.count < MIN_BLOCK:
             return False
         return bool(np.all(np.abs(row - self.total) <= TOTAL_RTOL * self.size))
+
+
+def reason(first: int, last: int, total: Total, what: str) -> str:
+    """Why the row is left out, in plain words; ``first``/``last`` name the block's rows."""
+    extra = f"; its {total.skipped} subtotal{'s' if total.skipped != 1 else ''} not counted" \
+        if total.skipped else ""
+    return f"looks like the total of rows {first}–{last} ({what}{extra})"
 
 
 def find_totals(Z: np.ndarray) -> list[Total]:
