@@ -41,6 +41,9 @@ class Method(Generic[R]):
     required: tuple[str, ...] = ()
     labels: bool = False
     max_attributes: int | None = None
+    #: Whether text attributes are read as 0/1 indicator columns (``declare/levels.py``);
+    #: without it a text cell in x leaves its row out.
+    text_attributes: bool = False
     check: Callable[[ModelData], None] | None = None
     standing: tuple[str, ...] = ()
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.

@@ -127,7 +127,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         put_keys(fs, r, 1, keys, int(idx), kstyles)
         fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", amount)
         formula, value, terms_row = _prediction(
-            coef, coef_ref, intercept, specs, [c.cell(int(idx)) for c in model.xs], model.X[i])
+            coef, coef_ref, intercept, specs, [c.value_ref(int(idx)) for c in model.xs],
+            model.X[i])
         for k, (ref, tv) in enumerate(terms_row):
             fs.put(r, first_term + k, tv, f"={ref}", term_styles[k])
         fitted[i] = value
@@ -232,7 +233,7 @@ def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, in
     values = np.empty(len(model.used))
     for i, idx in enumerate(model.used):
         formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
-                                        [c.cell(int(idx)) for c in model.xs], model.X[i])
+                                        [c.value_ref(int(idx)) for c in model.xs], model.X[i])
         values[i] = value
         fs.put(FIRST_ROW + i, col, value, formula, style)
     fs.widths[col] = 16
@@ -284,9 +285,11 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
         fs.put(r, side, new.columns[0].row_of(i), style="row")
         put_keys(fs, r, side + 1, keys, i, kstyles)
         for j, col in enumerate(new.columns):
-            fs.put(r, side + 1 + nk + j, float(new.X[i, j]), f"={col.cell(i)}", x_styles[j])
+            fs.put(r, side + 1 + nk + j, float(new.X[i, j]), f"={col.value_ref(i)}",
+                   x_styles[j])
         formula, value, _ = _prediction(
-            coef, coef_ref, intercept, specs, [col.cell(i) for col in new.columns], new.X[i])
+            coef, coef_ref, intercept, specs, [col.value_ref(i) for col in new.columns],
+            new.X[i])
         fs.put(r, pcol, value, formula, style)
         lev = float(iv.leverage[i])
         fs.put(r, pcol + 1, lev, style="ratio")
