@@ -190,10 +190,12 @@ def main(argv: Sequence[str] | None = None) -> int:
                 return _refused("--report is for a folder or pattern of books; "
                                 f"{args.book} is one book")
             if args.command == "refresh":
+                from .batch.progress import phases
                 from .refresh import refresh
 
-                report = refresh(args.book, args.out, force=args.force, backup=args.backup,
-                                 wait=args.wait)
+                with phases(args.book) as on_phase:
+                    report = refresh(args.book, args.out, force=args.force, backup=args.backup,
+                                     wait=args.wait, on_phase=on_phase)
                 print(report.text())
         return EXIT_OK
     except SheetfitError as exc:
