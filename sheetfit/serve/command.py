@@ -43,10 +43,6 @@ def _loopback(host: str) -> bool:
 
 def command(host: str, port: int, max_mb: float, time_limit: float) -> int:
     """Serve until stopped; the exit status (2 when the address or token cannot be used)."""
-    import uvicorn
-
-    from .app import create_app
-
     try:
         token, generated = token_from_env()
     except ValueError as exc:
@@ -58,6 +54,10 @@ def command(host: str, port: int, max_mb: float, time_limit: float) -> int:
         print(f"sheetfit: refused: cannot listen on {host}:{port} ({exc.strerror or exc}) — "
               "choose another --port, or --port 0 for a free one", file=sys.stderr)
         return 2
+    import uvicorn  # only now: a refusal above need not wait for the web stack to load
+
+    from .app import create_app
+
     bound = sock.getsockname()[1]
     where = f"[{host}]" if ":" in host else host
     config = ServeConfig(token=token, max_bytes=int(max_mb * MB), time_limit=time_limit)
