@@ -132,23 +132,28 @@ function showModels(models) {
   $("models-empty").hidden = models.length > 0;
 }
 
-function resetPhases() {
-  for (const li of document.querySelectorAll("#phases li")) {
-    li.className = "";
-    li.removeAttribute("aria-current");
+function markPhase(li, state) {
+  // The dots show the state; the words in .sr-only say it to a screen reader.
+  li.className = state;
+  let said = li.querySelector(".sr-only");
+  if (!said) {
+    said = el("span", "", "sr-only");
+    li.append(said);
   }
+  said.textContent = state === "done" ? " (done)" : state === "current" ? " (under way)" : "";
+  if (state === "current") li.setAttribute("aria-current", "step");
+  else li.removeAttribute("aria-current");
+}
+
+function resetPhases() {
+  for (const li of document.querySelectorAll("#phases li")) markPhase(li, "");
 }
 
 function showPhase(phase, finished) {
   const at = PHASES.indexOf(phase);
   for (const li of document.querySelectorAll("#phases li")) {
     const i = PHASES.indexOf(li.dataset.phase);
-    li.removeAttribute("aria-current");
-    if (i < at || (finished && i === at)) li.className = "done";
-    else if (i === at) {
-      li.className = "current";
-      li.setAttribute("aria-current", "step");
-    } else li.className = "";
+    markPhase(li, i < at || (finished && i === at) ? "done" : i === at ? "current" : "");
   }
 }
 
@@ -165,6 +170,7 @@ async function inspect(file) {
   hideDownload();
   resetPhases();
   showModels([]);
+  $("models-empty").textContent = "Choose a workbook to see its models here.";
   $("refresh").disabled = true;
   $("book-name").textContent = file.name + " (" + Math.ceil(file.size / 1024) + " KB)";
   say("Reading " + file.name + " and fitting its models…");
@@ -179,7 +185,8 @@ async function inspect(file) {
           (data.models.length === 1 ? "" : "s") + " declared. Ready to refresh.");
     } else if (data.status === "refused") {
       showRefusal(data);
-      say(file.name + " cannot be used as it is; see the message below.");
+      $("models-empty").textContent = "No models to show until the workbook is corrected.";
+      say(file.name + " cannot be used as it is; the reason follows.");
     } else {
       say(data.message);
     }
@@ -206,8 +213,8 @@ async function refreshBook() {
     while (!FINISHED.includes(job.state)) {
       if (job.phase) {
         showPhase(job.phase, false);
-        say("Refreshing: " + document.querySelector(
-          '#phases li[data-phase="' + job.phase + '"]').textContent.toLowerCase() + "…");
+        const li = document.querySelector('#phases li[data-phase="' + job.phase + '"]');
+        say("Refreshing: " + li.firstChild.textContent.toLowerCase() + "…");
       } else {
         say("Waiting for a worker…");
       }
@@ -232,7 +239,7 @@ async function finish(job) {
   if (job.state === "refused") {
     resetPhases();
     showRefusal(job.refusal);
-    say("The workbook was not refreshed; see the message below.");
+    say("The workbook was not refreshed; the reason is given after the workbook step.");
     return;
   }
   if (job.state !== "refreshed") {
