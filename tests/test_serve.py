@@ -430,3 +430,17 @@ def test_sheetfit_serve_refuses_a_short_token_and_a_taken_port(
         assert main(["serve", "--port", str(taken.getsockname()[1])]) == 2
     err = capsys.readouterr().err
     assert "cannot listen" in err and err.count("\n") == 1
+
+
+def test_the_page_files_are_package_data() -> None:
+    """A wheel carries the page: pyproject's package data covers every file the page serves."""
+    import fnmatch
+    import tomllib
+
+    from sheetfit.serve.page import PAGE_FILES
+
+    data = tomllib.loads((ROOT / "pyproject.toml").read_text())
+    globs = data["tool"]["setuptools"]["package-data"]["sheetfit.serve"]
+    for name in PAGE_FILES:
+        assert (ROOT / "sheetfit" / "serve" / "page" / name).is_file()
+        assert any(fnmatch.fnmatch(f"page/{name}", g) for g in globs), name
