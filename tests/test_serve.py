@@ -444,3 +444,17 @@ def test_the_page_files_are_package_data() -> None:
     for name in PAGE_FILES:
         assert (ROOT / "sheetfit" / "serve" / "page" / name).is_file()
         assert any(fnmatch.fnmatch(f"page/{name}", g) for g in globs), name
+
+
+def test_an_internal_fault_is_500_with_exit_1() -> None:
+    """A worker's unexpected exception comes back as a fault (the CLI's exit 1), not a crash."""
+    from sheetfit.serve.api import failure
+
+    out = Workers(1).run("function", {"name": "no_such_function", "args": {}},
+                         time.monotonic() + 30)
+    assert out.kind == "fault" and "KeyError" in out.payload
+    reply = failure(out, 30)
+    body = json.loads(bytes(reply.body))
+    assert reply.status_code == 500
+    assert (body["status"], body["exit"]) == ("fault", 1)
+    assert body["message"].startswith("internal fault (KeyError") and "report" in body["message"]
