@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from .config import ServeConfig
-from .work import Workers
+from .work import Outcome, Workers
 
 __all__ = ["FINISHED", "Job", "JobStore", "StoreFull"]
 
@@ -99,10 +99,13 @@ class JobStore:
         def on_phase(name: str) -> None:
             job.state, job.phase = "working", name
 
-        out = self._workers.run(
-            "refresh", {"src": job.file, "cwd": str(job.upload.parent), "out": str(job.book),
-                        "now": now},
-            deadline, on_phase=on_phase, cancelled=job.cancel.is_set)
+        try:
+            out = self._workers.run(
+                "refresh", {"src": job.file, "cwd": str(job.upload.parent),
+                            "out": str(job.book), "now": now},
+                deadline, on_phase=on_phase, cancelled=job.cancel.is_set)
+        except Exception as exc:  # noqa: BLE001 - a job must always finish (and so expire)
+            out = Outcome("fault", f"{type(exc).__name__}: {exc}")
         with self._lock:
             if out.kind == "done":
                 job.result, job.state = out.payload, "refreshed"
