@@ -165,3 +165,23 @@ def test_keyboard_alone_reaches_everything_in_order(page: Any, tmp_path: Path) -
         page.keyboard.press("Enter")
     caught.value.save_as(str(tmp_path / "by-keyboard.xlsx"))
     assert (tmp_path / "by-keyboard.xlsx").stat().st_size > 0
+
+
+def test_dropping_a_book_on_the_drop_zone_reads_it(page: Any) -> None:
+    import base64
+
+    _give_token(page)
+    data = base64.b64encode(EXAMPLE.read_bytes()).decode()
+    dropped = page.evaluate_handle(
+        """(b64) => {
+             const bytes = Uint8Array.from(atob(b64), (c) => c.charCodeAt(0));
+             const dt = new DataTransfer();
+             dt.items.add(new File([bytes], "delivery_costs.xlsx"));
+             return dt;
+           }""", data)
+    page.dispatch_event("#drop", "dragover", {"dataTransfer": dropped})
+    assert "over" in (page.get_attribute("#drop", "class") or "")  # the zone shows it
+    page.dispatch_event("#drop", "drop", {"dataTransfer": dropped})
+    expect(page.locator("article")).to_have_count(2)
+    assert "over" not in (page.get_attribute("#drop", "class") or "")
+    expect(page.get_by_role("status")).to_contain_text("2 models declared")

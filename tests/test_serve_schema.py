@@ -22,7 +22,7 @@ from schemathesis.specs.openapi.checks import (
 from serving import AUTH, serving
 
 #: Generated requests per operation and mode: 15 operations keep the run to seconds.
-EXAMPLES = 5
+EXAMPLES = 4
 #: The operations, from the committed schema (test_serve.py keeps it equal to the served one).
 _SCHEMA = json.loads((Path(__file__).resolve().parents[1] / "docs" / "openapi.json").read_text())
 OPERATIONS = [(method.upper(), path) for path, ops in _SCHEMA["paths"].items() for method in ops]
