@@ -75,11 +75,13 @@ def page(browser: Any, base: str) -> Iterator[Any]:
     context.close()
 
 
-def _shot(page: Any, name: str) -> Path:
+def _shot(page: Any, name: str, capsys: pytest.CaptureFixture[str]) -> Path:
+    """Keep a full-page screenshot and say where, past pytest's capture (so CI logs show it)."""
     ARTEFACTS.mkdir(parents=True, exist_ok=True)
     path = ARTEFACTS / name
     page.screenshot(path=str(path), full_page=True)
-    print(f"screenshot: {path}")
+    with capsys.disabled():
+        print(f"\nscreenshot of the page: {path}")
     return path
 
 
@@ -88,7 +90,8 @@ def _give_token(page: Any, token: str = TOKEN) -> None:
     page.get_by_role("button", name="Use this token").click()
 
 
-def test_upload_see_models_refresh_and_download(page: Any, tmp_path: Path) -> None:
+def test_upload_see_models_refresh_and_download(page: Any, tmp_path: Path,
+                                                capsys: pytest.CaptureFixture[str]) -> None:
     expected = tmp_path / "cli.xlsx"
     refresh(EXAMPLE, expected, NOW)  # the CLI's core, at the service's fixed time
 
@@ -120,10 +123,11 @@ def test_upload_see_models_refresh_and_download(page: Any, tmp_path: Path) -> No
     assert caught.value.suggested_filename == "delivery_costs-refreshed.xlsx"
     assert got.read_bytes() == expected.read_bytes()
     assert "Refreshed at 2026-03-31 18:00:00 UTC" in page.get_by_role("status").inner_text()
-    _shot(page, "page.png")
+    _shot(page, "page.png", capsys)
 
 
-def test_a_refused_book_is_explained_in_plain_words(page: Any, tmp_path: Path) -> None:
+def test_a_refused_book_is_explained_in_plain_words(page: Any, tmp_path: Path,
+                                                    capsys: pytest.CaptureFixture[str]) -> None:
     book = make_book(tmp_path / "book.xlsx", {"Data": line_rows(8)},
                      {"sf_a_y": "Data!$A$1:$A$9", "sf_a_x": "Data!$B$1:$B$5"})
     _give_token(page)
@@ -134,7 +138,7 @@ def test_a_refused_book_is_explained_in_plain_words(page: Any, tmp_path: Path) -
     assert "This workbook was not used" in text
     assert "file book.xlsx, defined name sf_a_x, sheet 'Data', cell B1:B5" in text
     assert page.get_by_role("button", name="Refresh the workbook").is_disabled()
-    _shot(page, "page-refusal.png")
+    _shot(page, "page-refusal.png", capsys)
 
 
 def test_a_wrong_token_is_said_so(page: Any) -> None:
