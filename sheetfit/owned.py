@@ -30,11 +30,13 @@ __all__ = [
 #: Every declaration and output name starts with this prefix (case-insensitive).
 PREFIX = "sf_"
 
-#: Roles a user declares: response, attributes, rows to predict, settings.
-INPUT_ROLES = ("y", "x", "new", "opts")
+#: Roles a user declares: response, attributes, rows to predict, settings, the
+#: identifier columns of the data rows (``key``) and of the rows to predict (``newkey``),
+#: and the coefficients of the rule in use today (``rule``, least squares).
+INPUT_ROLES = ("y", "x", "new", "opts", "key", "newkey", "rule")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
-OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "se", "robust", "predlow", "predhigh")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
 #: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
@@ -52,6 +54,7 @@ SHEET_KINDS = {
     "nbrs": "nbrs",
     "summary": "summary",
     "strip": "strip",
+    "audit": "audit",
 }
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.

@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
+from .carry import read_kept
 from .declare.model import ModelData, find_models
 from .errors import (
     Context,
@@ -34,7 +35,7 @@ from .writer.graft import OutputName, graft
 from .writer.render import render
 from .writer.target import DEFAULT_WAIT, backup_path, destination, exclusive
 
-__all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
+__all__ = ["RefreshReport", "fit_model", "plan_book", "read_models", "refresh"]
 
 
 @dataclass
@@ -110,6 +111,16 @@ def _values(pkg: Package, path: Path) -> BookValues:
     return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
 
 
+def read_models(pkg: Package, path: Path, file: str) -> list[ModelData]:
+    """Every declared model of an opened book, read as a refresh reads it (with the notes
+    people typed on its owned sheets); the service's inspection reads books through this."""
+    with _values(pkg, path) as values:
+        models = find_models(pkg, values, file, REGISTRY)
+        for m in models:  # notes people typed on owned sheets, put back after
+            m.kept = read_kept(values, m.tag)
+    return models
+
+
 def refresh(book: str | Path, out: str | Path | None = None,
             now: dt.datetime | None = None, *, force: bool = False, backup: bool = False,
             wait: float = DEFAULT_WAIT,
@@ -140,8 +151,7 @@ def refresh(book: str | Path, out: str | Path | None = None,
             kept = backup_path(dest.path) if backup and dest.exists else None
             phase("read")
             pkg = open_package(source)
-            with _values(pkg, source) as values:
-                models = find_models(pkg, values, file, REGISTRY)
+            models = read_models(pkg, source, file)
             phase("fit")
             fits = [(m, fit_model(m)) for m in models]
             phase("write")

@@ -2,8 +2,8 @@
 
 Each task returns plain data (dicts and lists that pickle and serialise as JSON) and
 raises SheetfitError for a refusal, exactly as the command line's core does. Every number
-comes from the refresh core: ``refresh`` itself, or its ``fit_model`` and ``plan_book``
-on the declarations it reads; the functions are ``sheetfit.functions``.
+comes from the refresh core: ``refresh`` itself, or its ``read_models``, ``fit_model``
+and ``plan_book``; the functions are ``sheetfit.functions``.
 """
 
 from __future__ import annotations
@@ -15,11 +15,11 @@ from pathlib import Path
 from typing import Any
 
 from .. import functions
-from ..declare.model import ModelData, find_models
+from ..declare.model import ModelData
 from ..errors import SheetfitError
 from ..methods import REGISTRY
 from ..reader.package import open_package
-from ..refresh import _values, fit_model, plan_book, refresh
+from ..refresh import fit_model, plan_book, read_models, refresh
 from ..summary import ModelSummary
 from ..words import clip
 
@@ -82,9 +82,7 @@ def inspect_book(src: str, now: dt.datetime | None, on_phase: OnPhase) -> dict[s
     path = Path(src)
     try:
         on_phase("read")
-        pkg = open_package(path)
-        with _values(pkg, path) as values:
-            models = find_models(pkg, values, path.name, REGISTRY)
+        models = read_models(open_package(path), path, path.name)
         on_phase("fit")
         fits = [(m, fit_model(m)) for m in models]
         stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
