@@ -234,7 +234,10 @@ def test_inspect_shows_what_the_refresh_writes(client: httpx.Client, tmp_path: P
         assert (g["rows_used"], g["rows_left_out"], g["new_rows"]) == \
             (m.n_used, m.n_left_out, m.n_new)
     route = {s["name"]: s for s in got["route"]["settings"]}
-    assert set(route) == {"method", "intercept", "degree"}
+    from sheetfit.methods import REGISTRY
+
+    assert list(route) == ["method"] + [r.name for r in REGISTRY["least_squares"].rules]
+    assert route["intercept"]["given"] and not route["degree"]["given"]
     assert route["method"]["value"] == "least_squares"
 
 
