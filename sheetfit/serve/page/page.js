@@ -69,7 +69,7 @@ function showRefusal(r) {
 function valueText(v) {
   if (v === true) return "yes";
   if (v === false) return "no";
-  if (v === null || v === undefined) return "chosen by the method";
+  if (v === null || v === undefined) return "not set";
   return String(v);
 }
 
@@ -92,7 +92,7 @@ function modelCard(m) {
   const table = el("table", null, "settings");
   table.append(el("caption", "Settings"));
   const headRow = el("tr");
-  for (const h of ["setting", "value", "from"]) {
+  for (const h of ["setting", "value", "from", "what it does"]) {
     const th = el("th", h);
     th.scope = "col";
     headRow.append(th);
@@ -105,8 +105,8 @@ function modelCard(m) {
     const tr = el("tr");
     const th = el("th", s.name);
     th.scope = "row";
-    th.title = s.meaning;
-    tr.append(th, el("td", valueText(s.value)), el("td", s.given ? "the workbook" : "default"));
+    tr.append(th, el("td", valueText(s.value)), el("td", s.given ? "the workbook" : "default"),
+              el("td", s.meaning, "meaning"));
     body.append(tr);
   }
   table.append(body);
