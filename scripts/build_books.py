@@ -60,9 +60,12 @@ def build_delivery_costs(path: Path) -> None:
     wb.define_name("sf_route_x", "=Deliveries!$C:$D")
     wb.define_name("sf_route_new", "=Plan!$B$1:$C$4")
     wb.define_name("sf_route_opts", "=Plan!$A$6:$B$8")
+    wb.define_name("sf_route_key", "=Deliveries!$A:$A")  # the month beside each row
+    wb.define_name("sf_route_newkey", "=Plan!$A$1:$A$4")
     # model "bykm": cost on km alone, a straight line with the slope identity check
     wb.define_name("sf_bykm_y", "=Deliveries!$B$1:$B$37")
     wb.define_name("sf_bykm_x", "=Deliveries!$D$1:$D$37")
+    wb.define_name("sf_bykm_key", "=Deliveries!$A$1:$A$37")
     wb.close()
 
 
@@ -121,9 +124,14 @@ def build_field_jobs(path: Path) -> None:
     wb.define_name("sf_similar_x", "=Jobs!$C:$D")
     wb.define_name("sf_similar_new", "=Quotes!$B$1:$C$4")
     wb.define_name("sf_similar_opts", "=Quotes!$A$6:$B$8")
+    wb.define_name("sf_similar_key", "=Jobs!$A:$A")  # job numbers
+    wb.define_name("sf_similar_newkey", "=Quotes!$A$1:$A$4")  # quote numbers
     wb.define_name("sf_byhours_y", "=Jobs!$B:$B")
     wb.define_name("sf_byhours_x", "=Jobs!$C:$C")
     wb.define_name("sf_byhours_opts", "=Quotes!$A$10:$B$12")
+    wb.define_name("sf_byhours_key", "=Jobs!$A:$A")
+    wb.define_name("sf_byhours_new", "=Quotes!$B$1:$B$4")
+    wb.define_name("sf_byhours_newkey", "=Quotes!$A$1:$A$4")
     wb.close()
 
 
@@ -161,6 +169,8 @@ def build_open_invoices(path: Path) -> None:
     wb.define_name("sf_late_x", "=Paid!$C:$E")
     wb.define_name("sf_late_new", "=Open!$B$1:$D$9")
     wb.define_name("sf_late_opts", "=Open!$A$12:$B$15")
+    wb.define_name("sf_late_key", "=Paid!$A:$A,Paid!$C:$C")  # invoice number and amount
+    wb.define_name("sf_late_newkey", "=Open!$A$1:$B$9")
     wb.close()
 
 

@@ -28,7 +28,7 @@ from .errors import (
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
-from .sheets.index import plan_index
+from .sheets.index import finish_model_sheets, plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
 from .writer.graft import OutputName, graft
@@ -99,10 +99,15 @@ def plan_book(
     for model, fitted in fits:
         method = REGISTRY[model.settings.method]
         planned = method.plan(model, fitted, __version__)
+        summary = summarise(model, method, fitted)
+        summary.sheets = [s.title for s in planned.sheets]
+        finish_model_sheets(planned.sheets, summary)
         sheets += planned.sheets
         names += planned.names
-        summaries.append(summarise(model, method, fitted))
-    return BookPlan([plan_index(summaries, refreshed, __version__)] + sheets, names), summaries
+        summaries.append(summary)
+    index = plan_index(summaries, refreshed, __version__)
+    index.fit_columns()
+    return BookPlan([index] + sheets, names), summaries
 
 
 def _values(pkg: Package, path: Path) -> BookValues:

@@ -32,6 +32,8 @@ class ModelSummary:
     figures: list[str] = field(default_factory=list)
     cautions: list[str] = field(default_factory=list)
     status: str = "fitted"
+    standing: list[str] = field(default_factory=list)  # what the method is (its record's)
+    sheets: list[str] = field(default_factory=list)  # titles of the model's sheets, in order
 
     def text(self) -> str:
         """A few plain lines for the command line."""
@@ -94,4 +96,5 @@ def summarise(model: ModelData, method: Method[Any], fitted: Fitted[Any]) -> Mod
         fingerprint=fingerprint(model),
         figures=method.figures(model, res),
         cautions=_common_cautions(model, fitted) + method.cautions(model, res) + fitted.cautions,
+        standing=list(method.standing),
     )

@@ -243,7 +243,9 @@ def _strip_mean(model: ModelData, fitted: Fitted[Any], plan: BookPlan) -> None:
     title = f"sf {model.tag} strip"
     cells = _cells(plan, title)
     g = len(res.centres_)
-    table = [[cells[(10 + j, c)].value for c in (1, 2, 3, 4)] for j in range(g)]
+    # the curve table sits under the answer block: found by its header
+    head = next(c for c in cells.values() if c.value == "centre no." and c.style == "head")
+    table = [[cells[(head.row + 1 + j, c)].value for c in (1, 2, 3, 4)] for j in range(g)]
     assert [t[0] for t in table] == res.centres_.tolist()
     assert [t[1] for t in table] == res.count_.tolist()
     assert [t[2] for t in table] == res.sum_.tolist()

@@ -6,7 +6,7 @@ from ..declare.model import ModelData
 from ..fit.neighbours import NeighbourMeanResult, NeighbourVoteResult
 from ..settings import Rule, k_value, yes_no
 
-__all__ = ["RULES", "cautions", "k_figure"]
+__all__ = ["MEAN_STANDING", "RULES", "VOTE_STANDING", "cautions", "k_figure"]
 
 RULES = (
     Rule("k", "a whole number of at least 1, or auto", None, k_value,
@@ -34,3 +34,26 @@ def cautions(model: ModelData, res: NeighbourMeanResult | NeighbourVoteResult) -
                        f"{sd.max() / sd.min():.0f}-fold: the widest attribute dominates "
                        "the distances")
     return out
+
+
+_SHARED = (
+    ("An estimate from similar past rows is only as good as the similarity: check that the "
+    "attributes are the ones that make cases alike (unscaled attributes let the widest one "
+    "dominate)."),
+    ("The residuals and error figures are leave-one-out: a row is never its own neighbour, "
+    "so they are honest estimates of the error on a new row."),
+    ("A new row unlike every past row (outside their range) still gets neighbours; its "
+    "estimate is flagged as extrapolated."),
+)
+#: What a neighbour mean is, and how to read it (on its own sheets and the index).
+MEAN_STANDING = _SHARED + (
+    ("Read each estimate with the spread of its neighbours' values (smallest, median, "
+    "largest) beside it."),
+)
+#: What a neighbour vote is, and how to read it.
+VOTE_STANDING = _SHARED + (
+    ("An error rate alone can mislead when one class is rare: read the confusion matrix, "
+    "the base rates, precision and recall."),
+    ("The work list ranks; where to cut it is a choice of the cost of a missed case against "
+    "a needless follow-up."),
+)

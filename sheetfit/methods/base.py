@@ -24,8 +24,10 @@ class Method(Generic[R]):
 
     ``fit`` runs the numeric core on a declared model's arrays (no workbook access);
     ``plan`` lays out the sheets from the fitted result; ``figures`` and ``cautions``
-    give the summary lines for the index sheet and the command line; ``check`` refuses
-    declarations only this method cannot use (after the cells are read).
+    give the summary lines for the index sheet and the command line (``cautions``: what
+    this fit's data give cause to say); ``standing`` are the cautions of what the method
+    is, said of every model using it, on its own sheets and the index; ``check``
+    refuses declarations only this method cannot use (after the cells are read).
     """
 
     word: str
@@ -40,5 +42,6 @@ class Method(Generic[R]):
     labels: bool = False
     max_attributes: int | None = None
     check: Callable[[ModelData], None] | None = None
+    standing: tuple[str, ...] = ()
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False

@@ -48,6 +48,15 @@ def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
     return least_squares_cautions(res)
 
 
+#: What a least-squares fit is, and how to read it (on its own sheets and the index).
+STANDING = (
+    ("A fitted line describes the data between the smallest and largest attribute values "
+    "seen (the relevant range); outside it a prediction is an extrapolation. The intercept "
+    "is the fixed part within that range, not the cost at zero activity."),
+    "The residuals here are in-sample: they understate the error on new rows.",
+    "Outliers pull the line; look at the residual sheet and a scatter of the data.",
+)
+
 METHOD: Method[LeastSquaresResult] = Method(
     word="least_squares",
     title="least squares",
@@ -68,4 +77,5 @@ METHOD: Method[LeastSquaresResult] = Method(
     plan=plan_least_squares,
     figures=_figures,
     cautions=_cautions,
+    standing=STANDING,
 )

@@ -30,4 +30,5 @@ METHOD: Method[NeighbourMeanResult] = Method(
     plan=plan_neighbour_mean,
     figures=_figures,
     cautions=_neighbours.cautions,
+    standing=_neighbours.MEAN_STANDING,
 )

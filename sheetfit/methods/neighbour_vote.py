@@ -53,4 +53,5 @@ METHOD: Method[NeighbourVoteResult] = Method(
     plan=plan_neighbour_vote,
     figures=_figures,
     cautions=_neighbours.cautions,
+    standing=_neighbours.VOTE_STANDING,
 )

@@ -7,7 +7,7 @@ import numpy as np
 from ..declare.model import ModelData
 from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
-from ..sheets.strip import plan_strip
+from ..sheets.strip import FEW_IN_STRIP, plan_strip
 from ..words import plural
 from .base import Method
 
@@ -31,7 +31,29 @@ def _cautions(model: ModelData, res: StripMeanResult) -> list[str]:
     unfitted = res.n_ - int(res.n_fitted_)
     if unfitted:
         out.append(f"{plural(unfitted, 'row')} with no other row in its strip: no fitted value")
+    if model.new is not None:
+        near = res.means_at(model.new.X[:, 0])[0].tolist()
+        few = [i for i, c in enumerate(near) if c < FEW_IN_STRIP]
+        if few:
+            first = model.new.columns[0]
+            where = ", ".join(f"row {first.row_of(i)} ({plural(int(near[i]), 'data row')})"
+                              for i in few[:10])
+            out.append(f"{plural(len(few), 'new row')} with fewer than {FEW_IN_STRIP} data rows "
+                       f"within ± width of its value ('{first.sheet}' {where}"
+                       f"{'…' if len(few) > 10 else ''}): the estimate is the mean of the "
+                       "nearest strip and rests on few or no similar cases")
     return out
+
+
+#: What a strip mean is, and how to read it (on its own sheets and the index).
+STANDING = (
+    ("A strip mean describes the data between the smallest and largest attribute values "
+    "seen; beyond them it repeats the end strip's mean."),
+    ("The residuals and the RMSE are leave-one-out: each row is fitted without itself, an "
+    "honest estimate of the error on a new row."),
+    ("A strip with few rows gives an unsteady mean; read the rows-in-strip count beside "
+    "each estimate."),
+)
 
 
 METHOD: Method[StripMeanResult] = Method(
@@ -48,4 +70,5 @@ METHOD: Method[StripMeanResult] = Method(
     plan=plan_strip,
     figures=_figures,
     cautions=_cautions,
+    standing=STANDING,
 )

@@ -28,8 +28,20 @@ from ..fit.neighbours import (
 from ..fit.results import Fitted
 from ..labels import label_text, labels_equal
 from ..owned import sheet_title
-from .common import FIRST_ROW, plan_left_out, plan_residual_sheet
-from .plan import Planned, SheetPlan
+from .common import (
+    FIRST_ROW,
+    check_cell,
+    check_words,
+    column_notes,
+    key_heads,
+    key_styles,
+    key_width,
+    plan_left_out,
+    plan_methods,
+    plan_residual_sheet,
+    put_keys,
+)
+from .plan import Planned, SheetPlan, decimal_style
 
 __all__ = ["TIE_RULE", "plan_neighbour_mean", "plan_neighbour_vote"]
 
@@ -71,51 +83,69 @@ def _std_sheet(model: ModelData, res: _Result, new: _Prediction | None
     m = len(model.xs)
     n = res.n_
     on = bool(res.scaling_.on)
+    o = key_width(model.keys)
     ss.put(0, 0, f"Standard units — model {tag}", style="title")
-    ss.note(1, 0, "z = (x − mean) / SD, with the mean and the population SD (root mean square "
-            "of deviations) of the rows used; new rows use the same mean and SD."
-            if on else "Standard units are off (setting standard_units = no): distances use "
-            "the attribute values as they are.")
+    ss.put(1, 0, "Each attribute measured in standard deviations from its mean, so that no "
+           "attribute outweighs another in the distances." if on else "Standard units are "
+           "off (setting standard_units = no): distances use the attribute values as they are.",
+           style="note")
     last = _STD_FIRST + n - 1
     ss.put(3, 0, "mean", style="label")
     ss.put(4, 0, "SD (population)", style="label")
     ss.put(5, 0, "data row", style="head")
-    zc = 1 + m  # first z column
+    for j, h in enumerate(key_heads(model.keys)):
+        ss.put(5, 1 + j, h, style="head")
+    xc = 1 + o  # first attribute column
+    zc = xc + m  # first z column
     mean, sd = res.X_mean_.tolist(), res.X_sd_.tolist()
+    xstyle = [decimal_style(model.X[:, j].tolist()) for j in range(m)]
     for j, c in enumerate(model.xs):
-        xcol = 1 + j
+        xcol = xc + j
         rng = f"{col_letter(xcol + 1)}{_STD_FIRST + 1}:{col_letter(xcol + 1)}{last + 1}"
         ss.put(3, xcol, mean[j], f"=AVERAGE({rng})", "num")
         ss.put(4, xcol, sd[j], f"=STDEV.P({rng})", "num")
         ss.put(5, xcol, c.name, style="head")
         ss.put(5, zc + j, f"z {c.name}" if on else f"{c.name} (as is)", style="head")
+    notes = {xc: "your data cell; mean and SD of the column above"}
+    if on:
+        notes[zc] = "(value − mean) / SD, with the mean and SD of its column"
+    column_notes(ss, notes)
     zrefs: list[str] = []
     X, Z = res.X_.tolist(), res.Z_.tolist()
+    kst = key_styles(model.keys)
     for i, idx in enumerate(model.used):
         r = _STD_FIRST + i
-        ss.put(r, 0, model.y.row_of(int(idx)), style="int")
+        ss.put(r, 0, model.y.row_of(int(idx)), style="row")
+        put_keys(ss, r, 1, model.keys, int(idx), kst)
         for j, c in enumerate(model.xs):
-            ss.put(r, 1 + j, X[i][j], f"={c.cell(int(idx))}", "num")
-            ss.put(r, zc + j, Z[i][j], _z_formula(c.cell(int(idx)), 1 + j, on), "num")
+            ss.put(r, xc + j, X[i][j], f"={c.cell(int(idx))}", xstyle[j])
+            ss.put(r, zc + j, Z[i][j], _z_formula(c.cell(int(idx)), xc + j, on), "z")
         zrefs.append(ss.ref(r, zc) + ":" + absolute(r, zc + m - 1))
     new_refs: list[str] = []
     if model.new is not None and new is not None:
+        nk = model.new.keys
+        on_ = key_width(nk)
         side = zc + m + 1
         ss.put(5, side, "new row", style="head")
+        for j, h in enumerate(key_heads(nk)):
+            ss.put(5, side + 1 + j, h, style="head")
+        nx = side + 1 + on_
         for j, c in enumerate(model.new.columns):
-            ss.put(5, side + 1 + j, model.xs[j].name, style="head")
-            ss.put(5, side + 1 + m + j, f"z {model.xs[j].name}" if on else model.xs[j].name,
+            ss.put(5, nx + j, model.xs[j].name, style="head")
+            ss.put(5, nx + m + j, f"z {model.xs[j].name}" if on else model.xs[j].name,
                    style="head")
         Zn = new.Z.tolist()
+        nst = key_styles(nk)
         for i in range(model.new.n):
             r = _STD_FIRST + i
-            ss.put(r, side, model.new.columns[0].row_of(i), style="int")
+            ss.put(r, side, model.new.columns[0].row_of(i), style="row")
+            put_keys(ss, r, side + 1, nk, i, nst)
             for j, c in enumerate(model.new.columns):
-                ss.put(r, side + 1 + j, float(model.new.X[i, j]), f"={c.cell(i)}", "num")
-                ss.put(r, side + 1 + m + j, Zn[i][j], _z_formula(c.cell(i), 1 + j, on), "num")
-            new_refs.append(ss.ref(r, side + 1 + m) + ":" + absolute(r, side + 2 * m))
+                ss.put(r, nx + j, float(model.new.X[i, j]), f"={c.cell(i)}", xstyle[j])
+                ss.put(r, nx + m + j, Zn[i][j], _z_formula(c.cell(i), xc + j, on), "z")
+            new_refs.append(ss.ref(r, nx + m) + ":" + absolute(r, nx + 2 * m - 1))
     ss.widths = {0: 16}
-    ss.freeze = (_STD_FIRST, 1)
+    ss.freeze = (_STD_FIRST, 1 + o)
     return ss, zrefs, new_refs
 
 
@@ -160,7 +190,7 @@ def plan_neighbour_mean(model: ModelData, fitted: Fitted[NeighbourMeanResult],
     """Plan the summary, standard-units, neighbours, fitted and residual sheets of a mean."""
     res = fitted.result
     data, new = _mean_rows(model, res, fitted.new)
-    return _plan(model, res, fitted.new, data, new, None, version)
+    return _plan(model, res, fitted.new, data, new, None, version, fitted.extrapolated)
 
 
 def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
@@ -169,25 +199,48 @@ def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
     res = fitted.result
     focus = _focus(model, res)
     data, new = _vote_rows(model, res, fitted.new, focus)
-    return _plan(model, res, fitted.new, data, new, focus, version)
+    return _plan(model, res, fitted.new, data, new, focus, version, fitted.extrapolated)
+
+
+@dataclass(frozen=True)
+class _Layout:
+    """Rows of a neighbour model's first sheet: the answer, key figures, status, settings."""
+
+    answer: int  # header row of the answer block
+    figures: int  # header row of the key figures
+    status: int  # the status line
+    settings: int  # header row of the settings (k one row below, focus two)
+
+
+def _layout(n_new: int, vote: bool) -> _Layout:
+    answer = 3
+    figures = answer + (n_new + 3 if n_new else 2)
+    status = figures + (3 if vote else 4)
+    return _Layout(answer, figures, status, status + 2)
 
 
 def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: _Rows,
-          new: _Rows | None, focus: str | float | None, version: str) -> Planned:
+          new: _Rows | None, focus: str | float | None, version: str,
+          extrapolated: list[int]) -> Planned:
     """The sheets both neighbour methods share; ``focus`` is None for a mean, a class for a vote."""
     vote = focus is not None
     tag, y = model.tag, model.y
     k = int(res.k_)
+    o = key_width(model.keys, model.new.keys if model.new is not None else None)
     ss, zrefs, new_zrefs = _std_sheet(model, res, prediction)
     ns = SheetPlan(sheet_title(tag, "nbrs"))
     summary = SheetPlan(sheet_title(tag, "summary"))
-    k_cell = summary.ref(4, 1)
-    focus_cell = summary.ref(5, 1)  # the focus class, on a vote's summary sheet
+    lay = _layout(model.new.n if model.new is not None and new is not None else 0, vote)
+    k_cell = summary.ref(lay.settings + 1, 1)
+    focus_cell = summary.ref(lay.settings + 2, 1)  # the focus class, on a vote's summary sheet
 
-    ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k}); neighbour rows are rows of "
-           f"sheet '{y.sheet}'", style="title")
-    ns.note(1, 0, TIE_RULE, width=170)  # two lines, above the header in row 4
-    heads = (["data row"] + [f"neighbour {m + 1} row" for m in range(k)]
+    ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k})", style="title")
+    ns.put(1, 0, f"For each row: its {k} most similar rows of sheet '{y.sheet}', their "
+           f"distances and {y.name}, then the prediction from them. Ties: see the first sheet.",
+           style="note")
+    nb = 1 + o  # first neighbour-row column
+    heads = (["data row"] + key_heads(model.keys, o)
+             + [f"neighbour {m + 1} row" for m in range(k)]
              + [f"distance {m + 1}" for m in range(k)] + [f"{y.name} of {m + 1}" for m in range(k)])
     if vote:
         heads += [f"votes {m + 1}" for m in range(k)]
@@ -196,40 +249,61 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
         heads += ["prediction (mean)", "smallest", "median", "largest"]
     for c, h in enumerate(heads):
         ns.put(3, c, h, style="head")
-    pred_col = 1 + (4 if vote else 3) * k
-    ctx = _Cells(model, res.y_.tolist(), zrefs, k, k_cell, focus_cell, vote)
+    pred_col = nb + (4 if vote else 3) * k
+    notes = {nb: "row number on sheet '" + y.sheet + "', nearest first (found by sheetfit)",
+             nb + k: "√Σ(z difference)², over the z cells on the standard-units sheet",
+             nb + 2 * k: "that row's value, from your cell"}
+    if vote:
+        notes.update({nb + 3 * k: "how many of the k share this neighbour's class",
+                      pred_col: "the class with the most votes",
+                      pred_col + 2: "votes ÷ k",
+                      pred_col + 3: f"neighbours in {label_text(focus)} ÷ k"})
+    else:
+        notes.update({pred_col: f"AVERAGE of the {k} values to the left",
+                      pred_col + 1: "MIN, MEDIAN, MAX of the same values"})
+    ystyle = "class" if vote else decimal_style(res.y_.tolist())
+    derived = "class" if vote else decimal_style(res.y_.tolist(), least=2)
+    ctx = _Cells(model, res.y_.tolist(), zrefs, k, k_cell, focus_cell, vote, o, ystyle, derived)
     fitted_refs: list[str] = []
-    for i in range(len(model.used)):
+    kst = key_styles(model.keys)
+    for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         _neighbour_row(ns, r, i, data, zrefs[i], ctx)
+        put_keys(ns, r, 1, model.keys, int(idx), kst)
         fitted_refs.append(ns.ref(r, pred_col, fixed=False))
     names: list[tuple[str, str]] = []
+    new_start = FIRST_ROW + len(model.used) + 2
     if new is not None and model.new is not None:
-        start = FIRST_ROW + len(model.used) + 2
-        ns.put(start - 1, 0, "new row", style="head")
-        for c, h in enumerate(heads[1:], start=1):
-            ns.put(start - 1, c, h, style="head")
+        ns.put(new_start - 1, 0, "new row", style="head")
+        for c, h in enumerate(key_heads(model.new.keys, o) + heads[1 + o:], start=1):
+            ns.put(new_start - 1, c, h, style="head")
+        nst = key_styles(model.new.keys)
         for i in range(model.new.n):
-            _neighbour_row(ns, start + i, i, new, new_zrefs[i], ctx)
+            _neighbour_row(ns, new_start + i, i, new, new_zrefs[i], ctx)
+            put_keys(ns, new_start + i, 1, model.new.keys, i, nst)
         names.append((f"sf_{tag}_pred",
-                       ns.col_range(pred_col, start, start + model.new.n - 1)))
+                       ns.col_range(pred_col, new_start, new_start + model.new.n - 1)))
     ns.widths = {0: 9}
-    ns.freeze = (FIRST_ROW, 1)
+    column_notes(ns, notes)
+    ns.freeze = (FIRST_ROW, 1 + o)
 
-    fs, fit_rng = _fitted_sheet(model, res, fitted_refs, vote, ns.title)
+    fs, fit_rng = _fitted_sheet(model, res, fitted_refs, vote, ns.title, o, ystyle, derived)
     sheets = [summary, ss, ns, fs]
+    at = _At(ns, new_start, pred_col, new, extrapolated, lay, o, derived)
     if isinstance(res, NeighbourVoteResult) and focus is not None:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
-        _vote_summary(summary, model, res, fs, ns, new, focus, version, k)
+        _vote_summary(summary, model, res, fs, at, focus, version, k)
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, fitted_refs, res.fitted_, res.resid_,
-            "residual = observed − fitted (the leave-one-out mean of the row's neighbours).")
+            "residual = observed − fitted (the leave-one-out mean of the row's neighbours).",
+            keys=model.keys)
+        rc = 3 + key_width(model.keys)
         sheets.append(rs)
         names = [(f"sf_{tag}_fitted", fit_rng),
-                 (f"sf_{tag}_resid", rs.col_range(3, FIRST_ROW, FIRST_ROW + res.n_ - 1))
+                 (f"sf_{tag}_resid", rs.col_range(rc, FIRST_ROW, FIRST_ROW + res.n_ - 1))
                  ] + names
-        _mean_summary(summary, model, res, fs, rs, version, k)
+        _mean_summary(summary, model, res, fs, rs, rc, at, version, k)
     else:
         raise TypeError(f"a neighbour plan for {type(res).__name__} with focus {focus!r}")
     return Planned(sheets, names)
@@ -246,28 +320,45 @@ class _Cells:
     k_cell: str
     focus_cell: str
     vote: bool
+    o: int  # identifier columns between the row number and the neighbours
+    ystyle: str  # the responses' style
+    derived: str  # the predictions' style
+
+
+@dataclass
+class _At:
+    """Where the new rows' predictions are, for the answer block of the first sheet."""
+
+    ns: SheetPlan
+    start: int  # first new row on the neighbours sheet
+    pred_col: int
+    new: _Rows | None
+    extrapolated: list[int]
+    lay: _Layout
+    o: int
+    derived: str
 
 
 def _neighbour_row(ns: SheetPlan, r: int, i: int, rows: _Rows, zref: str, c: _Cells) -> None:
     """Row ``i`` of a block of the neighbours sheet, at sheet row ``r``."""
     model, k = c.model, c.k
+    nb = 1 + c.o
     yc = model.y
     nbrs, dists = rows.neighbours[i].tolist(), rows.distances[i].tolist()
     for m, j in enumerate(nbrs):
-        ns.put(r, 1 + m, yc.row_of(int(model.used[j])), style="int")
-        ns.put(r, 1 + k + m, dists[m], f"=SQRT(SUMXMY2({zref},{c.zrefs[j]}))", "dist")
-        ns.put(r, 1 + 2 * k + m, c.y[j], f"={yc.cell(int(model.used[j]))}",
-               "text" if c.vote else "num")
-    ns.put(r, 0, rows.first_ref[i], style="int")
-    a, b = 1 + 2 * k, 3 * k
+        ns.put(r, nb + m, yc.row_of(int(model.used[j])), style="row")
+        ns.put(r, nb + k + m, dists[m], f"=SQRT(SUMXMY2({zref},{c.zrefs[j]}))", "dist")
+        ns.put(r, nb + 2 * k + m, c.y[j], f"={yc.cell(int(model.used[j]))}", c.ystyle)
+    ns.put(r, 0, rows.first_ref[i], style="row")
+    a, b = nb + 2 * k, nb + 3 * k - 1
     block = f"{col_letter(a + 1)}{r + 1}:{col_letter(b + 1)}{r + 1}"
     if not c.vote:
         lo, med, hi = rows.spread[i] if rows.spread else (math.nan,) * 3
-        col = 1 + 3 * k
-        ns.put(r, col, rows.value[i], f"=AVERAGE({block})", "num")
-        ns.put(r, col + 1, lo, f"=MIN({block})", "num")
-        ns.put(r, col + 2, med, f"=MEDIAN({block})", "num")
-        ns.put(r, col + 3, hi, f"=MAX({block})", "num")
+        col = nb + 3 * k
+        ns.put(r, col, rows.value[i], f"=AVERAGE({block})", c.derived)
+        ns.put(r, col + 1, lo, f"=MIN({block})", c.ystyle)
+        ns.put(r, col + 2, med, f"=MEDIAN({block})", c.derived)
+        ns.put(r, col + 3, hi, f"=MAX({block})", c.ystyle)
         return
     if rows.position_votes is None or rows.votes is None or rows.score is None \
             or rows.share is None:
@@ -275,14 +366,14 @@ def _neighbour_row(ns: SheetPlan, r: int, i: int, rows: _Rows, zref: str, c: _Ce
     pv = rows.position_votes[i].tolist()
     for m in range(k):
         cell = f"{col_letter(a + 1 + m)}{r + 1}"
-        ns.put(r, 1 + 3 * k + m, pv[m], f"=SUMPRODUCT(--EXACT({block},{cell}))", "int")
-    vb = f"{col_letter(2 + 3 * k)}{r + 1}:{col_letter(1 + 4 * k)}{r + 1}"
-    col = 1 + 4 * k
-    ns.put(r, col, rows.value[i], f"=INDEX({block},MATCH(MAX({vb}),{vb},0))", "text")
+        ns.put(r, nb + 3 * k + m, pv[m], f"=SUMPRODUCT(--EXACT({block},{cell}))", "int")
+    vb = f"{col_letter(nb + 3 * k + 1)}{r + 1}:{col_letter(nb + 4 * k)}{r + 1}"
+    col = nb + 4 * k
+    ns.put(r, col, rows.value[i], f"=INDEX({block},MATCH(MAX({vb}),{vb},0))", "class")
     ns.put(r, col + 1, rows.votes[i], f"=MAX({vb})", "int")
-    ns.put(r, col + 2, rows.score[i], f"=MAX({vb})/{c.k_cell}", "ratio")
+    ns.put(r, col + 2, rows.score[i], f"=MAX({vb})/{c.k_cell}", "pct")
     ns.put(r, col + 3, rows.share[i], f"=SUMPRODUCT(--EXACT({block},{c.focus_cell}))/{c.k_cell}",
-           "ratio")
+           "pct")
 
 
 def _focus(model: ModelData, res: NeighbourVoteResult) -> str | float:
@@ -295,136 +386,209 @@ def _focus(model: ModelData, res: NeighbourVoteResult) -> str | float:
 
 
 def _fitted_sheet(model: ModelData, res: _Result, refs: list[str], vote: bool,
-                  nbrs_title: str) -> tuple[SheetPlan, str]:
+                  nbrs_title: str, o: int, ystyle: str, derived: str) -> tuple[SheetPlan, str]:
     y = model.y
     fs = SheetPlan(sheet_title(model.tag, "fitted"))
     fs.put(0, 0, f"Fitted values — model {model.tag}", style="title")
-    fs.note(1, 0, f"Each fitted value is the leave-one-out prediction on sheet '{nbrs_title}': "
-            "the row itself is never one of its neighbours, so the errors here are honest.")
-    heads = ["data row", f"{y.name} (observed)", f"predicted {y.name}" if vote
-             else f"fitted {y.name}"]
+    fs.put(1, 0, "Each row predicted from its neighbours, never from itself (leave-one-out), "
+           "so the errors here are honest estimates for new rows.", style="note")
+    ob = 1 + o
+    heads = (["data row"] + key_heads(model.keys, o)
+             + [f"{y.name} (observed)", f"predicted {y.name}" if vote else f"fitted {y.name}"])
     if vote:
         heads.append("right (1) / wrong (0)")
     for c, h in enumerate(heads):
         fs.put(3, c, h, style="head")
     obs, fitted = res.y_.tolist(), res.fitted_.tolist()
     right = res.correct_.tolist() if isinstance(res, NeighbourVoteResult) else []
+    kst = key_styles(model.keys)
+    B, C = col_letter(ob + 1), col_letter(ob + 2)
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
-        fs.put(r, 0, y.row_of(int(idx)), style="int")
-        fs.put(r, 1, obs[i], f"={y.cell(int(idx))}", "text" if vote else "num")
-        fs.put(r, 2, fitted[i], f"={refs[i]}", "text" if vote else "num")
+        fs.put(r, 0, y.row_of(int(idx)), style="row")
+        put_keys(fs, r, 1, model.keys, int(idx), kst)
+        fs.put(r, ob, obs[i], f"={y.cell(int(idx))}", ystyle)
+        fs.put(r, ob + 1, fitted[i], f"={refs[i]}", derived)
         if vote:
-            fs.put(r, 3, int(right[i]), f"=IF(EXACT(B{r + 1},C{r + 1}),1,0)", "int")
+            fs.put(r, ob + 2, int(right[i]), f"=IF(EXACT({B}{r + 1},{C}{r + 1}),1,0)", "int")
     last = FIRST_ROW + len(model.used) - 1
     plan_left_out(fs, model, len(heads) + 1)
-    fs.widths = {0: 9, 1: 16, 2: 16, 3: 14}
-    fs.freeze = (FIRST_ROW, 1)
-    return fs, fs.col_range(2, FIRST_ROW, last)
+    fs.widths.update({0: 9, ob: 16, ob + 1: 16})
+    notes = {ob: "your data cell",
+             ob + 1: f"from sheet '{nbrs_title}', same row"}
+    if vote:
+        notes[ob + 2] = "1 when the two agree exactly (EXACT)"
+    column_notes(fs, notes)
+    fs.freeze = (FIRST_ROW, 1 + o)
+    return fs, fs.col_range(ob + 1, FIRST_ROW, last)
+
+
+def _head_row(s: SheetPlan, row: int, heads: list[str]) -> None:
+    for c, h in enumerate(heads):
+        s.put(row, c, h, style="head")
+
+
+def _flag(i: int, at: _At) -> str:
+    return "outside the data's range: extrapolated" if i in at.extrapolated else ""
+
+
+def _mean_answer(s: SheetPlan, model: ModelData, at: _At) -> None:
+    """The first lines: each new row's prediction with its neighbours' spread and its flag."""
+    y, row = model.y, at.lay.answer
+    if at.new is None or model.new is None:
+        s.put(row, 0, f"No new rows are declared (name sf_{model.tag}_new): the sheets below "
+              "show how well the method predicts the data rows.", style="note")
+        return
+    heads = (["new row"] + key_heads(model.new.keys, at.o)
+             + [f"predicted {y.name}", "smallest of the k", "median", "largest", "flag"])
+    _head_row(s, row, heads)
+    p = 1 + at.o
+    column_notes(s, {p: "the average of the k neighbours' values",
+                     p + 1: "the spread of those values: read the estimate with it"}, row - 1)
+    nst = key_styles(model.new.keys)
+    answer = at.derived.replace("dec", "answer")
+    for i in range(model.new.n):
+        r, src = row + 1 + i, at.start + i
+        s.put(r, 0, at.new.first_ref[i], f"={at.ns.ref(src, 0, fixed=False)}", "row")
+        put_keys(s, r, 1, model.new.keys, i, nst)
+        lo, med, hi = at.new.spread[i] if at.new.spread else (math.nan,) * 3
+        s.put(r, p, at.new.value[i], f"={at.ns.ref(src, at.pred_col, fixed=False)}", answer)
+        for m, v in enumerate((lo, med, hi), start=1):
+            s.put(r, p + m, v, f"={at.ns.ref(src, at.pred_col + m, fixed=False)}", at.derived)
+        s.put(r, p + 4, _flag(i, at), style="flag")
+    s.put(row + 1 + model.new.n, 0, "Each estimate comes from similar past rows; the "
+          "neighbours sheet lists them row by row.", style="note")
+
+
+def _figures(s: SheetPlan, row: int, lines: list[tuple[str, Any, str, str, str]]) -> None:
+    _head_row(s, row, ["key figure", "value", "what it is"])
+    for i, (label, value, formula, style, what) in enumerate(lines):
+        s.put(row + 1 + i, 0, label, style="label")
+        s.put(row + 1 + i, 1, value, formula, style)
+        s.put(row + 1 + i, 2, what, style="note")
 
 
 def _settings_block(s: SheetPlan, model: ModelData, res: _Result, version: str, k: int,
-                    vote: bool) -> int:
-    """Title, notes and the stated settings; k sits in B5 (row 4) for formulas to use."""
-    what = "most common class" if vote else "mean"
+                    vote: bool, lay: _Layout) -> int:
+    """Title, note, status cell and the stated settings (k one row under their header)."""
+    what = "most common class" if vote else "average"
     xs = ", ".join(model.attribute_names)
     s.put(0, 0, f"Neighbour {'vote' if vote else 'mean'} — model {model.tag}: "
           f"{model.y.name} from {xs}", style="title")
-    s.put(1, 0, f"Each prediction is the {what} of the k most similar rows (sheet "
-          f"'{sheet_title(model.tag, 'nbrs')}'); computed by sheetfit {version}.", style="note")
-    s.put(3, 0, "setting", style="head")
-    s.put(3, 1, "value", style="head")
-    s.put(3, 2, "how it was set", style="head")
-    s.put(4, 0, "k (neighbours)", style="label")
-    s.put(4, 1, k, style="int")
-    s.put(4, 2, "given in the settings" if res.k_given_
+    s.put(1, 0, f"Each prediction is the {what} of {model.y.name} over the {k} most similar "
+          f"past rows; computed by sheetfit {version}. The answer first, the detail below.",
+          style="note")
+    s.status_cell = (lay.status, 0)
+    row = lay.settings
+    _head_row(s, row, ["setting", "value", "how it was set"])
+    s.put(row + 1, 0, "k (neighbours)", style="label")
+    s.put(row + 1, 1, k, style="int")
+    s.put(row + 1, 2, "given in the settings" if res.k_given_
           else "chosen: smallest leave-one-out error in the k table below", style="note")
-    s.put(5, 0, "focus class" if vote else "standard units", style="label")
-    return 7
+    s.put(row + 2, 0, "focus class" if vote else "standard units", style="label")
+    return row + 4
 
 
 def _k_table(s: SheetPlan, row: int, res: _Result, k: int, label: str, err_cell: str,
-             err_value: float, style: str = "num") -> int:
-    s.put(row, 0, "k", style="head")
-    s.put(row, 1, f"leave-one-out {label}", style="head")
-    s.put(row, 2, "", style="head")
+             err_value: float, k_ref: str, style: str = "num") -> int:
+    _head_row(s, row, ["k", f"leave-one-out {label}", ""])
     first = row + 1
     for i, (kk, err) in enumerate(res.k_table_):
-        s.put(first + i, 0, int(kk), style="int")
+        s.put(first + i, 0, int(kk), style="row")
         s.put(first + i, 1, float(err), style=style)
         if int(kk) == k:
             s.put(first + i, 2, "◀ used", style="label")
     last = first + len(res.k_table_) - 1
     r = last + 1
     if k <= len(res.k_table_):
-        s.put(r, 0, "check: table at k minus the formula above", style="note")
+        s.put(r, 0, "check: the table at k equals the figure above", style="label")
         diff = float(res.k_table_[k - 1][1]) - err_value
-        s.put(r, 1, diff, f"=INDEX(B{first + 1}:B{last + 1},{absolute(4, 1)})-{err_cell}",
-              "check")
+        s.put(r, 1, diff, f"=INDEX(B{first + 1}:B{last + 1},{k_ref})-{err_cell}", "check")
+        formula, verdict = check_cell(absolute(r, 1), diff, 1e-9, err_cell, err_value)
+        s.put(r, 2, verdict, formula, "verdict")
+        s.put(r, 3, check_words(1e-9, "|difference| / max(1, figure)"), style="note")
     else:
         s.put(r, 0, f"k = {k} is beyond the table (it stops at {len(res.k_table_)})", style="note")
     return r + 2
 
 
-def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: SheetPlan,
-                  rs: SheetPlan, version: str, k: int) -> None:
-    row = _settings_block(s, model, res, version, k, False)
+def _methods(s: SheetPlan, row: int, res: _Result, vote: bool) -> None:
     on = bool(res.scaling_.on)
-    s.put(5, 1, "yes" if on else "no")
-    s.put(5, 2, "distances in standard units" if on else "distances in the attributes' own "
-          "units", style="note")
+    plan_methods(s, row, [
+        ("Distances: Euclidean, " + ("in standard units z = (x − mean) / SD with the mean and "
+         "population SD (root mean square of deviations) of the rows used; new rows use the "
+         "same mean and SD." if on else "on the attribute values as they are (standard "
+         "units off).")),
+        TIE_RULE,
+        ("k: " + ("as given in the settings." if res.k_given_ else "the k with the smallest "
+         "leave-one-out error " + ("rate" if vote else "RMSE") + " for k = 1 … "
+         f"{len(res.k_table_)} (ties: the smaller k).")),
+        ("The neighbour rows are chosen by sheetfit; every distance, value and prediction on "
+        "these sheets is a native formula you can recalculate."),
+    ])
+
+
+def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: SheetPlan,
+                  rs: SheetPlan, rc: int, at: _At, version: str, k: int) -> None:
+    lay = at.lay
+    row = _settings_block(s, model, res, version, k, False, lay)
+    on = bool(res.scaling_.on)
+    s.put(lay.settings + 2, 1, "yes" if on else "no")
+    s.put(lay.settings + 2, 2, "distances in standard units" if on else "distances in the "
+          "attributes' own units", style="note")
+    _mean_answer(s, model, at)
     n = res.n_
     last = FIRST_ROW + n - 1
-    r_rng = rs.col_range(3, FIRST_ROW, last)
-    y_rng = fs.col_range(1, FIRST_ROW, last)
-    s.put(row, 0, "leave-one-out error (native formulas)", style="head")
-    s.put(row, 1, "value", style="head")
-    s.put(row, 2, "what it is", style="head")
+    r_rng = rs.col_range(rc, FIRST_ROW, last)
+    y_rng = fs.col_range(1 + at.o, FIRST_ROW, last)
+    f = lay.figures
     rmse, sdy = res.rmse_, res.y_sd_
-    lines = [
+    _figures(s, f, [
         ("rows used (n)", n, f"=COUNT({r_rng})", "int", "data rows with a prediction"),
-        ("RMSE", rmse, f"=SQRT(SUMSQ({r_rng})/B{row + 2})", "num",
-         "root mean squared leave-one-out residual"),
-        ("SD of y", sdy, f"=STDEV.P({y_rng})", "num",
-         "the RMSE of predicting every row by the mean of y, for comparison"),
-    ]
-    for i, (label, value, formula, style, what) in enumerate(lines):
-        s.put(row + 1 + i, 0, label, style="label")
-        s.put(row + 1 + i, 1, value, formula, style)
-        s.put(row + 1 + i, 2, what, style="note")
-    rmse_cell = absolute(row + 2, 1)
-    row = _k_table(s, row + len(lines) + 2, res, k, "RMSE", rmse_cell, rmse)
-    s.put(row, 0, "Each prediction is read together with the spread of its neighbours' "
-          "responses (smallest, median, largest) on the neighbours sheet.", style="note")
-    s.widths = {0: 34, 1: 18, 2: 40}
+        ("RMSE", rmse, f"=SQRT(SUMSQ({r_rng})/B{f + 2})", at.derived,
+         "typical error of a prediction: root mean squared leave-one-out residual"),
+        ("SD of y", sdy, f"=STDEV.P({y_rng})", at.derived,
+         "the same for predicting every row by the mean of y: the RMSE should be smaller"),
+    ])
+    rmse_cell = absolute(f + 2, 1)
+    row = _k_table(s, row, res, k, "RMSE", rmse_cell, rmse, absolute(lay.settings + 1, 1),
+                   at.derived)
+    _methods(s, row, res, False)
+    s.widths = {0: 34, 1: 18, 2: 16}
 
 
 def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: SheetPlan,
-                  ns: SheetPlan, new: _Rows | None, focus: str | float, version: str,
-                  k: int) -> None:
-    row = _settings_block(s, model, res, version, k, True)
-    s.put(5, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
-    s.put(5, 2, "given in the settings" if model.settings["focus"] is not None
+                  at: _At, focus: str | float, version: str, k: int) -> None:
+    lay = at.lay
+    row = _settings_block(s, model, res, version, k, True, lay)
+    st = lay.settings
+    s.put(st + 2, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
+    s.put(st + 2, 2, "given in the settings" if model.settings["focus"] is not None
           else "the rarest class (setting focus changes it)", style="note")
-    s.put(6, 0, "standard units", style="label")
-    s.put(6, 1, "yes" if res.scaling_.on else "no")
+    s.put(st + 3, 0, "standard units", style="label")
+    s.put(st + 3, 1, "yes" if res.scaling_.on else "no")
     row += 1
     n = res.n_
     last = FIRST_ROW + n - 1
-    obs = fs.col_range(1, FIRST_ROW, last)
-    pred = fs.col_range(2, FIRST_ROW, last)
-    right = fs.col_range(3, FIRST_ROW, last)
+    ob = 1 + at.o
+    obs = fs.col_range(ob, FIRST_ROW, last)
+    pred = fs.col_range(ob + 1, FIRST_ROW, last)
+    right = fs.col_range(ob + 2, FIRST_ROW, last)
     n_right = int(np.count_nonzero(res.correct_))
-    s.put(row, 0, "leave-one-out error (native formulas)", style="head")
-    s.put(row, 1, "value", style="head")
-    s.put(row + 1, 0, "rows used (n)", style="label")
-    s.put(row + 1, 1, n, f"=COUNTA({obs})", "int")
-    s.put(row + 2, 0, "error rate", style="label")
+    f = lay.figures
     err_rate = 1 - n_right / n  # as the formula has it; error_rate_ divides the wrong ones
-    s.put(row + 2, 1, err_rate, f"=1-SUM({right})/B{row + 2}", "ratio")
-    err_cell = absolute(row + 2, 1)
-    n_cell = absolute(row + 1, 1)
-    row += 4
+    _figures(s, f, [
+        ("rows used (n)", n, f"=COUNTA({obs})", "int", "data rows with a prediction"),
+        ("error rate", err_rate, f"=1-SUM({right})/B{f + 2}", "pct",
+         "share of data rows whose leave-one-out prediction is wrong"),
+    ])
+    err_cell = absolute(f + 2, 1)
+    n_cell = absolute(f + 1, 1)
+    if at.new is not None:
+        _work_list(s, lay.answer, model, res, at, focus)
+    else:
+        s.put(lay.answer, 0, f"No new rows are declared (name sf_{model.tag}_new): the sheets "
+              "below show how well the method predicts the data rows.", style="note")
     classes = res.classes_.tolist()
     C = len(classes)
     s.put(row, 0, "confusion matrix: actual (rows) × predicted (columns)", style="head")
@@ -448,11 +612,12 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
         rsum = int(counts[a].sum())
         span = f"{col_letter(2)}{r + 1}:{col_letter(1 + C)}{r + 1}"
         s.put(r, 1 + C, rsum, f"=SUM({span})", "int")
-        s.put(r, 2 + C, base_rate[a], f"=SUMPRODUCT(--EXACT({obs},${cls_col}{r + 1}))/{n_cell}", "ratio")
+        s.put(r, 2 + C, base_rate[a], f"=SUMPRODUCT(--EXACT({obs},${cls_col}{r + 1}))/{n_cell}",
+              "pct")
         diag = f"{col_letter(2 + a)}{r + 1}"
         s.put(r, 3 + C, "n/a" if math.isnan(recall[a]) else recall[a],
               f'=IF({col_letter(2 + C)}{r + 1}=0,"n/a",{diag}/{col_letter(2 + C)}{r + 1})',
-              "ratio")
+              "pct")
     prow = top + C
     s.put(prow, 0, "rows (predicted)", style="label")
     s.put(prow + 1, 0, "precision", style="label")
@@ -461,7 +626,7 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
         csum = int(counts[:, b].sum())
         s.put(prow, 1 + b, csum, f"=SUM({L}{top + 1}:{L}{top + C})", "int")
         s.put(prow + 1, 1 + b, "n/a" if math.isnan(precision[b]) else precision[b],
-              f'=IF({L}{prow + 1}=0,"n/a",{L}{top + 1 + b}/{L}{prow + 1})', "ratio")
+              f'=IF({L}{prow + 1}=0,"n/a",{L}{top + 1 + b}/{L}{prow + 1})', "pct")
     row = prow + 3
     s.put(row, 0, "in natural frequencies", style="head")
     for a, cls in enumerate(classes):
@@ -474,39 +639,42 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
               f'="Of "&{n_cell}&" rows, "&{L}{prow + 1}&" were predicted "&${cls_col}{top + 1 + a}'
               f'&"; "&{L}{top + 1 + a}&" of those were "&${cls_col}{top + 1 + a}&", and "'
               f'&{col_letter(2 + C)}{top + 1 + a}&" rows were "&${cls_col}{top + 1 + a}'
-              f'&" in all."', "text")
+              f'&" in all."', "note")
     row = row + 2 + C
-    if new is not None:
-        row = _work_list(s, row, model, res, ns, new, focus)
-    _k_table(s, row, res, k, "error rate", err_cell, err_rate, "ratio")
+    row = _k_table(s, row, res, k, "error rate", err_cell, err_rate, absolute(st + 1, 1), "pct")
+    _methods(s, row, res, True)
     s.widths = {0: 34, 1: 14, 2: 14}
 
 
 def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResult,
-               ns: SheetPlan, new: _Rows, focus: str | float) -> int:
-    """New rows ranked by the share of neighbours in the focus class (highest first)."""
-    if new.share is None:
+               at: _At, focus: str | float) -> None:
+    """The answer: new rows ranked by the share of neighbours in the focus class."""
+    new, ns = at.new, at.ns
+    if new is None or new.share is None or model.new is None:
         raise ValueError("a work list needs the new rows' shares")
     k = int(res.k_)
     shares = new.share
     n_new = len(shares)
     order = sorted(range(n_new), key=lambda i: (-shares[i], i))
-    col = 0
-    s.put(top, col, f"work list: new rows by share of neighbours in {label_text(focus)}",
-          style="label")
-    s.put(top + 1, col, "rank", style="head")
-    s.put(top + 1, col + 1, "new row", style="head")
-    s.put(top + 1, col + 2, f"share {label_text(focus)}", style="head")
-    s.put(top + 1, col + 3, "prediction", style="head")
-    start = FIRST_ROW + res.n_ + 2
-    pred_col = 1 + 4 * k
+    o = at.o
+    heads = (["rank", "new row"] + key_heads(model.new.keys, o)
+             + [f"share {label_text(focus)}", "prediction", "votes for it", "flag"])
+    _head_row(s, top, heads)
+    p = 2 + o
+    column_notes(s, {p: f"share of the {k} neighbours in {label_text(focus)}",
+                     p + 1: "the most common class among them"}, top - 1)
+    pred_col = at.pred_col
+    nst = key_styles(model.new.keys)
     for rank, i in enumerate(order, start=1):
-        r = top + 1 + rank
-        src = start + i
-        s.put(r, col, rank, style="int")
-        s.put(r, col + 1, new.first_ref[i], f"={ns.ref(src, 0, fixed=False)}", "int")
-        s.put(r, col + 2, shares[i], f"={ns.ref(src, pred_col + 3, fixed=False)}", "ratio")
-        s.put(r, col + 3, new.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "text")
-    s.put(top + 2 + n_new, 0, "A ranked list, not a verdict: choose the cut-off from the "
-          "cost of a missed case against the cost of a needless follow-up.", style="note")
-    return top + 4 + n_new
+        r = top + rank
+        src = at.start + i
+        s.put(r, 0, rank, style="row")
+        s.put(r, 1, new.first_ref[i], f"={ns.ref(src, 0, fixed=False)}", "row")
+        put_keys(s, r, 2, model.new.keys, i, nst)
+        s.put(r, p, shares[i], f"={ns.ref(src, pred_col + 3, fixed=False)}", "pct")
+        s.put(r, p + 1, new.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "class")
+        if new.votes is not None:
+            s.put(r, p + 2, new.votes[i], f"={ns.ref(src, pred_col + 1, fixed=False)}", "int")
+        s.put(r, p + 3, _flag(i, at), style="flag")
+    s.put(top + 1 + n_new, 0, "A ranked work list, not a verdict: choose the cut-off from "
+          "the cost of a missed case against the cost of a needless follow-up.", style="note")

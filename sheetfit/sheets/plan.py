@@ -6,30 +6,83 @@ sheet parts. Rows and columns are 0-based here, as in the renderer.
 
 from __future__ import annotations
 
+import math
 import textwrap
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
 
-__all__ = ["STYLES", "BookPlan", "Cell", "Planned", "SheetPlan"]
+__all__ = ["FIT_WIDTH", "PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
+           "decimals_shown"]
 
 Scalar = float | int | str | bool | None
 
-#: Cell styles by key, as xlsxwriter format properties. Layout is data.
+#: Cell styles by key, as xlsxwriter format properties. Layout is data. Number formats
+#: only change what is shown: every cell keeps its full-precision value.
 STYLES: dict[str, dict[str, object]] = {
     "text": {},
     "title": {"bold": True, "font_size": 13},
-    "note": {"italic": True, "font_color": "#555555"},
+    "note": {"italic": True, "font_color": "#555555", "indent": 1},
+    # one line under a header saying what the column computes, wrapped in the column
+    "colnote": {"italic": True, "font_color": "#555555", "font_size": 8, "text_wrap": True,
+                "valign": "top"},
     "head": {"bold": True, "bottom": 1, "text_wrap": True, "valign": "top"},
     "label": {"bold": True},
-    "num": {"num_format": "General"},
-    "coef": {"num_format": "General"},
-    "check": {"num_format": "0.0E+00", "font_color": "#2E6B30"},
-    "int": {"num_format": "0"},
-    "ratio": {"num_format": "0.000000"},
-    "dist": {"num_format": "0.000000"},
+    "key": {"num_format": "General", "align": "left"},  # identifiers, shown as they are
+    # number formats end in "_)": a space's width after every number, so a number never
+    # runs into the text of the next column
+    "num": {"num_format": "#,##0.00##_)"},  # any number: separators, 2 to 4 decimals
+    "coef": {"num_format": "#,##0.000000_)"},  # fallback; coef_style() gives 6 significant digits
+    "check": {"num_format": "0.0E+00_)", "font_color": "#2E6B30"},
+    "verdict": {"bold": True, "font_color": "#2E6B30", "align": "center"},  # holds / FAILS
+    "int": {"num_format": "#,##0_)"},  # counts
+    "row": {"num_format": "0", "align": "left"},  # sheet row numbers, ranks: left, under their header
+    "ratio": {"num_format": "0.0000_)"},  # R², correlation: a number between -1 and 1
+    "pct": {"num_format": "0.0%_)"},  # rates and shares
+    "dist": {"num_format": "0.0000_)"},  # distances in standard units
+    "z": {"num_format": "0.000_)"},  # standard units
+    "class": {"align": "center"},  # class labels of a vote
     "caution": {"font_color": "#8A4B00", "text_wrap": False},
+    "flag": {"bold": True, "font_color": "#8A4B00"},  # beside the number it qualifies
+    "link": {"font_color": "#1F4E9E", "underline": 1},
+    "answer": {"bold": True, "num_format": "#,##0.00"},
 }
+#: Thousands-separated formats with a fixed number of decimals, "dec0" … "dec9".
+for _d in range(10):
+    STYLES[f"dec{_d}"] = {"num_format": "#,##0" + ("." + "0" * _d if _d else "") + "_)"}
+    STYLES[f"answer{_d}"] = {"bold": True, "num_format": STYLES[f"dec{_d}"]["num_format"]}
+
+
+def decimals_shown(values: Sequence[object], most: int = 4) -> int:
+    """How many decimals the data show: the fewest (≤ ``most``) that write every value exactly.
+
+    Stands in for the user's own number format, which the reader does not expose: cost
+    data kept to the cent give 2, whole counts give 0.
+    """
+    nums = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)
+            and math.isfinite(float(v))]
+    for d in range(most + 1):
+        if all(abs(v * 10 ** d - round(v * 10 ** d)) <= 1e-6 * max(1.0, abs(v) * 10 ** d)
+               for v in nums):
+            return d
+    return most
+
+
+def decimal_style(values: Sequence[object], most: int = 4, answer: bool = False,
+                  least: int = 0) -> str:
+    """The style for amounts like ``values``: thousands separators, the decimals they show
+    (at least ``least``: a fitted value or a mean of whole numbers is not whole)."""
+    return f"{'answer' if answer else 'dec'}{max(least, decimals_shown(values, most))}"
+
+
+def coef_style(value: float, digits: int = 6) -> str:
+    """A style showing ``value`` to about ``digits`` significant digits (at most 9 decimals)."""
+    v = abs(float(value))
+    if not math.isfinite(v) or v == 0:
+        return "dec2"
+    d = digits - 1 - math.floor(math.log10(v))
+    return f"dec{min(9, max(0, d))}"
 
 
 @dataclass(frozen=True)
@@ -41,6 +94,7 @@ class Cell:
     value: Scalar
     formula: str | None = None
     style: str = "text"
+    link: str | None = None  # an internal target ('sf x fitted'!A1): the cell is a hyperlink
 
     @property
     def address(self) -> str:
@@ -49,29 +103,43 @@ class Cell:
 
 @dataclass
 class SheetPlan:
-    """Every cell of one owned sheet, plus column widths and frozen panes."""
+    """Every cell of one owned sheet, plus column widths, frozen panes and print setup.
+
+    Print setup: ``landscape`` None decides by width (wider than :data:`PORTRAIT_WIDTH`
+    characters of columns), ``fit_width`` fits the columns to ``pages_wide`` page widths
+    (by default as many as :data:`FIT_WIDTH` characters a page need), and
+    ``repeat_rows`` (first, last; 0-based) repeat on every printed page (default: the
+    rows above the frozen pane).
+    """
 
     title: str
     cells: list[Cell] = field(default_factory=list)
     widths: dict[int, float] = field(default_factory=dict)
     heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
+    status_cell: tuple[int, int] | None = None  # where the refresh writes the status line
+    landscape: bool | None = None
+    fit_width: bool = True
+    pages_wide: int | None = None  # None: as many as FIT_WIDTH characters a page take
+    repeat_rows: tuple[int, int] | None = None
     #: Where named columns of a row-by-row sheet are ("resid" → 3), for planners that
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
-            style: str = "text") -> Cell:
+            style: str = "text", link: str | None = None) -> Cell:
         """Add a cell (a formula must start with '=') and return it."""
         if formula is not None and not formula.startswith("="):
             raise ValueError(f"formula without '=': {formula}")
         if style not in STYLES:
             raise KeyError(style)
+        if link is not None and formula is not None:
+            raise ValueError("a hyperlink cell holds text, not a formula")
         if (row, col) in self._taken:
             raise ValueError(f"{self.title}: cell {cell_ref(row + 1, col + 1)} planned twice")
         self._taken.add((row, col))
-        cell = Cell(row, col, value, formula, style)
+        cell = Cell(row, col, value, formula, style, link)
         if style == "head":  # column headers wrap onto two lines
             self.heights.setdefault(row, 30.0)
         self.cells.append(cell)
@@ -95,6 +163,53 @@ class SheetPlan:
 
     def formula_cells(self) -> list[Cell]:
         return [c for c in self.cells if c.formula is not None]
+
+    def last_row(self) -> int:
+        """The last row holding a cell (-1 for an empty sheet)."""
+        return max((c.row for c in self.cells), default=-1)
+
+    def is_free(self, row: int, col: int) -> bool:
+        return (row, col) not in self._taken
+
+    def fit_columns(self) -> None:
+        """Widen columns so header words never break mid-word and values fit.
+
+        A header may wrap onto two lines at spaces: its column gets the longer of its
+        longest word and half its length (plus a margin). Numbers take about 12 characters;
+        identifiers, labels and class texts their length, up to 40. Notes, titles and
+        cautions overflow to the right and do not widen a column. Explicit widths stay as
+        a lower bound.
+        """
+        need: dict[int, float] = {}
+        taken = {(c.row, c.col) for c in self.cells if c.value not in (None, "")}
+        for c in self.cells:
+            if c.style in ("note", "title", "caution", "colnote", "flag") or c.value is None:
+                continue
+            if c.style == "head":
+                text = str(c.value)
+                words = max((len(w) for w in text.split()), default=0)
+                w = max(words + 2, math.ceil(len(text) / 2) + 3)
+            elif isinstance(c.value, (int, float)) and not isinstance(c.value, bool):
+                w = 12 if c.style not in ("int", "row") else max(6, len(f"{c.value:,}") + 3)
+            elif (c.row, c.col + 1) not in taken:
+                continue  # text with room to its right overflows into it
+            else:
+                w = min(40, len(str(c.value)) + 2)
+            need[c.col] = max(need.get(c.col, 0), w)
+        for col, width in need.items():
+            self.widths[col] = max(self.widths.get(col, 0), float(width))
+
+    def total_width(self) -> float:
+        """Characters of width of the used columns (default width 8.43)."""
+        cols = {c.col for c in self.cells}
+        return sum(self.widths.get(c, 8.43) for c in range(max(cols, default=-1) + 1))
+
+
+#: A sheet wider than this many characters of columns prints landscape.
+PORTRAIT_WIDTH = 100
+#: Characters of columns printed on one page width; a wider sheet is printed as many
+#: pages wide as it takes (shrunk any further it would be too small to read).
+FIT_WIDTH = 200
 
 
 @dataclass

@@ -1,13 +1,16 @@
 """Sheet plans for a strip-mean model (the graph of averages) in one attribute.
 
-The curve is a grid of centres, each with its strip's row count, sum and mean as
-native formulas; each data row looks its centre up (one MATCH or ROUND per row), so
-formula cost stays at grid size × rows for the curve and constant per row.
+The first sheet opens with the answer (each new row's prediction, the rows within
+± width of it, its flag), the key figures and the status; then the settings and the
+curve: a grid of centres, each with its strip's row count, sum and mean as native
+formulas. Each data row looks its centre up (one MATCH or ROUND per row), so formula
+cost stays at grid size × rows for the curve and constant per row.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -16,14 +19,31 @@ from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, StripMeanResult
 from ..owned import sheet_title
-from .common import FIRST_ROW, plan_left_out, plan_residual_sheet
-from .plan import Planned, SheetPlan
+from ..words import plural
+from .common import (
+    FIRST_ROW,
+    check_cell,
+    check_words,
+    column_notes,
+    key_heads,
+    key_styles,
+    key_width,
+    plan_left_out,
+    plan_methods,
+    plan_residual_sheet,
+    put_keys,
+)
+from .plan import Planned, SheetPlan, decimal_style
 
-__all__ = ["EDGE", "plan_strip"]
+__all__ = ["EDGE", "FEW_IN_STRIP", "plan_strip"]
+
+#: A new row with fewer data rows than this within ± width of its own value is flagged
+#: (a reading threshold, not part of the method): its estimate, the strip mean at the
+#: nearest centre, rests on few or no similar cases.
+FEW_IN_STRIP = 5
 
 #: The edge allowance as the formulas write it: |x − c| <= width·(1 + 1E-12) is inside.
 EDGE = f"(1+{EDGE_ALLOWANCE:G})"
-_TABLE = 9  # header row (0-based) of the curve table
 _LAST = EVEN_CENTRES - 1  # steps between the lowest and the highest even centre
 
 
@@ -32,11 +52,30 @@ def _num(v: float) -> float | str:
     return "" if math.isnan(v) else float(v)
 
 
+@dataclass(frozen=True)
+class _Layout:
+    """Rows of the curve sheet (0-based): answer, key figures, status, settings, curve table."""
+
+    answer: int
+    figures: int
+    status: int
+    settings: int  # width; grid one below; lowest centre and step (even grid) two and three
+    table: int  # header row of the curve table
+
+    @classmethod
+    def of(cls, n_new: int) -> _Layout:
+        figures = 3 + (n_new + 3 if n_new else 2)
+        status = figures + 5
+        settings = status + 2
+        return cls(3, figures, status, settings, settings + 5)
+
+
 def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) -> Planned:
     """Plan the curve, fitted-value and residual sheets of a strip mean.
 
     Every number comes from the result: the grid, each strip's count and sum, each row's
-    centre, whether it lies in that strip, its leave-one-out value and the RMSE.
+    centre, whether it lies in that strip, its leave-one-out value and the RMSE; the
+    rows within ± width of each new row from ``means_at``.
     """
     res = fitted.result
     tag, y = model.tag, model.y
@@ -45,51 +84,62 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     x = res.x_.tolist()
     yv = res.y_.tolist()
     w = res.width_
+    lay = _Layout.of(model.new.n if model.new is not None and fitted.new is not None else 0)
     ss = SheetPlan(sheet_title(tag, "strip"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
+    o = key_width(model.keys)
+    ob, xc = 1 + o, 2 + o  # observed and x columns of the fitted sheet
     last = FIRST_ROW + n - 1
-    xs = fs.col_range(2, FIRST_ROW, last)
-    ys = fs.col_range(1, FIRST_ROW, last)
+    xs = fs.col_range(xc, FIRST_ROW, last)
+    ys = fs.col_range(ob, FIRST_ROW, last)
     even = res.grid_kind_ == "even"
+    ystyle = decimal_style(yv)
+    derived = decimal_style(yv, least=2)
+    xstyle = decimal_style(x)
 
     ss.put(0, 0, f"Strip means — model {tag}: {y.name} by {xname}", style="title")
-    ss.note(1, 0, f"For each centre c, the mean of {y.name} over the rows with |{xname} − c| ≤ "
-            f"width (a relative allowance of {EDGE_ALLOWANCE:g} absorbs rounding at the edge). "
-            f"An empty strip is left blank, with the reason. Computed by sheetfit {version}.")
-    ss.put(4, 0, "width", style="label")
-    ss.put(4, 1, w, style="num")
-    ss.put(4, 2, "half-width of each strip (setting)", style="note")
-    ss.put(5, 0, "grid", style="label")
-    ss.put(5, 1, "evenly spaced" if even else "distinct values")
-    ss.put(5, 2, f"{EVEN_CENTRES} centres from the smallest to the largest x" if even
+    ss.put(1, 0, f"Each estimate is the average {y.name} of the data rows whose {xname} lies "
+           f"within ± {w:g} of it; computed by sheetfit {version}. The answer first, the "
+           "detail below.", style="note")
+    ss.status_cell = (lay.status, 0)
+    st = lay.settings
+    ss.put(st, 0, "width", style="label")
+    ss.put(st, 1, w, style="num")
+    ss.put(st, 2, "half-width of each strip (setting)", style="note")
+    ss.put(st + 1, 0, "grid", style="label")
+    ss.put(st + 1, 1, "evenly spaced" if even else "distinct values")
+    ss.put(st + 1, 2, f"{EVEN_CENTRES} centres from the smallest to the largest x" if even
            else "one centre at each distinct x", style="note")
-    w_ref = absolute(4, 1)  # on the curve sheet itself
-    w_full = ss.ref(4, 1)  # from the fitted-value sheet
+    w_ref = absolute(st, 1)  # on the curve sheet itself
+    w_full = ss.ref(st, 1)  # from the fitted-value sheet
     if even:
-        ss.put(6, 0, "lowest centre", style="label")
-        ss.put(6, 1, res.lo_, f"=MIN({xs})", "num")
-        ss.put(7, 0, "step", style="label")
-        ss.put(7, 1, res.step_, f"=(MAX({xs})-MIN({xs}))/{_LAST}", "num")
+        ss.put(st + 2, 0, "lowest centre", style="label")
+        ss.put(st + 2, 1, res.lo_, f"=MIN({xs})", xstyle)
+        ss.put(st + 3, 0, "step", style="label")
+        ss.put(st + 3, 1, res.step_, f"=(MAX({xs})-MIN({xs}))/{_LAST}", "num")
     heads = ["centre no.", "centre", "rows in strip", f"sum of {y.name}",
              f"strip mean of {y.name}", "note"]
+    T = lay.table
     for c, h in enumerate(heads):
-        ss.put(_TABLE, c, h, style="head")
+        ss.put(T, c, h, style="head")
+    column_notes(ss, {2: f"rows with |{xname} − centre| ≤ width", 3: "their total",
+                      4: "sum ÷ rows"}, T - 1)
     centres = res.centres_.tolist()
     counts, sums, means = res.count_.tolist(), res.sum_.tolist(), res.mean_.tolist()
-    first = _TABLE + 1
+    first = T + 1
     for j, cval in enumerate(centres):
         r = first + j
         R = r + 1
-        ss.put(r, 0, j + 1, style="int")
+        ss.put(r, 0, j + 1, style="row")
         if even:
-            ss.put(r, 1, cval, f"={absolute(6, 1)}+{j}*{absolute(7, 1)}", "num")
+            ss.put(r, 1, cval, f"={absolute(st + 2, 1)}+{j}*{absolute(st + 3, 1)}", "num")
         else:
-            ss.put(r, 1, cval, style="num")
+            ss.put(r, 1, cval, style=xstyle)
         cnt, tot = counts[j], sums[j]
         cond = f"--(ABS({xs}-B{R})<={w_ref}*{EDGE})"
         ss.put(r, 2, cnt, f"=SUMPRODUCT({cond})", "int")
-        ss.put(r, 3, tot, f"=SUMPRODUCT({cond},{ys})", "num")
-        ss.put(r, 4, _num(means[j]), f'=IF(C{R}=0,"",D{R}/C{R})', "num")
+        ss.put(r, 3, tot, f"=SUMPRODUCT({cond},{ys})", ystyle)
+        ss.put(r, 4, _num(means[j]), f'=IF(C{R}=0,"",D{R}/C{R})', derived)
         ss.put(r, 5, "" if cnt else "empty strip: no rows within ± width",
                f'=IF(C{R}=0,"empty strip: no rows within ± width","")', "note")
     g_last = first + len(centres) - 1
@@ -98,96 +148,187 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
 
     # --- fitted-value sheet: one lookup per row ------------------------------------
     fs.put(0, 0, f"Fitted values — model {tag}", style="title")
-    fs.note(1, 0, f"Each row's fitted value is the mean of the OTHER rows in its strip on sheet "
-            f"'{ss.title}' (leave-one-out: (sum − own {y.name}) / (rows − 1)).")
-    fh = ["data row", f"{y.name} (observed)", xname, "centre no.", "rows in strip",
-          f"sum of {y.name}", "in its strip (1/0)", f"fitted {y.name}", "note"]
+    fs.put(1, 0, f"Each row's fitted value is the mean of the OTHER rows in its strip on sheet "
+           f"'{ss.title}' (leave-one-out), so the errors here are honest.", style="note")
+    fh = (["data row"] + key_heads(model.keys)
+          + [f"{y.name} (observed)", xname, "centre no.", "rows in strip",
+             f"sum of {y.name}", "in its strip (1/0)", f"fitted {y.name}", "note"])
     for c, h in enumerate(fh):
         fs.put(3, c, h, style="head")
-    f_idx = _lookup_formula(even, col["centre"], ss)
+    L = {k: col_letter(ob + 1 + d) for d, k in enumerate("BCDEFGH")}  # shifted letters
+    f_idx = _lookup_formula(even, col["centre"], ss, lay)
     row_centre, in_strip = res.row_centre_.tolist(), res.in_strip_.tolist()
     fit_vals = res.fitted_.tolist()
     refs = []
+    kst = key_styles(model.keys)
+    fit_col = ob + 6
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         R = r + 1
         j = row_centre[i]
-        fs.put(r, 0, y.row_of(int(idx)), style="int")
-        fs.put(r, 1, yv[i], f"={y.cell(int(idx))}", "num")
-        fs.put(r, 2, x[i], f"={model.xs[0].cell(int(idx))}", "num")
-        fs.put(r, 3, j + 1, f_idx.format(x=f"C{R}"), "int")
-        fs.put(r, 4, counts[j], f"=INDEX({col['count']},D{R})", "int")
-        fs.put(r, 5, sums[j], f"=INDEX({col['sum']},D{R})", "num")
-        fs.put(r, 6, int(in_strip[i]),
-               f"=IF(ABS(C{R}-INDEX({col['centre']},D{R}))<={w_full}*{EDGE},1,0)", "int")
+        fs.put(r, 0, y.row_of(int(idx)), style="row")
+        put_keys(fs, r, 1, model.keys, int(idx), kst)
+        fs.put(r, ob, yv[i], f"={y.cell(int(idx))}", ystyle)
+        fs.put(r, xc, x[i], f"={model.xs[0].cell(int(idx))}", xstyle)
+        fs.put(r, ob + 2, j + 1, f_idx.format(x=f"{L['C']}{R}"), "int")
+        fs.put(r, ob + 3, counts[j], f"=INDEX({col['count']},{L['D']}{R})", "int")
+        fs.put(r, ob + 4, sums[j], f"=INDEX({col['sum']},{L['D']}{R})", ystyle)
+        fs.put(r, ob + 5, int(in_strip[i]),
+               f"=IF(ABS({L['C']}{R}-INDEX({col['centre']},{L['D']}{R}))<={w_full}*{EDGE},1,0)",
+               "int")
         blank = math.isnan(fit_vals[i])
-        fs.put(r, 7, _num(fit_vals[i]),
-               f'=IF(G{R}=1,IF(E{R}-1=0,"",(F{R}-B{R})/(E{R}-1)),IF(E{R}=0,"",F{R}/E{R}))', "num")
-        fs.put(r, 8, "no other row within ± width" if blank else "",
-               f'=IF(H{R}="","no other row within ± width","")', "note")
-        refs.append(fs.ref(r, 7, fixed=False))
-    fs.widths = {0: 9, 7: 16, 8: 26}
-    fs.freeze = (FIRST_ROW, 1)
+        B, E, F, G, H = (f"{L[k]}{R}" for k in "BEFGH")
+        fs.put(r, fit_col, _num(fit_vals[i]),
+               f'=IF({G}=1,IF({E}-1=0,"",({F}-{B})/({E}-1)),IF({E}=0,"",{F}/{E}))', derived)
+        fs.put(r, fit_col + 1, "no other row within ± width" if blank else "",
+               f'=IF({H}="","no other row within ± width","")', "note")
+        refs.append(fs.ref(r, fit_col, fixed=False))
+    fs.widths = {0: 9, fit_col: 16, fit_col + 1: 26}
+    column_notes(fs, {ob: "your data cell", ob + 2: "the row's centre on the curve sheet",
+                      ob + 3: "looked up on the curve sheet",
+                      fit_col: "(sum − own value) ÷ (rows − 1): the other rows' mean"})
+    fs.freeze = (FIRST_ROW, 1 + o)
     names: list[tuple[str, str]] = []
     side = len(fh) + 1
-    if model.new is not None:
-        side = _new_rows(fs, model, fitted, side, ss, col, names)
+    if model.new is not None and fitted.new is not None:
+        side = _new_rows(fs, model, fitted, side, ss, col, names, lay, xs, w_full,
+                         (xstyle, derived))
+    else:
+        ss.put(lay.answer, 0, f"No new rows are declared (name sf_{tag}_new): the sheets below "
+               "show how well the curve predicts the data rows.", style="note")
     plan_left_out(fs, model, side)
 
     rs = plan_residual_sheet(model, refs, res.fitted_, res.resid_,
                              "residual = observed − fitted (leave-one-out strip mean); "
-                             "blank where the row's strip holds no other row.")
-    # summary under the settings, on the curve sheet
-    r_rng = rs.col_range(3, FIRST_ROW, last)
-    ss.put(4, 4, "rows used", style="label")
-    ss.put(4, 5, n, f"=COUNT({ys})", "int")
-    ss.put(5, 4, "rows with a fitted value", style="label")
-    ss.put(5, 5, res.n_fitted_, f"=COUNT({r_rng})", "int")
-    ss.put(6, 4, "RMSE (leave-one-out)", style="label")
-    ss.put(6, 5, res.rmse_ if res.n_fitted_ else "n/a",
-           f'=IF(F6=0,"n/a",SQRT(SUMSQ({r_rng})/F6))', "num")
-    ss.widths = {0: 14, 1: 14, 2: 14, 3: 16, 4: 24, 5: 34}
-    ss.freeze = (_TABLE + 1, 0)
-    names = [(f"sf_{tag}_fitted", fs.col_range(7, FIRST_ROW, last)),
+                             "blank where the row's strip holds no other row.",
+                             keys=model.keys)
+    # the key figures, under the answer
+    r_rng = rs.col_range(3 + o, FIRST_ROW, last)
+    f = lay.figures
+    for c, h in enumerate(["key figure", "value", "what it is"]):
+        ss.put(f, c, h, style="head")
+    fitted_cell = absolute(f + 2, 1)
+    lines = [
+        ("rows used", n, f"=COUNT({ys})", "int", "data rows in the curve"),
+        ("rows with a fitted value", res.n_fitted_, f"=COUNT({r_rng})", "int",
+         "rows with another row in their strip"),
+        ("RMSE (leave-one-out)", res.rmse_ if res.n_fitted_ else "n/a",
+         f'=IF({fitted_cell}=0,"n/a",SQRT(SUMSQ({r_rng})/{fitted_cell}))', derived,
+         "typical error of an estimate: root mean squared leave-one-out residual"),
+    ]
+    for i, (label, value, formula, style, what) in enumerate(lines):
+        ss.put(f + 1 + i, 0, label, style="label")
+        ss.put(f + 1 + i, 1, value, formula, style)
+        ss.put(f + 1 + i, 2, what, style="note")
+    if res.n_fitted_:
+        # the formulas' RMSE against the numeric core's, computed apart (fsum in Python)
+        rmse_cell, c = absolute(f + 3, 1), f + 4
+        ss.put(c, 0, "check: the RMSE equals sheetfit's own", style="label")
+        ss.put(c, 1, 0.0, f"={rmse_cell}-{res.rmse_!r}", "check")
+        formula, verdict = check_cell(absolute(c, 1), 0.0, 1e-9, rmse_cell, res.rmse_)
+        ss.put(c, 2, verdict, formula, "verdict")
+        ss.put(c, 3, check_words(1e-9, "|difference| / max(1, RMSE)"), style="note")
+    plan_methods(ss, g_last + 2, [
+        (f"A strip holds the rows with |{xname} − centre| ≤ width; a relative allowance of "
+        f"{EDGE_ALLOWANCE:g} absorbs rounding at the edge, in Python and in the formulas alike."),
+        (f"Centres: the distinct values of {xname} when there are at most 200, otherwise "
+        f"{EVEN_CENTRES} evenly spaced centres from the smallest to the largest value."),
+        ("Each data row is fitted from the other rows in the strip at its centre "
+        "(leave-one-out); a new row takes the strip mean at the nearest centre (on a tie, "
+        f"the lower), and is flagged when fewer than {FEW_IN_STRIP} data rows lie within "
+        "± width of its own value."),
+    ])
+    ss.widths = {0: 26, 1: 14, 2: 14, 3: 16, 4: 16, 5: 16}
+    ss.freeze = None
+    names = [(f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
              (f"sf_{tag}_resid", r_rng)] + names
     return Planned([ss, fs, rs], names)
 
 
-def _lookup_formula(even: bool, centre_rng: str, ss: SheetPlan) -> str:
+def _lookup_formula(even: bool, centre_rng: str, ss: SheetPlan, lay: _Layout) -> str:
     """The formula template that finds a row's centre number (``{x}``: the row's x cell)."""
     if not even:
         return f"=MATCH({{x}},{centre_rng},0)"
-    return (f"=MIN({EVEN_CENTRES},MAX(1,ROUND(({{x}}-{ss.ref(6, 1)})/{ss.ref(7, 1)},0)+1))")
+    st = lay.settings
+    return (f"=MIN({EVEN_CENTRES},MAX(1,ROUND(({{x}}-{ss.ref(st + 2, 1)})/{ss.ref(st + 3, 1)}"
+            ",0)+1))")
 
 
 def _new_rows(fs: SheetPlan, model: ModelData, fitted: Fitted[StripMeanResult], side: int,
-              ss: SheetPlan, col: dict[str, str], names: list[tuple[str, str]]) -> int:
-    """Predictions for new rows: the strip mean at the nearest centre (one lookup each)."""
+              ss: SheetPlan, col: dict[str, str], names: list[tuple[str, str]], lay: _Layout,
+              xs: str, w_full: str, styles: tuple[str, str]) -> int:
+    """Predictions for new rows: the strip mean at the nearest centre (one lookup each), and
+    how many data rows lie within ± width of the new row's own value; the answer block."""
     new, res = model.new, fitted.result
     if new is None or fitted.new is None:
         raise ValueError("_new_rows needs declared new rows and their predictions")
+    xstyle, derived = styles
+    nk = new.keys
+    on = key_width(nk)
     fs.put(2, side, "New rows: the strip mean at the nearest centre (on a tie, the lower).",
            style="note")
-    for c, h in enumerate(["new row", model.xs[0].name, "centre no.",
-                           f"predicted {model.y.name}"]):
+    heads = (["new row"] + key_heads(nk) + [model.xs[0].name, "centre no.",
+             f"predicted {model.y.name}", "rows within ± width"])
+    for c, h in enumerate(heads):
         fs.put(3, side + c, h, style="head")
-    xl, il = col_letter(side + 2), col_letter(side + 3)
+    xcol = side + 1 + on
+    xl, il = col_letter(xcol + 1), col_letter(xcol + 2)
     cen, g = col["centre"], len(res.centres_)
     centre = res.centre_index(new.X[:, 0]).tolist()
     pred = np.asarray(fitted.new, dtype=float).tolist()
+    near = res.means_at(new.X[:, 0])[0].tolist()  # rows within ± width of each new x
+    nst = key_styles(nk)
+    src_rows = []
     for i in range(new.n):
         r = FIRST_ROW + i
         R = r + 1
-        fs.put(r, side, new.columns[0].row_of(i), style="int")
-        fs.put(r, side + 1, float(new.X[i, 0]), f"={new.columns[0].cell(i)}", "num")
+        fs.put(r, side, new.columns[0].row_of(i), style="row")
+        put_keys(fs, r, side + 1, nk, i, nst)
+        fs.put(r, xcol, float(new.X[i, 0]), f"={new.columns[0].cell(i)}", xstyle)
         if res.grid_kind_ == "even":
-            f_idx = _lookup_formula(True, cen, ss).format(x=f"{xl}{R}")
+            f_idx = _lookup_formula(True, cen, ss, lay).format(x=f"{xl}{R}")
         else:
             below = f"IFERROR(MATCH({xl}{R},{cen},1),1)"
             f_idx = (f"=IF({below}<{g},IF(INDEX({cen},{below}+1)-{xl}{R}<{xl}{R}-INDEX({cen},"
                      f"{below}),{below}+1,{below}),{below})")
-        fs.put(r, side + 2, centre[i] + 1, f_idx, "int")
-        fs.put(r, side + 3, _num(pred[i]), f"=INDEX({col['mean']},{il}{R})", "num")
+        fs.put(r, xcol + 1, centre[i] + 1, f_idx, "int")
+        fs.put(r, xcol + 2, _num(pred[i]), f"=INDEX({col['mean']},{il}{R})", derived)
+        fs.put(r, xcol + 3, int(near[i]),
+               f"=SUMPRODUCT(--(ABS({xs}-{xl}{R})<={w_full}*{EDGE}))", "int")
+        src_rows.append(r)
     names.append((f"sf_{model.tag}_pred",
-                  fs.col_range(side + 3, FIRST_ROW, FIRST_ROW + new.n - 1)))
-    return side + 5
+                  fs.col_range(xcol + 2, FIRST_ROW, FIRST_ROW + new.n - 1)))
+
+    # the answer block on the curve sheet
+    a = lay.answer
+    ah = (["new row"] + key_heads(nk) + [model.xs[0].name, f"predicted {model.y.name}",
+          "rows within ± width", "flag"])
+    for c, h in enumerate(ah):
+        ss.put(a, c, h, style="head")
+    p = 2 + on
+    column_notes(ss, {p: "the strip mean at the nearest centre",
+                      p + 1: f"data rows near this value; fewer than {FEW_IN_STRIP} is flagged"},
+                 a - 1)
+    answer = derived.replace("dec", "answer")
+    for i, r in enumerate(src_rows):
+        ar = a + 1 + i
+        ss.put(ar, 0, new.columns[0].row_of(i), f"={fs.ref(r, side, fixed=False)}", "row")
+        put_keys(ss, ar, 1, nk, i, nst)
+        ss.put(ar, 1 + on, float(new.X[i, 0]), f"={fs.ref(r, xcol, fixed=False)}", xstyle)
+        ss.put(ar, p, _num(pred[i]), f"={fs.ref(r, xcol + 2, fixed=False)}", answer)
+        ss.put(ar, p + 1, int(near[i]), f"={fs.ref(r, xcol + 3, fixed=False)}", "int")
+        ss.put(ar, p + 2, _flag(i, int(near[i]), fitted.extrapolated), style="flag")
+    ss.put(a + 1 + new.n, 0, "A new row takes the mean of the strip at the nearest centre; "
+           "with few data rows near its value that mean says little.", style="note")
+    return xcol + 5
+
+
+def _flag(i: int, near: int, extrapolated: list[int]) -> str:
+    out = []
+    if i in extrapolated:
+        out.append("extrapolated")
+    if near == 0:
+        out.append("no data within ± width: the nearest strip's mean")
+    elif near < FEW_IN_STRIP:
+        out.append(f"only {plural(near, 'data row')} within ± width")
+    return "; ".join(out)

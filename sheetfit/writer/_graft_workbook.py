@@ -73,8 +73,14 @@ def edit_workbook(
     titles: Sequence[str],
     rids: Sequence[str],
     names: Sequence[_Named],
+    sheet_names: Sequence[tuple[int, str, str]] = (),
 ) -> bytes:
-    """The workbook part without the owned sheets and their names, with the new ones appended."""
+    """The workbook part without the owned sheets and their names, with the new ones appended.
+
+    ``sheet_names`` are names scoped to a new sheet, (its position among ``titles``,
+    name, text) — the rendered print titles (``_xlnm.Print_Titles``); like the marker
+    they are scoped to an owned sheet, so the next refresh removes them with it.
+    """
     doc = tx.decode(data)
     text = doc.text
     prefix, root_tag = tx.root_prefix(text)
@@ -110,6 +116,9 @@ def edit_workbook(
         f'<{qn} name="{MARKER_NAME}" localSheetId="{kept + j}" hidden="1">'
         f"{tx.esc(quote_sheet(t))}!$A$1</{qn}>"
         for j, t in enumerate(titles)
+    ) + "".join(
+        f'<{qn} name={tx.qattr(name)} localSheetId="{kept + j}">{tx.esc(text_)}</{qn}>'
+        for j, name, text_ in sheet_names
     ) + "".join(f"<{qn} name={tx.qattr(n.name)}>{tx.esc(n.text)}</{qn}>" for n in names)
     _edit_names(doc, prefix, pkg, owned, removed, kept, new_names)
     return doc.result()

@@ -72,6 +72,7 @@ class _RenderedBook:
     styles: bytes | None
     strings: list[str]
     sheet_type: str
+    sheet_names: list[tuple[int, str, str]]  # print titles: (sheet position, name, text)
 
 
 def _read_rendered(path: Path) -> _RenderedBook:
@@ -101,8 +102,13 @@ def _read_rendered(path: Path) -> _RenderedBook:
     m = re.search(r'PartName="/[^"]*worksheets/[^"]+"\s+ContentType="([^"]+)"', ct)
     if sheets and styles is None:
         raise ValueError("rendered book has no styles part")
+    # names the renderer scoped to its sheets: only print titles and print areas
+    scoped = [(d.local_sheet_id, d.name, d.text) for d in rp.defined_names
+              if d.local_sheet_id is not None
+              and d.name.lower() in ("_xlnm.print_titles", "_xlnm.print_area")]
     return _RenderedBook(
-        rp, sheets, styles, shared_strings(sst) if sst else [], m.group(1) if m else _T_WORKSHEET
+        rp, sheets, styles, shared_strings(sst) if sst else [], m.group(1) if m else _T_WORKSHEET,
+        scoped,
     )
 
 
@@ -278,7 +284,8 @@ def graft(
         start = next_rid([r.rid for r in wb_rels if r.rid not in drop_rids])
         rids = [f"rId{start + j}" for j in range(len(rb.sheets))]
         with _editing(wb_part, file):
-            edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names)
+            edits[wb_part] = edit_workbook(wb_data, pkg, owned, titles, rids, names,
+                                             rb.sheet_names)
         with _editing(rels_part_of(wb_part), file):
             new_rels = edit_rels(
                 wb_rels_data,

@@ -6,6 +6,7 @@ written here is a temporary file and never the user's workbook.
 
 from __future__ import annotations
 
+import math
 import re
 from pathlib import Path
 from typing import Any
@@ -13,7 +14,7 @@ from typing import Any
 import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
-from ..sheets.plan import STYLES, BookPlan
+from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan
 
 __all__ = ["render"]
 
@@ -57,6 +58,28 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
         self.fh.write(f"<c{attr}><v>{float(number)!r}</v></c>")
 
 
+def _print_setup(ws: Worksheet, sheet: SheetPlan) -> None:
+    """Printed for review: one page wide, landscape when wide, header rows on every page."""
+    total = sheet.total_width()
+    wide = total > PORTRAIT_WIDTH if sheet.landscape is None else sheet.landscape
+    if wide:
+        ws.set_landscape()
+    else:
+        ws.set_portrait()
+    if sheet.fit_width:
+        # as many pages wide as it takes to stay legible (FIT_WIDTH characters a page);
+        # on a sheet of several pages the frozen columns (row, identifiers) repeat
+        pages = sheet.pages_wide or max(1, math.ceil(total / FIT_WIDTH))
+        ws.fit_to_pages(pages, 0)
+        if pages > 1 and sheet.freeze and sheet.freeze[1] > 0:
+            ws.repeat_columns(0, sheet.freeze[1] - 1)
+    rows = sheet.repeat_rows
+    if rows is None and sheet.freeze and sheet.freeze[0] > 0:
+        rows = (0, sheet.freeze[0] - 1)
+    if rows is not None:
+        ws.repeat_rows(*rows)
+
+
 def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
     """Write every planned sheet, in order, to a new xlsx at ``path``; return the path."""
     wb = xlsxwriter.Workbook(
@@ -73,9 +96,7 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
     formats: dict[str, Any] = {k: (wb.add_format(v) if v else None) for k, v in STYLES.items()}
     for sheet in plan.sheets:
         ws = wb.add_worksheet(sheet.title, worksheet_class=_ExactWorksheet)
-        # printed for review: landscape, as wide as one page
-        ws.set_landscape()
-        ws.fit_to_pages(1, 0)
+        _print_setup(ws, sheet)
         for col, width in sheet.widths.items():
             ws.set_column(col, col, width)
         for row, height in sheet.heights.items():
@@ -84,7 +105,10 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
             ws.freeze_panes(*sheet.freeze)
         for c in sheet.cells:
             fmt = formats[c.style]
-            if c.formula is not None:
+            if c.link is not None:
+                # an internal link: a location in this workbook, no relationship part
+                ws.write_url(c.row, c.col, f"internal:{c.link}", fmt, str(c.value))
+            elif c.formula is not None:
                 value = c.value
                 if isinstance(value, bool):
                     value = "TRUE" if value else "FALSE"
