@@ -34,7 +34,10 @@ PREFIX = "sf_"
 INPUT_ROLES = ("y", "x", "new", "opts")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
-OUTPUT_ROLES = ("coef", "fitted", "resid", "pred")
+#: The last five locate what the charts read: standard units of the used rows (``z``),
+#: the confusion matrix counts, the leave-one-out error cell (``loo``), and the strip
+#: curve's centres and means.
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "z", "confusion", "loo", "centres", "means")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
 #: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
@@ -52,6 +55,7 @@ SHEET_KINDS = {
     "nbrs": "nbrs",
     "summary": "summary",
     "strip": "strip",
+    "charts": "charts",
 }
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.

@@ -26,6 +26,7 @@ from .errors import (
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
+from .sheets.charts import plan_chart_sheets
 from .sheets.index import plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
@@ -94,12 +95,15 @@ def plan_book(
     sheets: list[SheetPlan] = []
     names: list[tuple[str, str]] = []
     summaries = []
+    entries = []
     for model, fitted in fits:
         method = REGISTRY[model.settings.method]
-        planned = method.plan(model, fitted, __version__)
-        sheets += planned.sheets
-        names += planned.names
+        entries.append((model, fitted, method.plan(model, fitted, __version__), method.charts))
         summaries.append(summarise(model, method, fitted))
+    charts = plan_chart_sheets(entries)  # each model's charts sheet follows its own sheets
+    for model, _, planned, _ in entries:
+        sheets += planned.sheets + charts.get(model.tag, [])
+        names += planned.names
     return BookPlan([plan_index(summaries, refreshed, __version__)] + sheets, names), summaries
 
 

@@ -6,6 +6,7 @@ from ..declare.model import ModelData
 from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult
 from ..settings import Rule, integer, yes_no
+from ..sheets.charts_methods import least_squares_charts
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
@@ -50,4 +51,5 @@ METHOD: Method[LeastSquaresResult] = Method(
     plan=plan_least_squares,
     figures=_figures,
     cautions=_cautions,
+    charts=least_squares_charts,
 )

@@ -7,6 +7,7 @@ import numpy as np
 from ..declare.model import ModelData
 from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
+from ..sheets.charts_methods import strip_charts
 from ..sheets.strip import plan_strip
 from ..words import plural
 from .base import Method
@@ -48,4 +49,5 @@ METHOD: Method[StripMeanResult] = Method(
     plan=plan_strip,
     figures=_figures,
     cautions=_cautions,
+    charts=strip_charts,
 )

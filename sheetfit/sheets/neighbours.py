@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from ..a1 import absolute, col_letter
+from ..a1 import absolute, area, col_letter
 from ..declare.model import ModelData
 from ..fit._search import TIE_DIGITS
 from ..fit.neighbours import (
@@ -220,7 +220,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     sheets = [summary, ss, ns, fs]
     if isinstance(res, NeighbourVoteResult) and focus is not None:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
-        _vote_summary(summary, model, res, fs, ns, new, focus, version, k)
+        names += _vote_summary(summary, model, res, fs, ns, new, focus, version, k)
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, fitted_refs, res.fitted_, res.resid_,
@@ -229,9 +229,11 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
         names = [(f"sf_{tag}_fitted", fit_rng),
                  (f"sf_{tag}_resid", rs.col_range(3, FIRST_ROW, FIRST_ROW + res.n_ - 1))
                  ] + names
-        _mean_summary(summary, model, res, fs, rs, version, k)
+        names += _mean_summary(summary, model, res, fs, rs, version, k)
     else:
         raise TypeError(f"a neighbour plan for {type(res).__name__} with focus {focus!r}")
+    # read by the charts: the standard units of the used rows
+    names.append((f"sf_{tag}_z", zrefs[0].split(":")[0] + ":" + zrefs[-1].split(":")[1]))
     return Planned(sheets, names)
 
 
@@ -367,7 +369,7 @@ def _k_table(s: SheetPlan, row: int, res: _Result, k: int, label: str, err_cell:
 
 
 def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: SheetPlan,
-                  rs: SheetPlan, version: str, k: int) -> None:
+                  rs: SheetPlan, version: str, k: int) -> list[tuple[str, str]]:
     row = _settings_block(s, model, res, version, k, False)
     on = bool(res.scaling_.on)
     s.put(5, 1, "yes" if on else "no")
@@ -393,15 +395,17 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: 
         s.put(row + 1 + i, 1, value, formula, style)
         s.put(row + 1 + i, 2, what, style="note")
     rmse_cell = absolute(row + 2, 1)
+    row_rmse = row + 2
     row = _k_table(s, row + len(lines) + 2, res, k, "RMSE", rmse_cell, rmse)
     s.put(row, 0, "Each prediction is read together with the spread of its neighbours' "
           "responses (smallest, median, largest) on the neighbours sheet.", style="note")
     s.widths = {0: 34, 1: 18, 2: 40}
+    return [(f"sf_{model.tag}_loo", s.ref(row_rmse, 1))]  # read by the charts
 
 
 def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: SheetPlan,
                   ns: SheetPlan, new: _Rows | None, focus: str | float, version: str,
-                  k: int) -> None:
+                  k: int) -> list[tuple[str, str]]:
     row = _settings_block(s, model, res, version, k, True)
     s.put(5, 1, focus if isinstance(focus, (str, float)) else str(focus), style="text")
     s.put(5, 2, "given in the settings" if model.settings["focus"] is not None
@@ -423,6 +427,7 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
     err_rate = 1 - n_right / n  # as the formula has it; error_rate_ divides the wrong ones
     s.put(row + 2, 1, err_rate, f"=1-SUM({right})/B{row + 2}", "ratio")
     err_cell = absolute(row + 2, 1)
+    err_row = row + 2
     n_cell = absolute(row + 1, 1)
     row += 4
     classes = res.classes_.tolist()
@@ -480,6 +485,8 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
         row = _work_list(s, row, model, res, ns, new, focus)
     _k_table(s, row, res, k, "error rate", err_cell, err_rate, "ratio")
     s.widths = {0: 34, 1: 14, 2: 14}
+    return [(f"sf_{model.tag}_loo", s.ref(err_row, 1)),  # read by the charts
+            (f"sf_{model.tag}_confusion", area(s.title, top, 1, top + C - 1, C))]
 
 
 def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResult,

@@ -10,6 +10,7 @@ import textwrap
 from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
+from .chartplan import ChartPlan
 
 __all__ = ["STYLES", "BookPlan", "Cell", "Planned", "SheetPlan"]
 
@@ -49,13 +50,14 @@ class Cell:
 
 @dataclass
 class SheetPlan:
-    """Every cell of one owned sheet, plus column widths and frozen panes."""
+    """Every cell of one owned sheet, plus column widths, frozen panes and charts."""
 
     title: str
     cells: list[Cell] = field(default_factory=list)
     widths: dict[int, float] = field(default_factory=dict)
     heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
+    charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text") -> Cell:
