@@ -17,7 +17,7 @@ import re
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from ..a1 import absolute, col_index, col_letter, quote_sheet
+from ..a1 import absolute, col_index, quote_sheet
 from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..owned import sheet_title
@@ -25,6 +25,7 @@ from .chartplan import ChartPlan, Series, Span
 from .plan import Planned, Scalar, SheetPlan
 
 __all__ = [
+    "HELPER_HEAD",
     "MAX_POINTS",
     "ChartSheet",
     "Located",
@@ -34,12 +35,14 @@ __all__ = [
 
 #: Most data rows a chart plots; above it, a reproducible sample (every k-th row).
 MAX_POINTS = 5000
-#: Charts stand in columns A… from row CHART_TOP, one under the other, CHART_ROWS rows
-#: apart, each on its own printed page; helper columns start at column HELPER_COL.
+#: Charts stand in column A from row CHART_TOP, one under the other, CHART_ROWS rows
+#: apart, each on its own printed page; CHART_SLOTS places are kept for them (a method's
+#: own charts and a comparison). The helper columns follow below, from row HELPER_HEAD.
 CHART_TOP = 3
 CHART_ROWS = 24
-HELPER_COL = 14
-HELPER_HEAD = 3
+CHART_SLOTS = 3
+HELPER_COL = 0
+HELPER_HEAD = CHART_TOP + CHART_ROWS * CHART_SLOTS + 1
 NA = "#N/A"
 
 _REF = re.compile(r"^(?:'((?:[^']|'')+)'|([^'!]+))!\$?([A-Z]{1,3})\$?(\d+)(?::\$?([A-Z]{1,3})\$?(\d+))?$")
@@ -103,7 +106,7 @@ class ChartSheet:
 
     def __init__(self, sheet: SheetPlan) -> None:
         self.sheet = sheet
-        used = [c.col for c in sheet.cells if c.col >= HELPER_COL]
+        used = [c.col for c in sheet.cells if c.row >= HELPER_HEAD]
         self.col = max(used) + 2 if used else HELPER_COL
 
     @classmethod
@@ -115,10 +118,9 @@ class ChartSheet:
                   f" Of the {n_rows:,} data rows, every {_ordinal(step)} row is plotted "
                   f"(rows 1, {1 + step}, {1 + 2 * step} … of the fitted-value sheet), so the "
                   "charts stay responsive; the titles say so.")
-        s.note(1, 0, "Each chart reads the helper columns from column "
-               f"{col_letter(HELPER_COL + 1)} on, formulas pointing at your "
-               "data cells and at this model's result sheets, so the charts follow a refresh."
-               + sample, width=150)
+        s.note(1, 0, f"Each chart reads the helper columns from row {HELPER_HEAD + 1} on: "
+               "formulas pointing at your data cells and at this model's result sheets, so "
+               "the charts follow a refresh." + sample, width=120)
         return cls(s)
 
     @property
@@ -131,7 +133,7 @@ class ChartSheet:
         c = self.col
         self.col += 1
         self.sheet.put(HELPER_HEAD, c, head, style="head")
-        self.sheet.widths[c] = 13.0
+        self.sheet.widths[c] = 10.0
         first = HELPER_HEAD + 1
         for k, (formula, value) in enumerate(cells):
             self.sheet.put(first + k, c, value, formula, style)
@@ -147,6 +149,8 @@ class ChartSheet:
 
     def chart(self, kind: str, title: str, x_title: str, y_title: str,
               series: Sequence[Series]) -> ChartPlan:
+        if len(self.sheet.charts) >= CHART_SLOTS:
+            raise ValueError(f"more than {CHART_SLOTS} charts planned on {self.title!r}")
         row = CHART_TOP + CHART_ROWS * len(self.sheet.charts)
         plan = ChartPlan(kind, title, x_title, y_title, tuple(series), (row, 0))
         self.sheet.charts.append(plan)

@@ -120,19 +120,16 @@ _AXIS_FONT = {"size": 9, "color": "#404040"}
 
 
 def _charts(wb: xlsxwriter.Workbook, ws: Worksheet, sheet: SheetPlan) -> None:
-    """Insert each planned chart at its anchor; each prints on its own page."""
-    last_row, last_col = 0, 0
-    for k, plan in enumerate(sheet.charts):
+    """Insert each planned chart at its anchor; each prints on its own page, and the
+    cells below the last chart (the helper columns) start a new page."""
+    bottom = 0
+    for plan in sheet.charts:
         row, col = plan.anchor
-        width, height = plan.size
         ws.insert_chart(row, col, _chart(wb, plan), {"object_position": 1})
-        # rows are 20 px and columns 64 px high and wide unless set otherwise
-        last_row = max(last_row, row + -(-height // 20))
-        last_col = max(last_col, col + -(-width // 64))
-        if k:
-            ws.set_h_pagebreaks(sorted({p.anchor[0] for p in sheet.charts[1:]}))
-    ws.print_area(0, 0, last_row, last_col)
-    ws.fit_to_pages(1, 0)
+        bottom = max(bottom, row + -(-plan.size[1] // 20) + 1)  # rows are 20 px high
+    below = [c.row for c in sheet.cells if c.row >= bottom]
+    breaks = {p.anchor[0] for p in sheet.charts[1:]} | ({min(below)} if below else set())
+    ws.set_h_pagebreaks(sorted(breaks))
 
 
 def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
