@@ -60,7 +60,7 @@ class ChartPlan:
     y_title: str
     series: tuple[Series, ...]
     anchor: tuple[int, int]
-    size: tuple[int, int] = (960, 440)
+    size: tuple[int, int] = (960, 540)
 
     def __post_init__(self) -> None:
         if self.kind not in CHART_KINDS:

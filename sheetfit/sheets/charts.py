@@ -39,7 +39,7 @@ MAX_POINTS = 5000
 #: apart, each on its own printed page; CHART_SLOTS places are kept for them (a method's
 #: own charts and a comparison). The helper columns follow below, from row HELPER_HEAD.
 CHART_TOP = 3
-CHART_ROWS = 24
+CHART_ROWS = 30
 CHART_SLOTS = 3
 HELPER_COL = 0
 HELPER_HEAD = CHART_TOP + CHART_ROWS * CHART_SLOTS + 1
@@ -148,7 +148,11 @@ class ChartSheet:
         return absolute(span.first + k, span.col)
 
     def chart(self, kind: str, title: str, x_title: str, y_title: str,
-              series: Sequence[Series]) -> ChartPlan:
+              series: Sequence[Series], of_model: bool = True) -> ChartPlan:
+        """Place a chart in the next slot; its title names the model unless ``of_model``
+        is False (a chart across models)."""
+        if of_model:
+            title = f"Model {self.title.split(' ')[1]} — {title}"
         if len(self.sheet.charts) >= CHART_SLOTS:
             raise ValueError(f"more than {CHART_SLOTS} charts planned on {self.title!r}")
         row = CHART_TOP + CHART_ROWS * len(self.sheet.charts)
@@ -215,4 +219,4 @@ def _compare(board: ChartSheet, members: list[tuple[ModelData, Planned]]) -> Non
     board.gap()
     board.chart("column", f"{first.y.name}: leave-one-out {what} of the models on it",
                 "model", f"leave-one-out {what}",
-                [Series(f"leave-one-out {what}", loo, tags, "bars")])
+                [Series(f"leave-one-out {what}", loo, tags, "bars")], of_model=False)

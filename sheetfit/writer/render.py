@@ -115,6 +115,7 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
 #: Series colours: a blue and an orange that read apart in colour and in grey, then more.
 _COLOURS = ("#1F5C99", "#D9661F", "#2E8B57", "#8E44AD", "#B8860B", "#C0392B", "#16A085",
             "#7F8C8D")
+_CHART_PRINT_SCALE = 70
 _GRID = {"visible": True, "line": {"color": "#E3E3E3", "width": 0.75}}
 _AXIS_FONT = {"size": 9, "color": "#404040"}
 
@@ -128,8 +129,13 @@ def _charts(wb: xlsxwriter.Workbook, ws: Worksheet, sheet: SheetPlan) -> None:
         ws.insert_chart(row, col, _chart(wb, plan), {"object_position": 1})
         bottom = max(bottom, row + -(-plan.size[1] // 20) + 1)  # rows are 20 px high
     below = [c.row for c in sheet.cells if c.row >= bottom]
-    breaks = {p.anchor[0] for p in sheet.charts[1:]} | ({min(below)} if below else set())
+    # a break one row above each later chart: an object touching a page's edge is
+    # drawn (clipped) on that page too
+    breaks = {p.anchor[0] - 1 for p in sheet.charts[1:]} | ({min(below)} if below else set())
     ws.set_h_pagebreaks(sorted(breaks))
+    # A fit-to-width sheet ignores manual page breaks (docs/engine-facts.md, C1); a fixed
+    # scale keeps one chart per page and a 960-px chart inside a landscape A4 or letter page.
+    ws.set_print_scale(_CHART_PRINT_SCALE)
 
 
 def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
