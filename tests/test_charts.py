@@ -220,8 +220,11 @@ def test_strip_neighbour_and_comparison_charts(refreshed):
     diag, sresid = book.charts["sf similar charts"]
     fx, fy = diag.one("rows")
     assert [t[0] for t in book.targets(fx)] == book.name("sf_similar_fitted")
+    assert len(_data_column(book, "sf_similar_y", book.targets(fy))) == len(
+        book.name("sf_similar_fitted"))
     rx, ry = sresid.one("residual")
     assert [t[0] for t in book.targets(ry)] == book.name("sf_similar_resid")
+    assert [t[0] for t in book.targets(rx)] == book.name("sf_similar_fitted")
 
 
 def test_vote_confusion_chart_reads_the_confusion_matrix(refreshed):
@@ -244,7 +247,7 @@ def test_vote_with_two_attributes_plots_classes_in_standard_units(engine, tmp_pa
     refresh(p)
     book = Book(p)
     scatter, conf = book.charts["sf late charts"]
-    assert "in standard units" in scatter.title
+    assert "in standard units" in scatter.title and conf.kind == "barChart"
     assert [s[0] for s in scatter.series] == ["late", "on time"]
     z1, z2 = book.name("sf_late_z", 0), book.name("sf_late_z", 1)
     for label in ("late", "on time"):
@@ -272,6 +275,7 @@ def test_above_the_limit_every_kth_row_is_plotted_and_the_title_says_so(tmp_path
         assert chart.title.endswith("(every 2nd of 6,001 rows)"), chart.title
     x, y = line.one("data")
     assert _data_column(book, "sf_big_y", book.targets(y)) == list(range(2, n + 2, 2))
+    assert _data_column(book, "sf_big_x", book.targets(x)) == list(range(2, n + 2, 2))
     _, ry = resid.one("residual")
     assert [t[0] for t in book.targets(ry)] == book.name("sf_big_resid")[::2]
 

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 from ..a1 import area
 
-__all__ = ["CHART_KINDS", "LOOKS", "ChartPlan", "Series", "Span"]
+__all__ = ["CHART_KINDS", "LOOKS", "ChartPlan", "Series", "Span", "nice_bounds"]
 
 #: "scatter": x-y points and lines; "column": vertical bars over categories.
 CHART_KINDS = ("scatter", "column")
@@ -60,7 +60,11 @@ class ChartPlan:
     y_title: str
     series: tuple[Series, ...]
     anchor: tuple[int, int]
-    size: tuple[int, int] = (960, 540)
+    size: tuple[int, int] = (960, 640)
+    #: Axis bounds (x min, x max, y min, y max) set at refresh time, None = the engine's
+    #: own; a chart over data far from zero is read better without the zero baseline.
+    bounds: tuple[float | None, float | None, float | None, float | None] = (
+        None, None, None, None)
 
     def __post_init__(self) -> None:
         if self.kind not in CHART_KINDS:
@@ -72,3 +76,19 @@ class ChartPlan:
     def legend(self) -> bool:
         """A legend only when more than one series is named in it (no chart junk)."""
         return sum(1 for s in self.series if s.in_legend) > 1
+
+
+def nice_bounds(values: list[float]) -> tuple[float | None, float | None]:
+    """Round axis bounds around ``values`` (steps of 1, 2 or 5 × a power of ten, about ten
+    steps over the range); (None, None) when there is nothing to bound."""
+    import math
+
+    vals = [v for v in values if math.isfinite(v)]
+    if not vals:
+        return None, None
+    lo, hi = min(vals), max(vals)
+    span = hi - lo or abs(hi) or 1.0
+    raw = span / 10
+    power = 10 ** math.floor(math.log10(raw))
+    step = next(m * power for m in (1, 2, 5, 10) if m * power >= raw)
+    return math.floor(lo / step) * step, math.ceil(hi / step) * step

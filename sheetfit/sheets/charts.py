@@ -39,7 +39,7 @@ MAX_POINTS = 5000
 #: apart, each on its own printed page; CHART_SLOTS places are kept for them (a method's
 #: own charts and a comparison). The helper columns follow below, from row HELPER_HEAD.
 CHART_TOP = 3
-CHART_ROWS = 30
+CHART_ROWS = 35
 CHART_SLOTS = 3
 HELPER_COL = 0
 HELPER_HEAD = CHART_TOP + CHART_ROWS * CHART_SLOTS + 1
@@ -148,7 +148,9 @@ class ChartSheet:
         return absolute(span.first + k, span.col)
 
     def chart(self, kind: str, title: str, x_title: str, y_title: str,
-              series: Sequence[Series], of_model: bool = True) -> ChartPlan:
+              series: Sequence[Series], of_model: bool = True,
+              bounds: tuple[float | None, float | None, float | None, float | None] = (
+                  None, None, None, None)) -> ChartPlan:
         """Place a chart in the next slot; its title names the model unless ``of_model``
         is False (a chart across models)."""
         if of_model:
@@ -156,7 +158,8 @@ class ChartSheet:
         if len(self.sheet.charts) >= CHART_SLOTS:
             raise ValueError(f"more than {CHART_SLOTS} charts planned on {self.title!r}")
         row = CHART_TOP + CHART_ROWS * len(self.sheet.charts)
-        plan = ChartPlan(kind, title, x_title, y_title, tuple(series), (row, 0))
+        plan = ChartPlan(kind, title, x_title, y_title, tuple(series), (row, 0),
+                         bounds=bounds)
         self.sheet.charts.append(plan)
         return plan
 

@@ -29,7 +29,7 @@ from ..fit.neighbours import NeighbourMeanResult, NeighbourVoteResult
 from ..fit.results import Fitted
 from ..fit.strip import StripMeanResult
 from ..labels import label_text, labels_equal
-from .chartplan import Series, Span
+from .chartplan import Series, Span, nice_bounds
 from .charts import (
     HELPER_HEAD,
     NA,
@@ -48,6 +48,11 @@ __all__ = ["least_squares_charts", "neighbour_mean_charts", "neighbour_vote_char
 
 #: Points of a fitted polynomial curve (a straight line needs 2).
 CURVE_POINTS = 41
+
+
+def _nums(values: Sequence[Scalar]) -> list[float]:
+    return [float(v) for v in values
+            if isinstance(v, (int, float)) and not isinstance(v, bool)]
 
 
 def _pick(items: Sequence[object], rows: list[int]) -> list:  # type: ignore[type-arg]
@@ -83,7 +88,8 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
                 + suffix(len(model.used)), f"{fitted_word} {yname}",
                 "residual (observed − fitted)",
                 [Series("residual", res, fit, "markers"),
-                 Series("zero", zy, zx, "reference", in_legend=False)])
+                 Series("zero", zy, zx, "reference", in_legend=False)],
+                bounds=(*nice_bounds(_nums(values)), None, None))
     return fit, _pick(fit_cells, rows)
 
 
@@ -98,10 +104,12 @@ def _diagonal(board: ChartSheet, model: ModelData, loc: Located, obs: Span,
     ends = board.column("45° line", [extreme("MIN", [whole, obs.ref()], values),
                                      extreme("MAX", [whole, obs.ref()], values)])
     board.gap()
+    lo, hi = nice_bounds(_nums(values))  # the same on both axes: the 45° line is diagonal
     board.chart("scatter", f"{yname}: observed against {fitted_word}"
                 + suffix(len(model.used)), f"{fitted_word} {yname}", f"observed {yname}",
                 [Series("rows", obs, fit, "markers"),
-                 Series("observed = fitted", ends, ends, "reference")])
+                 Series("observed = fitted", ends, ends, "reference")],
+                bounds=(lo, hi, lo, hi))
 
 
 def least_squares_charts(model: ModelData, fitted: Fitted[LeastSquaresResult],
@@ -154,9 +162,11 @@ def _line(board: ChartSheet, model: ModelData, res: LeastSquaresResult, loc: Loc
     gy = board.column(f"fitted {model.y.name} (line)", cells)
     board.gap()
     shape = "line" if degree == 1 else f"curve (degree {degree})"
+    ys = [float(model.Y[i]) for i in rows] + _nums([v for _, v in cells])
     board.chart("scatter", f"{model.y.name} against {model.xs[0].name}: data and fitted "
                 f"{shape}" + suffix(len(model.used)), model.xs[0].name, model.y.name,
-                [Series("data", obs, x, "markers"), Series(f"fitted {shape}", gy, gx, "line")])
+                [Series("data", obs, x, "markers"), Series(f"fitted {shape}", gy, gx, "line")],
+                bounds=(*nice_bounds(xv), *nice_bounds(ys)))
 
 
 def neighbour_mean_charts(model: ModelData, fitted: Fitted[NeighbourMeanResult],
@@ -187,10 +197,14 @@ def strip_charts(model: ModelData, fitted: Fitted[StripMeanResult],
     means = board.column(f"strip mean of {model.y.name}",
                          copy_cells(loc.column(f"sf_{model.tag}_means")))
     board.gap()
+    xv = [float(model.X[i, 0]) for i in rows]
+    ys = [float(model.Y[i]) for i in rows] + _nums(
+        [v for _, v in loc.column(f"sf_{model.tag}_means")])
     board.chart("scatter", f"{model.y.name} against {model.xs[0].name}: data and strip means "
                 f"(width {res.width_:g})" + suffix(n), model.xs[0].name, model.y.name,
                 [Series("data", obs, xs[0], "markers"),
-                 Series("strip mean", means, centres, "line")])
+                 Series("strip mean", means, centres, "line")],
+                bounds=(*nice_bounds(xv), *nice_bounds(ys)))
     _residual_chart(board, model, loc, rows, "leave-one-out fitted")
     return [board.sheet]
 

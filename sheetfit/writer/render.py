@@ -167,14 +167,17 @@ def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
             hidden.append(i)
         chart.add_series(opts)
     chart.set_title({"name": plan.title, "name_font": {"size": 12, "bold": True}})
+    x0, x1, y0, y1 = plan.bounds
+    scatter = plan.kind == "scatter"
     chart.set_x_axis({"name": plan.x_title, "name_font": {"size": 10, "bold": False},
                       "num_font": _AXIS_FONT, "line": {"color": "#808080"},
-                      "crossing": "min" if plan.kind == "scatter" else None,
-                      "major_gridlines": _GRID if plan.kind == "scatter" else None})
+                      "crossing": "min" if scatter else None,
+                      "major_gridlines": _GRID if scatter else None,
+                      "min": x0, "max": x1})
     chart.set_y_axis({"name": plan.y_title, "name_font": {"size": 10, "bold": False},
                       "num_font": _AXIS_FONT, "line": {"color": "#808080"},
-                      "crossing": "min" if plan.kind == "scatter" else None,
-                      "major_gridlines": _GRID})
+                      "crossing": "min" if scatter else None,
+                      "major_gridlines": _GRID, "min": y0, "max": y1})
     if plan.legend:
         chart.set_legend({"position": "bottom", "delete_series": hidden})
     else:
