@@ -401,3 +401,19 @@ def test_the_mark_check_fails_on_an_empty_chart(refreshed, tmp_path: Path):
         img = _read_ppm(_ppm(pdf, page, tmp_path / f"empty-{k}", "ppm"))
         print("empty chart, marked rows:", marked_rows(img))
         assert marked_rows(img) < 12
+
+
+def test_names_that_read_like_formulas_stay_text_in_charts(tmp_path: Path):
+    """Headers and class labels starting with '=' are chart text, never a chart formula."""
+    rows = [["=SUM(9,9)", "+qty", "@home"]] + [
+        ["=9-9" if r[0] == "late" else "@late", r[1], r[2]] for r in invoices(30, 3)[1:]]
+    p = make_book(tmp_path / "h.xlsx", {"D": rows, "O": [["method", "neighbour_vote"]]},
+                  {"sf_h_y": "D!$A$1:$A$31", "sf_h_x": "D!$B$1:$C$31", "sf_h_opts": "O!$A$1:$B$1"})
+    refresh(p)
+    (scatter, conf) = charts_of(p)["sf h charts"]
+    assert [s[0] for s in scatter.series] == [" =9-9", "@late"]  # a leading space keeps it text
+    assert conf.title.startswith("Model h — =SUM(9,9)")
+    for part, data in entries(p).items():
+        if part.startswith("xl/charts/"):
+            root = etree.fromstring(data, _PARSER)
+            assert not root.findall(f".//{{{C}}}tx/{{{C}}}strRef"), part

@@ -138,13 +138,19 @@ def _charts(wb: xlsxwriter.Workbook, ws: Worksheet, sheet: SheetPlan) -> None:
     ws.set_print_scale(_CHART_PRINT_SCALE)
 
 
+def _plain(text: str) -> str:
+    """Chart text as text: xlsxwriter reads a name starting with '=' as a cell reference,
+    so a header such as '=cost' gets a leading space."""
+    return " " + text if text.startswith("=") else text
+
+
 def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
     """One native chart from its plan: no 3-D, no fills, a legend only for several series."""
     chart = wb.add_chart({"type": plan.kind})
     hidden = []
     colour = 0
     for i, s in enumerate(plan.series):
-        opts: dict[str, Any] = {"name": s.name, "values": "=" + s.y.ref()}
+        opts: dict[str, Any] = {"name": _plain(s.name), "values": "=" + s.y.ref()}
         if s.x is not None:
             opts["categories"] = "=" + s.x.ref()
         c = _COLOURS[colour % len(_COLOURS)]
@@ -166,15 +172,15 @@ def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
         if not s.in_legend:
             hidden.append(i)
         chart.add_series(opts)
-    chart.set_title({"name": plan.title, "name_font": {"size": 12, "bold": True}})
+    chart.set_title({"name": _plain(plan.title), "name_font": {"size": 12, "bold": True}})
     x0, x1, y0, y1 = plan.bounds
     scatter = plan.kind == "scatter"
-    chart.set_x_axis({"name": plan.x_title, "name_font": {"size": 10, "bold": False},
+    chart.set_x_axis({"name": _plain(plan.x_title), "name_font": {"size": 10, "bold": False},
                       "num_font": _AXIS_FONT, "line": {"color": "#808080"},
                       "crossing": "min" if scatter else None,
                       "major_gridlines": _GRID if scatter else None,
                       "min": x0, "max": x1})
-    chart.set_y_axis({"name": plan.y_title, "name_font": {"size": 10, "bold": False},
+    chart.set_y_axis({"name": _plain(plan.y_title), "name_font": {"size": 10, "bold": False},
                       "num_font": _AXIS_FONT, "line": {"color": "#808080"},
                       "crossing": "min" if scatter else None,
                       "major_gridlines": _GRID, "min": y0, "max": y1})
