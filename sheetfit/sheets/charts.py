@@ -70,9 +70,16 @@ class Located:
 
     def __init__(self, planned: Planned) -> None:
         self.names = {n.lower(): t for n, t in planned.names}
-        self._values: dict[tuple[str, int, int], Scalar] = {
-            (s.title, c.row, c.col): c.value for s in planned.sheets for c in s.cells
-        }
+        self._sheets = {s.title: s for s in planned.sheets}
+        self._values: dict[str, dict[tuple[int, int], Scalar]] = {}  # by sheet, on first use
+
+    def _value(self, title: str, row: int, col: int) -> Scalar:
+        table = self._values.get(title)
+        if table is None:
+            sheet = self._sheets.get(title)
+            table = {(c.row, c.col): c.value for c in sheet.cells} if sheet else {}
+            self._values[title] = table
+        return table.get((row, col))
 
     def has(self, name: str) -> bool:
         return name.lower() in self.names
@@ -90,7 +97,7 @@ class Located:
         c2 = col_index(m.group(5)) - 1 if m.group(5) else c1
         r2 = int(m.group(6)) - 1 if m.group(6) else r1
         q = quote_sheet(title)
-        return [[(f"{q}!{absolute(r, c)}", self._values.get((title, r, c)))
+        return [[(f"{q}!{absolute(r, c)}", self._value(title, r, c))
                  for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
 
     def column(self, name: str, j: int = 0) -> list[tuple[str, Scalar]]:
