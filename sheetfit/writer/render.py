@@ -115,6 +115,7 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
 #: Series colours: a blue and an orange that read apart in colour and in grey, then more.
 _COLOURS = ("#1F5C99", "#D9661F", "#2E8B57", "#8E44AD", "#B8860B", "#C0392B", "#16A085",
             "#7F8C8D")
+_SHAPES = ("circle", "square", "triangle", "diamond", "x", "star", "plus", "dash")
 _CHART_PRINT_SCALE = 70
 _GRID = {"visible": True, "line": {"color": "#E3E3E3", "width": 0.75}}
 _AXIS_FONT = {"size": 9, "color": "#404040"}
@@ -155,8 +156,9 @@ def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
             opts["categories"] = "=" + s.x.ref()
         c = _COLOURS[colour % len(_COLOURS)]
         if s.look == "markers":
-            opts["marker"] = {"type": "circle", "size": 5, "fill": {"color": c},
-                              "border": {"color": c}}
+            # a shape per series too, so classes read apart when printed in grey
+            opts["marker"] = {"type": _SHAPES[colour % len(_SHAPES)], "size": 5,
+                              "fill": {"color": c}, "border": {"color": c}}
             colour += 1
         elif s.look == "line":
             opts["line"] = {"color": c, "width": 2}
