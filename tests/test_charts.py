@@ -417,3 +417,43 @@ def test_names_that_read_like_formulas_stay_text_in_charts(tmp_path: Path):
         if part.startswith("xl/charts/"):
             root = etree.fromstring(data, _PARSER)
             assert not root.findall(f".//{{{C}}}tx/{{{C}}}strRef"), part
+
+
+def test_attached_parts_are_numbered_above_every_name_in_use():
+    """A rendered drawing and its charts get numbers above any in the user's package, an
+    orphaned rels part's name included; rels are rewritten to the new names."""
+    from sheetfit.writer._graft_parts import attached_of, place, taken_names
+
+    rel = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
+    pkg_rel = "http://schemas.openxmlformats.org/package/2006/relationships"
+
+    def rels(*items: tuple[str, str, str]) -> bytes:
+        body = "".join(f'<Relationship Id="{i}" Type="{rel}/{t}" Target="{g}"/>'
+                       for i, t, g in items)
+        return f'<Relationships xmlns="{pkg_rel}">{body}</Relationships>'.encode()
+
+    rendered = {
+        "xl/worksheets/_rels/sheet1.xml.rels": rels(("rId1", "drawing", "../drawings/drawing1.xml")),
+        "xl/drawings/drawing1.xml": b"<d/>",
+        "xl/drawings/_rels/drawing1.xml.rels": rels(("rId1", "chart", "../charts/chart1.xml"),
+                                                    ("rId2", "chart", "../charts/chart2.xml")),
+        "xl/charts/chart1.xml": b"<c1/>",
+        "xl/charts/chart2.xml": b"<c2/>",
+    }
+    ct = ('<Types><Override PartName="/xl/drawings/drawing1.xml" ContentType="D"/>'
+          '<Override PartName="/xl/charts/chart1.xml" ContentType="C"/>'
+          '<Override PartName="/xl/charts/chart2.xml" ContentType="C"/></Types>')
+    att = attached_of("xl/worksheets/sheet1.xml", rendered.get, ct)
+    assert att is not None and list(att.parts) == ["xl/drawings/drawing1.xml",
+                                                   "xl/charts/chart1.xml", "xl/charts/chart2.xml"]
+    taken = taken_names({"xl/charts/chart3.xml", "xl/drawings/_rels/drawing5.xml.rels",
+                         "xl/worksheets/sheet9.xml"})
+    out, by_type = place([("xl/worksheets/sheet10.xml", att)], taken, "xl", "xl")
+    names = dict(out)
+    assert by_type == {"D": ["xl/drawings/drawing6.xml"],
+                       "C": ["xl/charts/chart4.xml", "xl/charts/chart5.xml"]}
+    assert b'Target="../drawings/drawing6.xml"' in names["xl/worksheets/_rels/sheet10.xml.rels"]
+    d_rels = names["xl/drawings/_rels/drawing6.xml.rels"]
+    assert b'Id="rId1"' in d_rels and b'Target="../charts/chart4.xml"' in d_rels
+    assert b'Target="../charts/chart5.xml"' in d_rels
+    assert names["xl/charts/chart5.xml"] == b"<c2/>"
