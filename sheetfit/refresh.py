@@ -26,7 +26,7 @@ from .errors import (
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
-from .sheets.charts import plan_chart_sheets
+from .sheets.charts import ChartEntry, plan_chart_sheets
 from .sheets.index import plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
@@ -98,12 +98,13 @@ def plan_book(
     entries = []
     for model, fitted in fits:
         method = REGISTRY[model.settings.method]
-        entries.append((model, fitted, method.plan(model, fitted, __version__), method.charts))
+        entries.append(ChartEntry(model, fitted, method.plan(model, fitted, __version__),
+                                  method.charts, method.labels))
         summaries.append(summarise(model, method, fitted))
     charts = plan_chart_sheets(entries)  # each model's charts sheet follows its own sheets
-    for model, _, planned, _ in entries:
-        sheets += planned.sheets + charts.get(model.tag, [])
-        names += planned.names
+    for e in entries:
+        sheets += e.planned.sheets + charts.get(e.model.tag, [])
+        names += e.planned.names
     return BookPlan([plan_index(summaries, refreshed, __version__)] + sheets, names), summaries
 
 

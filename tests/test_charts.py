@@ -457,3 +457,25 @@ def test_attached_parts_are_numbered_above_every_name_in_use():
     assert b'Id="rId1"' in d_rels and b'Target="../charts/chart4.xml"' in d_rels
     assert b'Target="../charts/chart5.xml"' in d_rels
     assert names["xl/charts/chart5.xml"] == b"<c2/>"
+
+
+def test_comparison_only_between_like_errors(tmp_path: Path):
+    """Two votes on one response are compared by error rate; a neighbour mean on the same
+    (numeric class code) column is not put beside them: an RMSE is not an error rate."""
+    rows = invoices(40, 2, numeric=True)
+    opts = {"v1": [["method", "neighbour_vote"], ["k", 3]],
+            "v2": [["method", "neighbour_vote"], ["k", 7]],
+            "m": [["method", "neighbour_mean"]]}
+    sheets = {"D": rows, **{f"O{t}": o for t, o in opts.items()}}
+    names = {}
+    for t, o in opts.items():
+        names |= {f"sf_{t}_y": "D!$A$1:$A$41", f"sf_{t}_x": "D!$B$1:$C$41",
+                  f"sf_{t}_opts": f"O{t}!$A$1:$B${len(o)}"}
+    p = make_book(tmp_path / "codes.xlsx", sheets, names)
+    refresh(p)
+    book = Book(p)
+    compare = book.charts["sf v1 charts"][-1]
+    assert compare.title == "outcome: leave-one-out error rate of the models on it"
+    _, loo = compare.one("leave-one-out error rate")
+    assert [t[0] for t in book.targets(loo)] == book.name("sf_v1_loo") + book.name("sf_v2_loo")
+    assert all("of the models" not in c.title for c in book.charts["sf m charts"])

@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 from ..a1 import absolute, col_index, quote_sheet
@@ -27,6 +28,7 @@ from .plan import Planned, Scalar, SheetPlan
 __all__ = [
     "HELPER_HEAD",
     "MAX_POINTS",
+    "ChartEntry",
     "ChartSheet",
     "Located",
     "plan_chart_sheets",
@@ -197,35 +199,44 @@ def suffix(n_rows: int) -> str:
 
 # --- the book step: every model's charts sheet, and comparisons across models -------------
 
-def plan_chart_sheets(
-    entries: Sequence[tuple[ModelData, Fitted[Any], Planned, ChartPlanner | None]],
-) -> dict[str, list[SheetPlan]]:
+@dataclass(frozen=True)
+class ChartEntry:
+    """One model as the book step sees it: declared, fitted, planned, and its method's
+    charts planner (None: no charts) and whether its response holds class labels."""
+
+    model: ModelData
+    fitted: Fitted[Any]
+    planned: Planned
+    planner: ChartPlanner | None
+    labels: bool
+
+
+def plan_chart_sheets(entries: Sequence[ChartEntry]) -> dict[str, list[SheetPlan]]:
     """Charts sheets by model tag (each method's planner), plus one comparison chart per
-    response that several models with a leave-one-out error (``sf_<model>_loo``) share."""
+    response that several models with a leave-one-out error (``sf_<model>_loo``) share;
+    an error rate (class labels) is compared only with error rates."""
     out: dict[str, list[SheetPlan]] = {}
-    for model, fitted, planned, planner in entries:
-        if planner is not None:
-            out[model.tag] = planner(model, fitted, planned)
-    groups: dict[tuple[str, int, int, bool], list[tuple[ModelData, Planned]]] = {}
-    for model, fitted, planned, _ in entries:
-        if Located(planned).has(f"sf_{model.tag}_loo"):
-            labels = not all(_number(v) for v in model.Y[:1].tolist())
-            key = (model.y.sheet.lower(), model.y.col, model.y.first_row, labels)
-            groups.setdefault(key, []).append((model, planned))
+    for e in entries:
+        if e.planner is not None:
+            out[e.model.tag] = e.planner(e.model, e.fitted, e.planned)
+    groups: dict[tuple[str, int, int, bool], list[ChartEntry]] = {}
+    for e in entries:
+        if Located(e.planned).has(f"sf_{e.model.tag}_loo"):
+            y = e.model.y
+            groups.setdefault((y.sheet.lower(), y.col, y.first_row, e.labels), []).append(e)
     for members in groups.values():
-        if len(members) < 2 or not out.get(members[0][0].tag):
-            continue
-        _compare(ChartSheet(out[members[0][0].tag][0]), members)
+        home = out.get(members[0].model.tag)
+        if len(members) >= 2 and home:
+            _compare(ChartSheet(home[0]), members)
     return out
 
 
-def _compare(board: ChartSheet, members: list[tuple[ModelData, Planned]]) -> None:
-    first = members[0][0]
-    labels = not all(_number(v) for v in first.Y[:1].tolist())
-    what = "error rate" if labels else "RMSE"
-    tags = board.column("model", [(None, m.tag) for m, _ in members], "text")
+def _compare(board: ChartSheet, members: list[ChartEntry]) -> None:
+    first = members[0].model
+    what = "error rate" if members[0].labels else "RMSE"
+    tags = board.column("model", [(None, e.model.tag) for e in members], "text")
     loo = board.column(f"leave-one-out {what}", copy_cells(
-        [Located(p).column(f"sf_{m.tag}_loo")[0] for m, p in members]))
+        [Located(e.planned).column(f"sf_{e.model.tag}_loo")[0] for e in members]))
     board.gap()
     board.chart("column", f"{first.y.name}: leave-one-out {what} of the models on it",
                 "model", f"leave-one-out {what}",
