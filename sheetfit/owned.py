@@ -30,14 +30,17 @@ __all__ = [
 #: Every declaration and output name starts with this prefix (case-insensitive).
 PREFIX = "sf_"
 
-#: Roles a user declares: response, attributes, rows to predict, settings.
-INPUT_ROLES = ("y", "x", "new", "opts")
+#: Roles a user declares: response, attributes, rows to predict, settings, the
+#: identifier columns of the data rows (``key``) and of the rows to predict (``newkey``),
+#: and the coefficients of the rule in use today (``rule``, least squares).
+INPUT_ROLES = ("y", "x", "new", "opts", "key", "newkey", "rule")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
-#: The last five locate what the charts read: standard units of the used rows (``z``),
+#: "z" … "means" locate what the charts read: standard units of the used rows (``z``),
 #: the confusion matrix counts, the leave-one-out error cell (``loo``), and the strip
 #: curve's centres and means.
-OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "z", "confusion", "loo", "centres", "means")
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "se", "robust", "predlow", "predhigh",
+                "z", "confusion", "loo", "centres", "means")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
 #: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
@@ -55,6 +58,7 @@ SHEET_KINDS = {
     "nbrs": "nbrs",
     "summary": "summary",
     "strip": "strip",
+    "audit": "audit",
     "charts": "charts",
 }
 

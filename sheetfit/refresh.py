@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
+from .carry import read_kept
 from .declare.model import ModelData, find_models
 from .errors import (
     Context,
@@ -139,6 +140,8 @@ def refresh(book: str | Path, out: str | Path | None = None,
             pkg = open_package(source)
             with _values(pkg, source) as values:
                 models = find_models(pkg, values, file, REGISTRY)
+                for m in models:  # notes people typed on owned sheets, put back after
+                    m.kept = read_kept(values, m.tag)
             fits = [(m, fit_model(m)) for m in models]
             stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
             plan, summaries = plan_book(fits, stamp)

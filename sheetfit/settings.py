@@ -21,12 +21,14 @@ __all__ = [
     "Rule",
     "Settings",
     "all_rules",
+    "amount_or_sd",
     "choice",
     "integer",
     "k_value",
     "label",
     "parse_settings",
     "positive",
+    "share",
     "yes_no",
 ]
 
@@ -66,6 +68,30 @@ def positive(raw: Any) -> float:
     if not (math.isfinite(value) and value > 0):
         raise ValueError
     return value
+
+
+def share(lo: float, hi: float) -> Callable[[Any], float]:
+    """A number from lo to hi; a percentage ("95%") is read as its share."""
+    def parse(raw: Any) -> float:
+        text = str(raw).strip()
+        value = float(text[:-1]) / 100 if text.endswith("%") else float(raw)
+        if not (math.isfinite(value) and lo <= value <= hi):
+            raise ValueError
+        return value
+
+    return parse
+
+
+def amount_or_sd(raw: Any) -> tuple[str, float]:
+    """An amount ("250") or a multiple of the residual SD ("2 sd"): ("amount"|"sd", value)."""
+    text = str(raw).strip().lower()
+    kind = "amount"
+    if text.endswith("sd"):
+        kind, text = "sd", text[:-2].strip().rstrip("×*x").strip()
+    value = float(text.replace(",", "")) if isinstance(raw, str) or kind == "sd" else float(raw)
+    if not (math.isfinite(value) and value > 0):
+        raise ValueError
+    return kind, value
 
 
 def choice(options: tuple[str, ...]) -> Callable[[Any], str]:

@@ -172,7 +172,7 @@ def refreshed(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
 
 def test_least_squares_charts_read_data_coefficients_fitted_and_residuals(refreshed):
     book = Book(refreshed["delivery_costs"])
-    line, resid = book.charts["sf bykm charts"]
+    line, resid, _ = book.charts["sf bykm charts"]
     assert line.kind == "scatterChart" and "against km driven" in line.title
     x, y = line.one("data")
     for rng in (x, y):
@@ -192,6 +192,20 @@ def test_least_squares_charts_read_data_coefficients_fitted_and_residuals(refres
     zx, zy = resid.one("zero")
     assert len(_cells(zy)) == len(_cells(zx)) == 2
     assert [t[0] for t in book.targets(zx)] == [book.name("sf_bykm_fitted")[0]] * 2
+
+    # the two models on delivery cost compared by their leave-one-out RMSE cells
+    (compare,) = [c for c in book.charts["sf bykm charts"] if c.kind == "barChart"]
+    _, loo = compare.one("leave-one-out RMSE")
+    assert [t[0] for t in book.targets(loo)] == (book.name("sf_bykm_loo")
+                                                 + book.name("sf_route_loo"))
+    import python_calamine
+
+    wb = python_calamine.load_workbook(str(book.path))
+    for tag in ("bykm", "route"):
+        sheet, cell = book.name(f"sf_{tag}_loo")[0].split("!")
+        r = int(re.sub(r"[A-Z]+", "", cell)) - 1
+        label = wb.get_sheet_by_name(sheet).to_python(skip_empty_area=False)[r][0]
+        assert label == "leave-one-out RMSE"  # the cell the name holds is that figure
 
     route = Book(refreshed["delivery_costs"]).charts["sf route charts"][0]
     ox, oy = route.one("rows")

@@ -250,4 +250,59 @@ def test_output_name_left_at_ref_error_is_replaced(tmp_path: Path) -> None:
                    "sf_a_coef": "#REF!"})
     refresh(p)
     names = {d.name: d.text for d in open_package(p).defined_names}
-    assert names["sf_a_coef"] == "'sf a coef'!$B$8:$B$9"
+    assert names["sf_a_coef"] == "'sf a coef'!$B$5:$B$6"
+
+
+def test_identifier_columns_follow_the_rows_they_name(tmp_path: Path) -> None:
+    """key and newkey: identifier cells beside the data and new rows, header names them."""
+    rows = [["month", "cost", "units"]] + [[f"2026-{m:02d}", 10.0 + 2 * m + (m % 3), float(m)]
+                                           for m in range(1, 9)]
+    rows[4][1] = None  # a left-out row keeps its identifier
+    new = [["units"], [9.0], [10.0]]
+    data = [r + [None] + (new[i] if i < 3 else []) for i, r in enumerate(rows)]
+    p = make_book(tmp_path / "b.xlsx",
+                  {"Data": data, "Plan": [["month"], ["2026-09"], ["2026-10"]]},
+                  {"sf_a_y": "Data!$B:$B", "sf_a_x": "Data!$C:$C", "sf_a_key": "Data!$A:$A",
+                   "sf_a_new": "Data!$E$1:$E$3", "sf_a_newkey": "Plan!$A$1:$A$3"})
+    (m,) = _models(p)
+    assert m.keys is not None and [c.name for c in m.keys.columns] == ["month"]
+    assert m.keys.columns[0].cell(0) == "Data!A2"
+    assert m.keys.values[0] == [f"2026-{k:02d}" for k in range(1, 9)]
+    assert 3 not in list(m.used) and m.keys.row(3) == ["2026-04"]
+    assert m.new is not None and m.new.keys is not None
+    assert m.new.keys.values == [["2026-09", "2026-10"]]
+
+
+def test_identifiers_must_cover_the_same_rows(tmp_path: Path) -> None:
+    p = make_book(tmp_path / "b.xlsx", {"Data": line_rows(6)},
+                  {"sf_a_y": "Data!$A$1:$A$7", "sf_a_x": "Data!$B$1:$B$7",
+                   "sf_a_key": "Data!$C$2:$C$8"})
+    with pytest.raises(DataError, match="do not cover the rows"):
+        _models(p)
+    p = make_book(tmp_path / "c.xlsx", {"Data": line_rows(6)},
+                  {"sf_a_y": "Data!$A$1:$A$7", "sf_a_x": "Data!$B$1:$B$7",
+                   "sf_a_newkey": "Data!$C$1:$C$7"})
+    with pytest.raises(DeclarationError, match="declares no new rows"):
+        _models(p)
+
+
+def test_rule_declarations_are_checked(tmp_path: Path) -> None:
+    """The rule must be numbers, one per term, and only on a least-squares model."""
+    base = {"sf_a_y": "Data!$A$1:$A$7", "sf_a_x": "Data!$B$1:$B$7"}
+    p = make_book(tmp_path / "a.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0], [3.0]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$3"})
+    with pytest.raises(DataError, match="the rule has 3 coefficients but the model has 2 terms"):
+        _models(p)
+    p = make_book(tmp_path / "b.xlsx", {"Data": line_rows(6), "Rule": [[1.0], ["two"]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2"})
+    with pytest.raises(DataError, match="text 'two' where a number is needed"):
+        _models(p)
+    p = make_book(tmp_path / "c.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0]],
+                                        "Opts": [["method", "neighbour_mean"]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2", "sf_a_opts": "Opts!$A$1:$B$1"})
+    with pytest.raises(DeclarationError, match="no coefficients to compare with a rule"):
+        _models(p)
+    p = make_book(tmp_path / "d.xlsx", {"Data": line_rows(6), "Rule": [[1.0], [2.0]]},
+                  {**base, "sf_a_rule": "Rule!$A$1:$A$2"})
+    (m,) = _models(p)
+    assert m.rule is not None and m.rule.cells == ["Rule!A1", "Rule!A2"]

@@ -430,8 +430,8 @@ def test_refresh_after_libreoffice_resave_replaces_its_sheets(books: dict[str, P
     assert titles == ["Data", "More", "sf index", "sf demo coef", "sf demo fitted",
                       "sf demo resid", "sf demo charts"]
     outputs = sorted(d.name for d in pkg.defined_names if d.name.startswith("sf_demo_"))
-    assert outputs == ["sf_demo_coef", "sf_demo_fitted", "sf_demo_resid", "sf_demo_x",
-                       "sf_demo_y"]
+    assert outputs == ["sf_demo_coef", "sf_demo_fitted", "sf_demo_loo", "sf_demo_resid",
+                       "sf_demo_robust", "sf_demo_se", "sf_demo_x", "sf_demo_y"]
     assert len(pkg.owned_sheets()) == 5
     # one set of charts: the user's chart and the two on sf demo charts, nothing left over
     charts = [n for n in entries(second) if re.fullmatch(r"xl/charts/chart\d+\.xml", n)]

@@ -95,6 +95,18 @@ def test_strd_book_coefficients_certified_and_formulas_hold(
     else:
         assert sd == pytest.approx(case.resid_sd, rel=1e-6)
     assert r2 == pytest.approx(case.r2, abs=1e-9)
+    # Standard errors as the engine recalculates them on the coefficient sheet (the exact
+    # residual SD times √diag (XᵀX)⁻¹ written by sheetfit), against the certified
+    # standard deviations of the estimates: LRE >= 12 (0 certified: |SE| < 1e-13 |coef|).
+    head = next(i for i, r in enumerate(rows) if r and r[0] == "term") + 1
+    se_col = rows[head - 1].index("standard error")
+    for k, (want, c) in enumerate(zip(case.coef_sd, case.coef)):
+        got = cells[f"{chr(65 + se_col)}{head + 1 + k}"].value
+        assert isinstance(got, float)
+        if want == 0:
+            assert abs(got) <= 1e-13 * max(abs(float(c)), 1.0), (case.name, k, got)
+        else:
+            assert lre(got, want) >= 12, f"{case.name}: SE of term {k} LRE {lre(got, want):.1f}"
 
 
 def _set_value(path: Path, part: str, cell: str, value: float) -> None:

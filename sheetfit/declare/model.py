@@ -1,6 +1,7 @@
 """Find the models declared with defined names and turn their cells into arrays.
 
-A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts),
+A declaration is a defined name ``sf_<model>_<role>`` (roles y, x, new, opts, key, newkey,
+rule),
 workbook- or sheet-scoped. This module checks everything that comes out of the
 named ranges (one place, one wording): references, lengths, headers, values, settings.
 Messages name the file, the defined name, the sheet and the cell. What the numbers themselves must satisfy (enough
@@ -36,10 +37,13 @@ from .refs import Area, RefError, parse_areas
 
 __all__ = [
     "Column",
+    "KeyValue",
+    "Keys",
     "LeftOut",
     "MethodReading",
     "ModelData",
     "NewRows",
+    "RuleCells",
     "describe_value",
     "find_models",
 ]
@@ -76,12 +80,42 @@ class LeftOut:
     reason: str
 
 
+#: What an identifier cell holds, as shown beside a row: a number (dates as serials),
+#: text, or None for a blank.
+KeyValue = float | str | None
+
+
+@dataclass
+class Keys:
+    """Identifier columns (a month, a job or invoice number ...) beside the model's rows.
+
+    ``values[j][i]`` is what column j holds in the i-th row of the declared range
+    (all rows, used or not; index as ``Column.cell(i)``).
+    """
+
+    columns: list[Column]
+    values: list[list[KeyValue]]
+
+    def row(self, i: int) -> list[KeyValue]:
+        return [v[i] for v in self.values]
+
+
+@dataclass(frozen=True)
+class RuleCells:
+    """The coefficients of the rule in use today: their cells (as formula references), values."""
+
+    name: str
+    cells: list[str]
+    values: np.ndarray
+
+
 @dataclass
 class NewRows:
     """Rows of attribute values to predict (the ``new`` declaration)."""
 
     columns: list[Column]
     X: np.ndarray
+    keys: Keys | None = None
 
     @property
     def n(self) -> int:
@@ -104,6 +138,11 @@ class ModelData:
     X: np.ndarray
     new: NewRows | None = None
     names: dict[str, str] = field(default_factory=dict)
+    keys: Keys | None = None
+    rule: RuleCells | None = None
+    #: What people typed on this model's owned sheets at the last refresh, to be written
+    #: back (by sheet kind, then row identity): filled by the refresh, not a declaration.
+    kept: dict[str, dict[str, list[str | float]]] = field(default_factory=dict)
 
     @property
     def attribute_names(self) -> list[str]:
@@ -185,6 +224,9 @@ class MethodReading(MethodSettings, Protocol):
 
     @property
     def check(self) -> Callable[[ModelData], None] | None: ...
+
+    @property
+    def compares_rule(self) -> bool: ...
 
 
 def find_models(pkg: Package, values: BookValues, file: str,
@@ -342,8 +384,21 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             hint="fill in the data or point the names at it",
         )
     new = _read_new(decl, pkg, values, file, xcols) if "new" in decl.names else None
+    if "newkey" in decl.names and new is None:
+        raise DeclarationError(
+            f"model '{tag}' names identifiers of new rows but declares no new rows",
+            Context(file, decl.names["newkey"].name), hint=f"define sf_{tag}_new or drop the name",
+        )
+    keys = (_read_keys(decl.names["key"], pkg, values, file, ya, header)
+            if "key" in decl.names else None)
+    rule = _read_rule(decl.names["rule"], pkg, values, file) if "rule" in decl.names else None
+    if rule is not None and not method.compares_rule:
+        raise DeclarationError(
+            f"a {method.title} model has no coefficients to compare with a rule",
+            Context(file, rule.name), hint="declare the rule on a least-squares model")
     names = {role: d.name for role, d in decl.names.items()}
-    model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names)
+    model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names,
+                      keys, rule)
     if method.check is not None:
         method.check(model)
     return model
@@ -464,7 +519,70 @@ def _read_new(
             X[i, j] = v.number
     if n == 0:
         raise DataError("the new rows range holds no rows", Context(file, d.name))
-    return NewRows(cols, X)
+    keys = (_read_keys(decl.names["newkey"], pkg, values, file, areas[0], header)
+            if "newkey" in decl.names else None)
+    return NewRows(cols, X, keys)
+
+
+def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like: Area,
+               header: bool) -> Keys:
+    """Identifier columns that must cover the same sheet rows as ``like`` (y's or new's area).
+
+    Whole columns take the rows of ``like``; the header row, when the model has one,
+    names the columns. Any cell content is accepted: identifiers are shown, never fitted.
+    """
+    areas = [a.with_rows(like.row1, like.row2) if a.whole_columns else a
+             for a in _areas(d, pkg, file)]
+    for a in areas:
+        if (a.row1, a.row2) != (like.row1, like.row2):
+            raise DataError(
+                f"identifiers in {a.a1()} do not cover the rows of the range they name "
+                f"({like.a1()})",
+                Context(file, d.name, a.sheet, a.a1()),
+                hint="point the identifier name at the same rows as the data it names",
+            )
+    offset = 1 if header else 0
+    cols: list[Column] = []
+    vals: list[list[KeyValue]] = []
+    for a, c in _columns(areas):
+        sv = values.sheet(a.sheet)
+        name = sv.get(like.row1, c).text.strip() if header else ""
+        col = Column(name or col_letter(c), a.sheet, c, like.row1 + offset)
+        cols.append(col)
+        vals.append([_key_value(sv.get(col.row_of(i), c))
+                     for i in range(like.n_rows - offset)])
+    return Keys(cols, vals)
+
+
+def _read_rule(d: DefinedName, pkg: Package, values: BookValues, file: str) -> RuleCells:
+    """The rule's coefficients: numbers in a column or a row, read in order."""
+    cells: list[str] = []
+    nums: list[float] = []
+    for a in _areas(d, pkg, file):
+        if a.whole_columns:
+            raise DataError("the rule's coefficients must be a few cells, not whole columns",
+                            Context(file, d.name, a.sheet, a.a1()),
+                            hint="point the name at the cells holding the rule's coefficients")
+        sv = values.sheet(a.sheet)
+        for r in range(a.row1, a.row2 + 1):
+            for c in range(a.col1, a.col2 + 1):
+                v = sv.get(r, c)
+                if v.kind != NUMBER:
+                    raise DataError(
+                        f"the rule's coefficients hold {describe_value(v)} where a number is "
+                        "needed", Context(file, d.name, a.sheet, cell_ref(r, c)),
+                        hint="give the rule's coefficients as numbers, intercept first")
+                cells.append(f"{quote_sheet(a.sheet)}!{cell_ref(r, c)}")
+                nums.append(v.number)
+    return RuleCells(d.name, cells, np.array(nums))
+
+
+def _key_value(v: Value) -> KeyValue:
+    if v.kind == NUMBER:
+        return v.number
+    if v.kind == BLANK:
+        return None
+    return v.text
 
 
 def _settings(decl: _Decl, pkg: Package, values: BookValues, file: str,

@@ -45,6 +45,7 @@ class ExactSolution:
     tss: float
     r2: float
     inv_diag: np.ndarray
+    inv: np.ndarray
 
 
 def scaled_integers(values: np.ndarray) -> ExactColumn:
@@ -58,8 +59,9 @@ def _dot(a: list[int], b: list[int]) -> int:
     return sum(map(operator.mul, a, b))
 
 
-def _gauss_jordan(gram: list[list[int]], rhs: list[int]) -> tuple[list[Fraction], list[Fraction]]:
-    """Solve ``gram · γ = rhs`` exactly; also return the diagonal of ``gram⁻¹``.
+def _gauss_jordan(gram: list[list[int]], rhs: list[int]
+                  ) -> tuple[list[Fraction], list[list[Fraction]]]:
+    """Solve ``gram · γ = rhs`` exactly; also return ``gram⁻¹``.
 
     Raises ZeroDivisionError when gram is exactly singular.
     """
@@ -72,8 +74,8 @@ def _gauss_jordan(gram: list[list[int]], rhs: list[int]) -> tuple[list[Fraction]
     ]
     _eliminate(rows, p)
     gamma = [rows[i][p] for i in range(p)]
-    inv_diag = [rows[i][p + 1 + i] for i in range(p)]
-    return gamma, inv_diag
+    inverse = [rows[i][p + 1:] for i in range(p)]
+    return gamma, inverse
 
 
 def _eliminate(rows: list[list[Fraction]], p: int) -> None:
@@ -109,7 +111,7 @@ def exact_solve(cols: list[ExactColumn], y: ExactColumn, centred: bool) -> Exact
         for j in range(i):
             gram[i][j] = gram[j][i]
     rhs = [_dot(col, y.ints) for col in a]
-    gamma, g_inv_diag = _gauss_jordan(gram, rhs)
+    gamma, g_inv = _gauss_jordan(gram, rhs)
 
     # One common denominator keeps the residuals in integer arithmetic.
     den = math.lcm(*(g.denominator for g in gamma))
@@ -132,7 +134,8 @@ def exact_solve(cols: list[ExactColumn], y: ExactColumn, centred: bool) -> Exact
     coef = np.array(
         [float(g * Fraction(2) ** (c.shift - y.shift)) for g, c in zip(gamma, cols, strict=True)]
     )
-    inv_diag = np.array(
-        [float(d * (1 << (2 * c.shift))) for d, c in zip(g_inv_diag, cols, strict=True)]
-    )
-    return ExactSolution(coef, resid, fitted, float(ssr), float(tss), r2, inv_diag)
+    # (XᵀX)⁻¹_jk = 2^(shift_j + shift_k) · (GᵀG)⁻¹_jk, each entry rounded once.
+    inv = np.array([[float(g_inv[j][k] * (1 << (cols[j].shift + cols[k].shift)))
+                     for k in range(p)] for j in range(p)])
+    return ExactSolution(coef, resid, fitted, float(ssr), float(tss), r2, np.diag(inv).copy(),
+                         inv)

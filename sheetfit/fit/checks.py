@@ -27,6 +27,7 @@ __all__ = [
     "check_degree",
     "check_flag",
     "check_k",
+    "check_level",
     "check_positive",
     "enough_rows",
     "enough_rows_for_terms",
@@ -218,3 +219,16 @@ def check_k(k: Any, n: int) -> int | None:
             hint="lower k or add rows",
         )
     return int(k)
+
+
+def check_level(level: Any) -> float:
+    """A confidence level: a number strictly between 0 and 1 (0.95 for 95 %)."""
+    if isinstance(level, bool | np.bool_) or not isinstance(level, int | float | np.number):
+        raise SettingError(f"the confidence level must be a number, given {level!r}")
+    value = float(level)
+    if not 0.5 <= value < 1:
+        raise SettingError(
+            f"the confidence level must be at least 0.5 and below 1, given {level!r}",
+            hint="give it as a share, e.g. 0.95 for 95 %",
+        )
+    return value

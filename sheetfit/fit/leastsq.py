@@ -102,6 +102,7 @@ class _Solution:
     tss: float
     r2: float
     inv_diag: np.ndarray
+    inv: np.ndarray
     condition_number: float
     method_note: str
     solver: str
@@ -214,6 +215,11 @@ class LeastSquaresResult:
     def xtx_inv_diag_(self) -> np.ndarray:
         """Diagonal of (XᵀX)⁻¹, the unscaled variances of the coefficients."""
         return readonly(self._sol.inv_diag)
+
+    @cached_property
+    def xtx_inv_(self) -> np.ndarray:
+        """(XᵀX)⁻¹ of the design (intercept column included), each entry rounded once."""
+        return readonly(self._sol.inv)
 
     @cached_property
     def coef_se_(self) -> np.ndarray:
@@ -353,7 +359,8 @@ def _solve_exact(
         f"normal equations solved exactly in rational arithmetic on the float64 data "
         f"(rows × parameters = {n * len(cols)} ≤ {EXACT_LIMIT}); each statistic rounded once"
     )
-    return _Solution(s.coef, s.fitted, s.resid, s.ssr, s.tss, s.r2, s.inv_diag, cond, note, "exact")
+    return _Solution(s.coef, s.fitted, s.resid, s.ssr, s.tss, s.r2, s.inv_diag, s.inv, cond, note,
+                     "exact")
 
 
 def _solve_float(
@@ -396,10 +403,11 @@ def _solve_float(
     else:
         tss = dd_sum_squares(y, np.zeros(n))
     r2 = 1.0 - ssr / tss if tss > 0 else math.nan
-    inv_diag = np.array([float(g_inv[j][j]) for j in range(p)])
+    inv = np.array([[float(g_inv[j][k]) for k in range(p)] for j in range(p)])
+    inv_diag = np.diag(inv).copy()
     note = (
         f"normal equations with XᵀX accumulated in double-double and inverted exactly, "
         f"{steps} refinement step(s) with double-double residuals (last relative correction "
         f"{size:.1e}); rank checked by QR of the unit-scaled columns"
     )
-    return _Solution(beta, fitted, hi + 0.0, ssr, tss, r2, inv_diag, cond, note, "refined")
+    return _Solution(beta, fitted, hi + 0.0, ssr, tss, r2, inv_diag, inv, cond, note, "refined")

@@ -41,4 +41,6 @@ class Method(Generic[R]):
     labels: bool = False
     max_attributes: int | None = None
     check: Callable[[ModelData], None] | None = None
+    #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
+    compares_rule: bool = False
     charts: Callable[[ModelData, Fitted[R], Planned], list[SheetPlan]] | None = None

@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 from ..declare.model import ModelData
+from ..errors import Context, DataError
 from ..fit.checks import DEGREE_RANGE
-from ..fit.leastsq import LeastSquares, LeastSquaresResult
-from ..settings import Rule, integer, yes_no
+from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
+from ..settings import Rule, amount_or_sd, integer, share, yes_no
+from ..sheets._ls_words import least_squares_cautions
 from ..sheets.charts_methods import least_squares_charts
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
@@ -21,6 +23,22 @@ def _fit(model: ModelData) -> LeastSquaresResult:
     return est.fit(model.X, model.Y, names=model.attribute_names)
 
 
+def _check(model: ModelData) -> None:
+    """A declared rule has one coefficient per term, in the coefficient column's order."""
+    rule = model.rule
+    if rule is None:
+        return
+    st = model.settings
+    degree = int(st["degree"])
+    p = int(bool(st["intercept"])) + (degree if degree > 1 else len(model.xs))
+    if len(rule.values) != p:
+        terms = _term_names(model.attribute_names, bool(st["intercept"]), degree)
+        raise DataError(
+            f"the rule has {len(rule.values)} coefficients but the model has {p} terms "
+            f"({', '.join(terms)})", Context(model.file, rule.name),
+            hint="give one coefficient per term, in that order")
+
+
 def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
     r2 = "R² (uncentred)" if res.r2_uncentred_ else "R²"
     coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms_, res.coef_))
@@ -28,14 +46,7 @@ def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
-    out = []
-    if res.r2_uncentred_:
-        out.append("no intercept: R² is uncentred (about zero) and reads higher than a "
-                   "centred R²")
-    if res.df_resid_ < 10:
-        out.append(f"only {res.df_resid_} residual degrees of freedom: R² and the residual "
-                   "SD are unstable")
-    return out
+    return least_squares_cautions(res)
 
 
 METHOD: Method[LeastSquaresResult] = Method(
@@ -46,7 +57,14 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("intercept", "yes or no", True, yes_no, "whether the model has a constant term"),
         Rule("degree", f"a whole number from {_LO} to {_HI}", 1, integer(_LO, _HI),
              "polynomial degree in the one attribute (2 adds x^2, ...)"),
+        Rule("level", "a share from 0.5 to 0.999", 0.95, share(0.5, 0.999),
+             "confidence level of the coefficient ranges and prediction intervals"),
+        Rule("threshold", "an amount (250) or a multiple of the residual SD (2 sd)", None,
+             amount_or_sd, "audit: list the rows whose actual differs from the fitted value "
+             "by more than this, on an audit sheet"),
     ),
+    check=_check,
+    compares_rule=True,
     fit=_fit,
     plan=plan_least_squares,
     figures=_figures,

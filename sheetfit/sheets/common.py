@@ -57,4 +57,5 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.
         rs.put(r, 3, "" if blank else e, f'=IF(C{r + 1}="","",B{r + 1}-C{r + 1})', "num")
     rs.widths = {0: 9, 3: 16}
     rs.freeze = (FIRST_ROW, 1)
+    rs.columns.update({"observed": 1, "fitted": 2, "resid": 3})
     return rs

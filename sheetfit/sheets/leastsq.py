@@ -7,15 +7,30 @@ operations, same order), so an engine that recalculates the book reproduces it.
 from __future__ import annotations
 
 import math
-import textwrap
 
 import numpy as np
+from scipy import stats
 
-from ..a1 import absolute
-from ..declare.model import ModelData
+from ..a1 import absolute, col_letter, quote_sheet
+from ..declare.model import Keys, ModelData
+from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
 from ..owned import sheet_title
+from ._ls_audit import Threshold, audit_caution, plan_audit
+from ._ls_coef import (
+    C_COEF,
+    C_HC3,
+    C_SE,
+    EXACT_FIT,
+    FIRST_COEF,
+    CoefInputs,
+    RuleFit,
+    figure_row,
+    plan_coef_sheet,
+)
+from ._ls_rows import plan_influence
+from ._ls_words import least_squares_cautions
 from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
 from .plan import Planned, SheetPlan
 
@@ -28,28 +43,6 @@ def _term_values(X: np.ndarray, degree: int) -> list[tuple[int, int]]:
     if degree > 1:
         return [(0, d) for d in range(1, degree + 1)]
     return [(j, 1) for j in range(X.shape[1])]
-
-
-#: Residuals this small relative to y (|r| <= 1e-12 |y|) are rounding noise of an exact
-#: fit; their angle with a term column is arbitrary and differs between engines (one
-#: rounds y - fitted to 0, another to ±1 ulp), so the check reads 0 for them.
-EXACT_FIT = "1E-24"
-
-
-def _cosine(r: np.ndarray, t: np.ndarray, y: np.ndarray) -> float:
-    """What the check formula evaluates to: 0 for an exact fit, else cos(r, t)."""
-    ssr = fsum_sq(r)
-    if ssr <= float(EXACT_FIT) * fsum_sq(y):
-        return 0.0
-    return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * fsum_sq(t))
-
-
-def _check_formula(r: str, t: str | None, y: str) -> str:
-    """Native check formula: cosine of the angle between residuals r and term column t."""
-    guard = f"SUMSQ({r})<={EXACT_FIT}*SUMSQ({y})"
-    if t is None:  # the intercept's column is all ones
-        return f"=IF({guard},0,SUM({r})/SQRT(SUMSQ({r})*COUNT({r})))"
-    return f"=IF({guard},0,SUMPRODUCT({r},{t})/SQRT(SUMSQ({r})*SUMSQ({t})))"
 
 
 def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
@@ -77,11 +70,11 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
                        version: str) -> Planned:
     """Plan the coefficient, fitted-value and residual sheets of a fitted model.
 
-    Coefficients and the method note come from the result. Fitted values, residuals and
-    the summary figures are cached as their formulas compute them (coefficient cells
-    times data cells, left to right), which differs from the result's correctly rounded
-    values in the last digits; ``_prediction`` and the summary lines hold that arithmetic
-    beside the formulas it mirrors.
+    Coefficients, standard errors, leverages and the method note come from the result.
+    Fitted values, residuals and the figures built on them are cached as their formulas
+    compute them (coefficient cells times data cells, left to right), which differs from
+    the result's correctly rounded values in the last digits; ``_prediction`` and the
+    coefficient sheet hold that arithmetic beside the formulas it mirrors.
     """
     res = fitted_.result
     tag, y = model.tag, model.y
@@ -91,187 +84,228 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     terms: list[str] = list(res.terms_)
     n = len(model.used)
     p = len(coef)
+    level = float(model.settings.values.get("level", 0.95))
     specs = _term_values(model.X, degree)
     tvals = [model.X[:, j] ** d if d > 1 else model.X[:, j] for j, d in specs]
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
-    coef_note = (
-        f"Coefficients computed by sheetfit {version} ({res.method_note_}). The check beside "
-        "each is a native formula, the cosine of the angle between the residuals and that "
-        "term's column: least squares makes it 0 (it reads 0 outright when the fit reproduces "
-        "y to 12 digits)."
-    )
-    coef_head = len(textwrap.wrap(coef_note, 100)) + 2
-    first_coef = coef_head + 1
-    coef_cell = [absolute(first_coef + k, 1) for k in range(p)]
-    coef_ref = [cs.ref(first_coef + k, 1) for k in range(p)]
+    coef_ref = [cs.ref(FIRST_COEF + k, C_COEF) for k in range(p)]
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
     fs.put(0, 0, f"Fitted values — model {tag}", style="title")
     fs.note(1, 0, "Each fitted value is a formula: the coefficients on sheet "
             f"'{cs.title}' times the term values from your data cells.")
-    head = ["data row", f"{y.name} (observed)"] + terms[int(intercept):] + [f"fitted {y.name}"]
+    keys = model.keys
+    nk = 0 if keys is None else len(keys.columns)
+    head = (["data row"] + ([] if keys is None else [c.name for c in keys.columns])
+            + [f"{y.name} (observed)"] + terms[int(intercept):] + [f"fitted {y.name}"])
     for c, h in enumerate(head):
         fs.put(3, c, h, style="head")
-    fit_col = 2 + len(specs)
+    obs_col = 1 + nk
+    first_term = obs_col + 1
+    fit_col = first_term + len(specs)
     fitted = np.empty(n)
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
         fs.put(r, 0, int(y.row_of(int(idx))), style="int")
-        fs.put(r, 1, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
+        if keys is not None:
+            put_keys(fs, r, 1, keys, int(idx))
+        fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
         formula, value, terms_row = _prediction(
             coef, coef_ref, intercept, specs, [c.cell(int(idx)) for c in model.xs], model.X[i])
         for k, (ref, tv) in enumerate(terms_row):
-            fs.put(r, 2 + k, tv, f"={ref}", "num")
+            fs.put(r, first_term + k, tv, f"={ref}", "num")
         fitted[i] = value
         fs.put(r, fit_col, value, formula, "num")
     fs.widths = {0: 9, fit_col: 16}
     fs.freeze = (FIRST_ROW, 1)
+    rule_fit: RuleFit | None = None
+    if model.rule is not None:
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last)
+    term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
+    y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
-    # new rows to predict, to the right
-    names: list[tuple[str, str]] = []
-    side = fit_col + 2
-    if model.new is not None:
-        side = _plan_new(fs, model, coef, coef_ref, specs, intercept, side, names)
-    plan_left_out(fs, model, side)
-
-    # --- residual sheet -------------------------------------------------------------
-    resid = model.Y - fitted  # what B − C gives on the residual sheet
+    # --- residual sheet with the row diagnostics ----------------------------------------
+    resid = model.Y - fitted  # what observed − fitted gives on the residual sheet
     rs = plan_residual_sheet(
         model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted, resid,
-        "residual = observed − fitted, each a formula.")
-    resid_rng = rs.col_range(3, FIRST_ROW, last)
-    y_rng = fs.col_range(1, FIRST_ROW, last)
+        "residual = observed − fitted, each a formula; to the right, how much each row "
+        "moves the fit.")
+    resid_rng = rs.col_range(rs.columns["resid"], FIRST_ROW, last)
+    ssr = fsum_sq(resid)
+    df = n - p
+    exact = ssr <= float(EXACT_FIT) * fsum_sq(model.Y)
+    sd = float(res.resid_sd_) if df > 0 and not exact else None
+    infl = influence(res)
+    rows = plan_influence(rs, infl, resid, cs.ref(figure_row(p, "sd used"), 1), sd,
+                          cs.ref(figure_row(p, "exact"), 1), n, p)
+
+    # new rows to predict, to the right of the fitted values
+    names: list[tuple[str, str]] = []
+    side = fit_col + (3 if rule_fit is not None else 2)
+    if model.new is not None:
+        side = _plan_new(fs, model, fitted_, coef, coef_ref, specs, intercept, side, names,
+                         level, cs, infl)
+    plan_left_out(fs, model, side)
 
     # --- coefficient sheet ----------------------------------------------------------
-    xs = ", ".join(model.attribute_names)
-    cs.put(0, 0, f"Least-squares coefficients — model {tag}: {y.name} on {xs}", style="title")
-    cs.note(1, 0, coef_note)
-    heads = ["term", "coefficient", "check: cos(residuals, term)"]
-    one_line = intercept and degree == 1 and len(model.xs) == 1
-    if one_line:
-        heads.append("check: slope = r × SD(y) / SD(x)")
-    for c, h in enumerate(heads):
-        cs.put(coef_head, c, h, style="head")
-    for k, term in enumerate(terms):
-        r = first_coef + k
-        cs.put(r, 0, term, style="label")
-        cs.put(r, 1, float(coef[k]), style="coef")
-        if intercept and k == 0:
-            value = _cosine(resid, np.ones(n), model.Y)
-            f = _check_formula(resid_rng, None, y_rng)
-        else:
-            t_rng = fs.col_range(2 + k - int(intercept), FIRST_ROW, last)
-            value = _cosine(resid, tvals[k - int(intercept)], model.Y)
-            f = _check_formula(resid_rng, t_rng, y_rng)
-        cs.put(r, 2, value, f, "check")
-    if one_line:
-        x_rng = fs.col_range(2, FIRST_ROW, last)
-        xv, yv = tvals[0], model.Y
-        rr = float(np.corrcoef(xv, yv)[0, 1])
-        slope = rr * float(np.std(yv)) / float(np.std(xv))
-        cs.put(first_coef + 1, 3, slope,
-               f"=CORREL({y_rng},{x_rng})*STDEV.P({y_rng})/STDEV.P({x_rng})", "coef")
-    row = first_coef + p + 1
-    row = _plan_summary(cs, row, n, p, resid, model.Y, intercept, resid_rng, y_rng,
-                        coef_cell, one_line, fs, last, tvals)
-    row = _plan_range(cs, row + 1, model, res, specs, fs, last)
-    cs.widths = {0: 24, 1: 22, 2: 30, 3: 30}
-
-    coef_rng = cs.col_range(1, first_coef, first_coef + p - 1)
+    range_lines = [(model.xs[j].name, float(res.x_min_[j]), float(res.x_max_[j]),
+                    term_rngs[k]) for k, (j, d) in enumerate(specs) if d == 1]
+    d_in = CoefInputs(
+        tag=tag, y_name=y.name, attr_names=model.attribute_names, res=res, level=level,
+        specs=specs, tvals=tvals, Y=model.Y, resid=resid, y_rng=y_rng, resid_rng=resid_rng,
+        term_rngs=term_rngs, press_rng=rs.col_range(rows.press_col, FIRST_ROW, last),
+        rows=rows, method_note=res.method_note_, version=version,
+        cautions=least_squares_cautions(res) + fitted_.cautions, left_out=len(model.left_out),
+        range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
+        rule=rule_fit)
+    audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level)
+    if audit is not None and audit[1]:
+        d_in.cautions.append(audit[1])
+    coef_rng = plan_coef_sheet(cs, d_in)
     names = [
-        (f"sf_{tag}_coef", coef_rng),
+        (f"sf_{tag}_coef", coef_rng if "!" in coef_rng else f"{_q(cs.title)}!{coef_rng}"),
+        (f"sf_{tag}_se", f"{_q(cs.title)}!{_col_abs(C_SE, FIRST_COEF, FIRST_COEF + p - 1)}"),
+        (f"sf_{tag}_robust", f"{_q(cs.title)}!{_col_abs(C_HC3, FIRST_COEF, FIRST_COEF + p - 1)}"),
         (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
         (f"sf_{tag}_resid", resid_rng),
+        (f"sf_{tag}_loo", cs.ref(figure_row(p, "loo"), 1)),  # read by the charts
     ] + names
-    return Planned([cs, fs, rs], names)
+    return Planned([cs, fs, rs] + ([audit[0]] if audit is not None else []), names)
 
 
-def _plan_new(fs: SheetPlan, model: ModelData, coef: np.ndarray, coef_ref: list[str],
-              specs: list[tuple[int, int]], intercept: bool, side: int,
-              names: list[tuple[str, str]]) -> int:
+def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_col: int,
+                fit_col: int, fitted: np.ndarray, cs: SheetPlan,
+                level: float) -> tuple[SheetPlan, str | None] | None:
+    """The audit sheet when a threshold is set, and its caution (or None)."""
+    setting = model.settings.values.get("threshold")
+    if setting is None:
+        return None
+    kind, value = setting
+    threshold = Threshold(float(value), kind == "sd")
+    n, p = res.n_, res.p_
+    df = res.df_resid_
+    sd = float(res.resid_sd_) if df > 0 else None
+    tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else math.nan
+    half = tq * sd * math.sqrt(1 + p / n) if sd is not None else math.nan
+    rows = range(len(model.used))
+    sheet = plan_audit(
+        model, [fs.ref(FIRST_ROW + i, obs_col, fixed=False) for i in rows],
+        [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], fitted, threshold,
+        cs.ref(figure_row(p, "sd used"), 1), sd, half, level)
+    thr = threshold.value * sd if threshold.per_sd and sd is not None else threshold.value
+    return sheet, audit_caution(thr, half, level)
+
+
+def _q(title: str) -> str:
+    return quote_sheet(title)
+
+
+def _col_abs(col: int, r1: int, r2: int) -> str:
+    return f"{absolute(r1, col)}:{absolute(r2, col)}"
+
+
+def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
+                      intercept: bool, col: int, last: int) -> RuleFit:
+    """The rule in use today, applied to every data row (its coefficients × the data)."""
+    rule = model.rule
+    if rule is None:
+        raise ValueError("_plan_rule_column needs a declared rule")
+    fs.put(3, col, "rule in use: fitted", style="head")
+    values = np.empty(len(model.used))
+    for i, idx in enumerate(model.used):
+        formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
+                                        [c.cell(int(idx)) for c in model.xs], model.X[i])
+        values[i] = value
+        fs.put(FIRST_ROW + i, col, value, formula, "num")
+    fs.widths[col] = 16
+    return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
+                   fs.col_range(col, FIRST_ROW, last), values)
+
+
+def put_keys(sheet: SheetPlan, r: int, col: int, keys: Keys, i: int) -> None:
+    """The identifier cells of model row i as formulas pointing at the user's cells."""
+    for j, c in enumerate(keys.columns):
+        v = keys.values[j][i]
+        cell = c.cell(i)
+        sheet.put(r, col + j, "" if v is None else v, f'=IF(ISBLANK({cell}),"",{cell})',
+                  "num" if isinstance(v, float) else "text")
+
+
+def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
+              coef: np.ndarray, coef_ref: list[str], specs: list[tuple[int, int]],
+              intercept: bool, side: int, names: list[tuple[str, str]], level: float,
+              cs: SheetPlan, infl: Influence) -> int:
     new = model.new
     if new is None:
         raise ValueError("_plan_new needs declared new rows")
+    res = fitted_.result
     tag = model.tag
-    fs.put(3, side, "new row", style="head")
-    for j, c in enumerate(new.columns):
-        fs.put(3, side + 1 + j, c.name if c.name else model.xs[j].name, style="head")
-    pcol = side + 1 + len(new.columns)
-    fs.put(3, pcol, f"predicted {model.y.name}", style="head")
-    fs.put(2, side, "Predictions for the rows declared as new (formulas as for fitted values).",
-           style="note")
+    iv = intervals(res, new.X, level)
+    keys = new.keys
+    nk = 0 if keys is None else len(keys.columns)
+    heads = (["new row"] + ([] if keys is None else [c.name for c in keys.columns])
+             + [c.name if c.name else model.xs[j].name for j, c in enumerate(new.columns)])
+    for c, h in enumerate(heads):
+        fs.put(3, side + c, h, style="head")
+    pcol = side + len(heads)
+    pct = f"{level:.0%}"
+    more = [f"predicted {model.y.name}", "leverage x₀ᵀ(XᵀX)⁻¹x₀",
+            f"average: low ({pct})", f"average: high ({pct})",
+            f"one new value: low ({pct})", f"one new value: high ({pct})", "flag"]
+    for k, h in enumerate(more):
+        fs.put(3, pcol + k, h, style="head")
+    fs.put(2, side, (f"Predictions for the new rows, with {pct} ranges for the average at "
+                     "these values and, wider, for one new value."), style="note")
+    p = len(coef)
+    tq_ref = cs.ref(figure_row(p, "t multiplier"), 1)
+    sd_ref = cs.ref(figure_row(p, "sd used"), 1)
+    df = res.df_resid_
+    tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
+    sd = float(res.resid_sd_) if df > 0 else None
+    max_lev = float(np.max(infl.leverage))
     for i in range(new.n):
         r = FIRST_ROW + i
+        a = r + 1
         fs.put(r, side, new.columns[0].row_of(i), style="int")
-        for j, c in enumerate(new.columns):
-            fs.put(r, side + 1 + j, float(new.X[i, j]), f"={c.cell(i)}", "num")
+        if keys is not None:
+            put_keys(fs, r, side + 1, keys, i)
+        for j, col in enumerate(new.columns):
+            fs.put(r, side + 1 + nk + j, float(new.X[i, j]), f"={col.cell(i)}", "num")
         formula, value, _ = _prediction(
-            coef, coef_ref, intercept, specs, [c.cell(i) for c in new.columns], new.X[i])
+            coef, coef_ref, intercept, specs, [col.cell(i) for col in new.columns], new.X[i])
         fs.put(r, pcol, value, formula, "num")
-    fs.widths[pcol] = 16
-    names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, FIRST_ROW + new.n - 1)))
-    return pcol + 2
+        lev = float(iv.leverage[i])
+        fs.put(r, pcol + 1, lev, style="ratio")
+        P, L = f"{col_letter(pcol + 1)}{a}", f"{col_letter(pcol + 2)}{a}"
+        for k, (inner, sign) in enumerate([(L, "-"), (L, "+"), (f"(1+{L})", "-"),
+                                           (f"(1+{L})", "+")]):
+            ok = tq is not None and sd is not None
+            lv = lev if k < 2 else 1 + lev
+            half = tq * sd * math.sqrt(lv) if ok else None  # type: ignore[operator]
+            v = ("n/a" if half is None else value - half if sign == "-" else value + half)
+            fs.put(r, pcol + 2 + k, v,
+                   f'=IF(AND(ISNUMBER({tq_ref}),ISNUMBER({sd_ref})),'
+                   f'{P}{sign}{tq_ref}*{sd_ref}*SQRT({inner}),"n/a")', "num")
+        fs.put(r, pcol + 6, _new_flag(model, res, new.X[i], lev, max_lev), style="caution")
+    fs.widths.update({pcol: 16, pcol + 1: 12, pcol + 6: 36})
+    last_new = FIRST_ROW + new.n - 1
+    names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, last_new)))
+    names.append((f"sf_{tag}_predlow", fs.col_range(pcol + 4, FIRST_ROW, last_new)))
+    names.append((f"sf_{tag}_predhigh", fs.col_range(pcol + 5, FIRST_ROW, last_new)))
+    return pcol + 8
 
 
-def _plan_summary(cs: SheetPlan, row: int, n: int, p: int, resid: np.ndarray, Y: np.ndarray,
-                  intercept: bool, resid_rng: str, y_rng: str, coef_cell: list[str],
-                  one_line: bool, fs: SheetPlan, last: int, tvals: list[np.ndarray]) -> int:
-    cs.put(row, 0, "summary (native formulas)", style="head")
-    cs.put(row, 1, "value", style="head")
-    cs.put(row, 2, "what it is", style="head")
-    ssr = fsum_sq(resid)
-    n_row, p_row = row + 1, row + 2
-    n_ref, p_ref = absolute(n_row, 1), absolute(p_row, 1)
-    coef_rng = f"{coef_cell[0]}:{coef_cell[-1]}"
-    lines: list[tuple[str, object, str, str, str]] = [
-        ("rows used (n)", n, f"=COUNT({resid_rng})", "int", "data rows in the fit"),
-        ("parameters (p)", p, f"=COUNT({coef_rng})", "int", "coefficients estimated"),
-        ("RMSE", math.sqrt(ssr / n), f"=SQRT(SUMSQ({resid_rng})/{n_ref})", "num",
-         "root mean squared residual (divides by n)"),
-        ("residual SD", math.sqrt(ssr / (n - p)) if n > p else "n/a",
-         f'=IF({n_ref}>{p_ref},SQRT(SUMSQ({resid_rng})/({n_ref}-{p_ref})),"n/a")', "num",
-         "standard error of the estimate (divides by n − p)"),
-    ]
-    if intercept:
-        mean = math.fsum(float(v) for v in Y) / len(Y)
-        dev = math.fsum((float(v) - mean) * (float(v) - mean) for v in Y)
-        r2 = "n/a" if dev == 0 else 1 - ssr / dev
-        lines.append(("R²", r2, f'=IF(DEVSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/DEVSQ({y_rng}))',
-                      "ratio", "share of the variation of y about its mean that the fit explains"))
-    else:
-        tot = fsum_sq(Y)
-        r2 = "n/a" if tot == 0 else 1 - ssr / tot
-        lines.append(("R² (uncentred)", r2,
-                      f'=IF(SUMSQ({y_rng})=0,"n/a",1-SUMSQ({resid_rng})/SUMSQ({y_rng}))', "ratio",
-                      ("no intercept, so R² is taken about zero, not about the mean of y; "
-                       "it is not comparable with an R² of a model with intercept")))
-    if one_line:
-        x_rng = fs.col_range(2, FIRST_ROW, last)
-        lines.append(("correlation r", float(np.corrcoef(tvals[0], Y)[0, 1]),
-                      f"=CORREL({y_rng},{x_rng})", "ratio", "Pearson correlation of y and x"))
-    for k, (label, value, formula, style, what) in enumerate(lines):
-        cs.put(row + 1 + k, 0, label, style="label")
-        cs.put(row + 1 + k, 1, value, formula, style)  # type: ignore[arg-type]
-        cs.put(row + 1 + k, 2, what, style="note")
-    return row + 1 + len(lines)
-
-
-def _plan_range(cs: SheetPlan, row: int, model: ModelData, res: LeastSquaresResult,
-                specs: list[tuple[int, int]], fs: SheetPlan, last: int) -> int:
-    cs.put(row, 0, "relevant range", style="head")
-    cs.put(row, 1, "smallest", style="head")
-    cs.put(row, 2, "largest", style="head")
-    cs.put(row + 1, 0, "Outside these values a prediction is an extrapolation.", style="note")
-    r = row + 2
-    for k, (j, d) in enumerate(specs):
-        if d != 1:
-            continue
-        rng = fs.col_range(2 + k, FIRST_ROW, last)
-        cs.put(r, 0, model.xs[j].name, style="label")
-        cs.put(r, 1, float(res.x_min_[j]), f"=MIN({rng})", "num")
-        cs.put(r, 2, float(res.x_max_[j]), f"=MAX({rng})", "num")
-        r += 1
-    return r
+def _new_flag(model: ModelData, res: LeastSquaresResult, x: np.ndarray, lev: float,
+              max_lev: float) -> str:
+    """Why a new row's prediction is an extrapolation, naming the attributes; else ''."""
+    outside = [model.xs[j].name for j in range(len(x))
+               if x[j] < res.x_min_[j] or x[j] > res.x_max_[j]]
+    words = []
+    if outside:
+        words.append("outside the fitted range of " + ", ".join(outside))
+    if lev > max_lev:
+        words.append("leverage above every fitted row")
+    return ("extrapolated: " + "; ".join(words)) if words else ""

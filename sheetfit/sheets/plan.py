@@ -57,6 +57,10 @@ class SheetPlan:
     widths: dict[int, float] = field(default_factory=dict)
     heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
+    #: Where named columns of a row-by-row sheet are ("resid" → 3), for planners that
+    #: add columns to a sheet another function laid out.
+    columns: dict[str, int] = field(default_factory=dict)
+    _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
@@ -66,6 +70,9 @@ class SheetPlan:
             raise ValueError(f"formula without '=': {formula}")
         if style not in STYLES:
             raise KeyError(style)
+        if (row, col) in self._taken:
+            raise ValueError(f"{self.title}: cell {cell_ref(row + 1, col + 1)} planned twice")
+        self._taken.add((row, col))
         cell = Cell(row, col, value, formula, style)
         if style == "head":  # column headers wrap onto two lines
             self.heights.setdefault(row, 30.0)

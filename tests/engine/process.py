@@ -21,6 +21,7 @@ import threading
 import time
 import uuid
 import weakref
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, Any, NoReturn, Self
@@ -107,13 +108,20 @@ class Engine:
         *,
         timeout: float = DEFAULT_TIMEOUT,
         start_timeout: float = DEFAULT_TIMEOUT,
+        profile_template: Path | None = None,
+        env: Mapping[str, str] | None = None,
     ) -> None:
+        """``profile_template``: a LibreOffice user profile (the folder passed as
+        ``-env:UserInstallation``) copied afresh for every start, e.g. one with an extension
+        installed by ``unopkg``; ``env``: variables added to soffice's environment."""
         found = info if info is not None else find_engine()
         if found is None:
             raise EngineError(f"LibreOffice Calc with python3-uno not found: {INSTALL_HINT}")
         self.info = found
         self.timeout = timeout
         self.start_timeout = start_timeout
+        self.profile_template = profile_template
+        self.env = dict(env or {})
         self._base = Path(tempfile.mkdtemp(prefix="sheetfit-engine-"))
         self._run: _Running | None = None
         self._starts = 0
@@ -153,7 +161,9 @@ class Engine:
         worker_log_path = self._base / f"worker-{self._starts}.log"
         soffice_log = open(soffice_log_path, "wb")  # noqa: SIM115 - closed in _stop
         worker_log = open(worker_log_path, "wb")  # noqa: SIM115 - closed in _stop
-        env = dict(os.environ)
+        if self.profile_template is not None:
+            shutil.copytree(self.profile_template, profile, symlinks=True)
+        env = {**os.environ, **self.env}
         env.setdefault("SAL_USE_VCLPLUGIN", "svp")  # no display needed
         soffice = subprocess.Popen(
             [
@@ -280,6 +290,47 @@ class Engine:
             sheets.append(RecalcSheet(name, cells))
         seconds = {**reply["seconds"], "total": time.monotonic() - t0}
         return RecalcBook(path=source, sheets=tuple(sheets), seconds=seconds)
+
+    def run_command(
+        self,
+        path: str | os.PathLike[str] | None,
+        url: str,
+        *,
+        active: str | None = None,
+        edits: Sequence[tuple[str, str, float]] = (),
+        read: Sequence[str] = (),
+        timeout: float | None = None,
+    ) -> dict[str, Any]:
+        """Open the book itself (the command under test writes it; None: a new, never saved
+        spreadsheet), apply ``edits`` (sheet, cell, number), make ``active`` the active
+        sheet, dispatch ``url`` in the document's window through a DispatchHelper, then read
+        the used area (from A1) of the ``read`` sheets from whatever document that window
+        shows afterwards, and close it.
+
+        Returns ``state`` and ``result`` (the DispatchResultEvent's, when the command
+        reports one), ``active`` and ``sheets`` (names) after the command, and ``values``:
+        sheet name -> rows of cell values (numbers as floats, text, '' for empty).
+        """
+        source = None if path is None else str(Path(path).resolve())
+        message = {
+            "op": "run_command",
+            "path": source,
+            "url": url,
+            "active": active,
+            "edits": [list(e) for e in edits],
+            "read": list(read),
+        }
+        return self._request(message, timeout, what=url)
+
+    def set_setting(
+        self, nodepath: str, name: str, value: str, *, timeout: float | None = None
+    ) -> None:
+        """Write one string setting in the running engine's configuration (and commit it)."""
+        self._request(
+            {"op": "set_setting", "nodepath": nodepath, "name": name, "value": value},
+            timeout,
+            what=f"{nodepath}/{name}",
+        )
 
     def _request(
         self, message: dict[str, Any], timeout: float | None, what: object = None

@@ -8,7 +8,9 @@ process's fd 1 is pointed at stderr so stray prints cannot corrupt the channel).
 Requests carry ``id`` and ``op``; replies echo ``id`` and carry ``ok`` plus either
 the result fields or ``error`` (a message with the worker's traceback).
 
-Ops: ``ping``, ``recalculate`` (``path``), ``shutdown``; ``sleep`` (``seconds``) and
+Ops: ``ping``, ``recalculate`` (``path``), ``shutdown``; ``run_command`` (open a book
+in a window, dispatch a command URL there, read sheets back) and ``set_setting`` for the
+extension's test; ``sleep`` (``seconds``) and
 ``crash`` (``code``) exist so the helper's timeout and crash paths can be tested.
 """
 
@@ -40,6 +42,15 @@ FORMULA_CONTENT = 16  # com.sun.star.sheet.CellFlags.FORMULA
 ERROR_RESULT = 4  # com.sun.star.sheet.FormulaResult.ERROR
 
 
+def _used_area(sheet: Any) -> list[list[Any]]:
+    """Cell values of a sheet from A1 to the end of its used area."""
+    cursor = sheet.createCursor()
+    cursor.gotoEndOfUsedArea(False)
+    end = cursor.getRangeAddress()
+    block = sheet.getCellRangeByPosition(0, 0, end.EndColumn, end.EndRow)
+    return [list(row) for row in block.getDataArray()]
+
+
 def prop(name: str, value: Any) -> Any:
     p = PropertyValue()
     p.Name = name
@@ -55,6 +66,7 @@ class Worker:
         self.workdir = workdir
         self.out = out
         self.desktop: Any = None
+        self.ctx: Any = None
 
     def connect(self, timeout: float) -> None:
         local = uno.getComponentContext()
@@ -74,6 +86,7 @@ class Worker:
                         f"within {timeout:.0f} s: {exc}"
                     ) from exc
                 time.sleep(0.05)
+        self.ctx = ctx
         self.desktop = ctx.ServiceManager.createInstanceWithContext(
             "com.sun.star.frame.Desktop", ctx
         )
@@ -163,6 +176,68 @@ class Worker:
                     else:
                         cells.append([address, value, None, 0, formula])
         return {"name": sheet.getName(), "cells": cells}
+
+    def op_run_command(self, req: dict[str, Any]) -> dict[str, Any]:
+        t0 = time.monotonic()
+        args = (
+            prop("Hidden", True),
+            prop("MacroExecutionMode", 0),  # NEVER_EXECUTE
+            prop("UpdateDocMode", 0),  # NO_UPDATE: never fetch external links
+        )
+        path = req.get("path")
+        url = "private:factory/scalc" if path is None else uno.systemPathToFileUrl(path)
+        doc = self.desktop.loadComponentFromURL(url, "_blank", 0, args)
+        if doc is None:
+            raise RuntimeError("soffice returned no document (load failed)")
+        frame = doc.getCurrentController().getFrame()
+        try:
+            for sheet, address, value in req.get("edits", []):
+                doc.getSheets().getByName(sheet).getCellRangeByName(address).setValue(value)
+            if req.get("active"):
+                controller = doc.getCurrentController()
+                controller.setActiveSheet(doc.getSheets().getByName(req["active"]))
+            helper = self.ctx.ServiceManager.createInstanceWithContext(
+                "com.sun.star.frame.DispatchHelper", self.ctx
+            )
+            t1 = time.monotonic()
+            event = helper.executeDispatch(frame, req["url"], "", 0, ())
+            t2 = time.monotonic()
+            # The command may have put a new document in the window (a reload).
+            controller = frame.getController()
+            doc = controller.getModel() if controller is not None else doc
+            sheets = doc.getSheets()
+            values = {}
+            for name in req.get("read", []):
+                if not sheets.hasByName(name):
+                    continue
+                values[name] = _used_area(sheets.getByName(name))
+            state = getattr(event, "State", None)
+            result = getattr(event, "Result", None)
+            return {
+                "state": state,
+                "result": result if isinstance(result, (str, int, float, bool)) else None,
+                "active": controller.getActiveSheet().getName() if controller else None,
+                "sheets": [sheets.getByIndex(i).getName() for i in range(sheets.getCount())],
+                "values": values,
+                "seconds": {"load": t1 - t0, "command": t2 - t1, "read": time.monotonic() - t2},
+            }
+        finally:
+            with contextlib.suppress(Exception):
+                frame.getController().getModel().close(True)
+            with contextlib.suppress(Exception):
+                doc.close(True)
+
+    def op_set_setting(self, req: dict[str, Any]) -> dict[str, Any]:
+        provider = self.ctx.ServiceManager.createInstanceWithContext(
+            "com.sun.star.configuration.ConfigurationProvider", self.ctx
+        )
+        access = provider.createInstanceWithArguments(
+            "com.sun.star.configuration.ConfigurationUpdateAccess",
+            (prop("nodepath", req["nodepath"]),),
+        )
+        access.setPropertyValue(req["name"], req["value"])
+        access.commitChanges()
+        return {}
 
     def op_shutdown(self, req: dict[str, Any]) -> dict[str, Any]:
         self.terminate_office()
