@@ -28,6 +28,7 @@ from .errors import (
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
+from .sheets.charts import ChartEntry, plan_chart_sheets
 from .sheets.index import finish_model_sheets, plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
@@ -96,15 +97,19 @@ def plan_book(
     sheets: list[SheetPlan] = []
     names: list[tuple[str, str]] = []
     summaries = []
+    entries = []
     for model, fitted in fits:
         method = REGISTRY[model.settings.method]
         planned = method.plan(model, fitted, __version__)
-        summary = summarise(model, method, fitted)
-        summary.sheets = [s.title for s in planned.sheets]
-        finish_model_sheets(planned.sheets, summary)
-        sheets += planned.sheets
-        names += planned.names
-        summaries.append(summary)
+        entries.append(ChartEntry(model, fitted, planned, method.charts, method.labels))
+        summaries.append(summarise(model, method, fitted))
+    charts = plan_chart_sheets(entries)  # each model's charts sheet follows its own sheets
+    for e, summary in zip(entries, summaries):
+        model_sheets = e.planned.sheets + charts.get(e.model.tag, [])
+        summary.sheets = [s.title for s in model_sheets]
+        finish_model_sheets(model_sheets, summary)
+        sheets += model_sheets
+        names += e.planned.names
     index = plan_index(summaries, refreshed, __version__)
     index.fit_columns()
     return BookPlan([index] + sheets, names), summaries

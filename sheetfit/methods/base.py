@@ -14,7 +14,7 @@ from typing import Generic
 from ..declare.model import ModelData
 from ..fit.results import Fitted, R
 from ..settings import Rule
-from ..sheets.plan import Planned
+from ..sheets.plan import Planned, SheetPlan
 
 __all__ = ["Fitted", "Method", "R"]
 
@@ -23,11 +23,12 @@ class Method(Generic[R]):
     """One method: its word and description, settings, what it reads, fits, plans and says.
 
     ``fit`` runs the numeric core on a declared model's arrays (no workbook access);
-    ``plan`` lays out the sheets from the fitted result; ``figures`` and ``cautions``
-    give the summary lines for the index sheet and the command line (``cautions``: what
-    this fit's data give cause to say); ``standing`` are the cautions of what the method
-    is, said of every model using it, on its own sheets and the index; ``check``
-    refuses declarations only this method cannot use (after the cells are read).
+    ``plan`` lays out the sheets from the fitted result; ``charts`` (optional) lays out
+    the model's charts sheet from the result and the planned output names; ``figures``
+    and ``cautions`` give the summary lines for the index sheet and the command line
+    (``cautions``: what this fit's data give cause to say); ``standing`` are the cautions
+    of what the method is, said of every model using it, on its own sheets and the index;
+    ``check`` refuses declarations only this method cannot use (after the cells are read).
     """
 
     word: str
@@ -48,3 +49,4 @@ class Method(Generic[R]):
     standing: tuple[str, ...] = ()
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False
+    charts: Callable[[ModelData, Fitted[R], Planned], list[SheetPlan]] | None = None

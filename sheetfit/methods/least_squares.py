@@ -10,6 +10,7 @@ from ..fit.checks import DEGREE_RANGE
 from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
 from ..settings import Rule, amount_or_sd, integer, levels, share, yes_no
 from ..sheets._ls_words import audit_threshold_caution, least_squares_cautions
+from ..sheets.charts_methods import least_squares_charts
 from ..sheets.leastsq import plan_least_squares
 from .base import Method
 
@@ -118,4 +119,5 @@ METHOD: Method[LeastSquaresResult] = Method(
     figures=_figures,
     cautions=_cautions,
     standing=STANDING,
+    charts=least_squares_charts,
 )

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from ..declare.model import ModelData
 from ..fit.neighbours import NeighbourMean, NeighbourMeanResult
+from ..sheets.charts_methods import neighbour_mean_charts
 from ..sheets.neighbours import plan_neighbour_mean
 from . import _neighbours
 from .base import Method
@@ -31,4 +32,5 @@ METHOD: Method[NeighbourMeanResult] = Method(
     figures=_figures,
     cautions=_neighbours.cautions,
     standing=_neighbours.MEAN_STANDING,
+    charts=neighbour_mean_charts,
 )

@@ -47,7 +47,7 @@ IDENTITY_TOL = 1e-9
 IDENTITY_CHECK = "1E-6"
 
 #: Lines of the fit figures other sheets read, by their position under the heading.
-FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7, "sd used": 8}
+FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7, "sd used": 8, "loo": 10}
 
 
 @dataclass(frozen=True)

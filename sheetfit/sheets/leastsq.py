@@ -188,6 +188,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         (f"sf_{tag}_robust", f"{_q(cs.title)}!{_col_abs(C_HC3, lay.first, lay.first + p - 1)}"),
         (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
         (f"sf_{tag}_resid", resid_rng),
+        (f"sf_{tag}_loo", cs.ref(lay.figure_row("loo"), 1)),  # read by the charts
     ] + names
     return Planned([cs, fs, rs] + ([audit[0]] if audit is not None else []), names)
 

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
+from .chartplan import ChartPlan
 
 __all__ = ["FIT_WIDTH", "PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
            "decimals_shown"]
@@ -104,7 +105,8 @@ class Cell:
 
 @dataclass
 class SheetPlan:
-    """Every cell of one owned sheet, plus column widths, frozen panes and print setup.
+    """Every cell of one owned sheet, plus column widths, frozen panes, print setup and
+    charts.
 
     Print setup: ``landscape`` None decides by width (wider than :data:`PORTRAIT_WIDTH`
     characters of columns), ``fit_width`` fits the columns to ``pages_wide`` page widths
@@ -127,6 +129,7 @@ class SheetPlan:
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
+    charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text", link: str | None = None) -> Cell:
