@@ -1,6 +1,7 @@
 """Command line: ``sheetfit refresh BOOK [--out PATH] [--force] [--backup] [--wait SECONDS]``,
 ``sheetfit watch PATH [--settle SECONDS] [--backup] [--wait SECONDS]`` (``watch.py``) and
 ``sheetfit check BOOK [--json]`` (``check.py``; exit 0 all current, 3 not, 2 refused).
+``sheetfit serve [--host H] [--port N] [--max-mb M] [--time-limit S]`` (``serve/``).
 
 ``BOOK`` may also be a folder or a pattern (``--jobs N``, ``--report PATH``): every book
 found is refreshed by a runner (``_runner``: worker processes here, or a Dask cluster with
@@ -115,6 +116,16 @@ def _parser() -> argparse.ArgumentParser:
                                      "current inputs (never writes; exit 3 when any does not)")
     c.add_argument("book", help="the .xlsx workbook")
     c.add_argument("--json", action="store_true", help="print the findings as JSON")
+    s = sub.add_parser("serve", help="serve the refresh, inspection and worksheet functions "
+                                      "over HTTP on this machine, with a page at /")
+    s.add_argument("--host", default="127.0.0.1", help="address to listen on (default "
+                   "127.0.0.1: this machine only)")
+    s.add_argument("--port", type=_port, default=8765, help="port (default 8765; 0 takes a "
+                   "free one, printed at start)")
+    s.add_argument("--max-mb", metavar="M", type=_positive, default=200,
+                   help="largest request in MB, 1 MB = 1,000,000 bytes (default 200)")
+    s.add_argument("--time-limit", metavar="S", type=_positive, default=300,
+                   help="longest a request or refresh job may work, in seconds (default 300)")
     return p
 
 
@@ -125,6 +136,26 @@ def _check(args: argparse.Namespace) -> int:
     found = check(args.book)
     print(found.as_json() if args.json else found.text())
     return found.exit_status
+
+
+def _port(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a port number: {text!r}") from None
+    if not 0 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"give a port from 0 to 65535, not {text}")
+    return value
+
+
+def _positive(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not 0 < value < float("inf"):
+        raise argparse.ArgumentTypeError(f"give a number above 0, not {text}")
+    return value
 
 
 def _refused(text: str) -> int:
@@ -196,6 +227,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         from .watch import command
 
         return command(args.path, settle=args.settle, backup=args.backup, wait=args.wait)
+    if args.command == "serve":  # until SIGINT or SIGTERM: 130 or 143
+        from .serve.command import command as serve
+
+        return serve(args.host, args.port, args.max_mb, args.time_limit)
     try:
         with stop_signals():
             if args.command == "check":
@@ -206,10 +241,12 @@ def main(argv: Sequence[str] | None = None) -> int:
                 return _refused("--report is for a folder or pattern of books; "
                                 f"{args.book} is one book")
             if args.command == "refresh":
+                from .batch.progress import phases
                 from .refresh import refresh
 
-                report = refresh(args.book, args.out, force=args.force, backup=args.backup,
-                                 wait=args.wait)
+                with phases(args.book) as on_phase:
+                    report = refresh(args.book, args.out, force=args.force, backup=args.backup,
+                                     wait=args.wait, on_phase=on_phase)
                 print(report.text())
         return EXIT_OK
     except SheetfitError as exc:

@@ -12,12 +12,14 @@ from dataclasses import dataclass
 
 __all__ = [
     "BookBusyError",
+    "BootstrapCaution",
     "CollinearError",
     "ConditioningCaution",
     "Context",
     "DataError",
     "DeclarationError",
     "ExtrapolationCaution",
+    "FewRowsLevelCaution",
     "NoModelsError",
     "OutputError",
     "PackageError",
@@ -155,3 +157,11 @@ class ExtrapolationCaution(SheetfitCaution):
 
 class ConditioningCaution(SheetfitCaution):
     """The attributes are nearly collinear; coefficients are sensitive to small data changes."""
+
+
+class BootstrapCaution(SheetfitCaution):
+    """Many bootstrap resamples could not be refitted and were skipped."""
+
+
+class FewRowsLevelCaution(SheetfitCaution):
+    """A level of a text attribute has very few rows: its indicator's coefficient is fragile."""

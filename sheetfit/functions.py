@@ -8,7 +8,8 @@ refresh uses); without one the attributes are called x1, x2, ... Rows to predict
 (``new_x``, ``centres``, ``rows``) follow the same rule on their own.
 
 A data row with a blank, text (or a boolean, or a number that is not finite) in y or in
-any x column is left out of the fit, as a refresh leaves it out; row numbers in the
+any x column is left out of the fit, as a refresh leaves it out, and so is a row that
+looks like a total of the rows above it (``fit/totals.py``); row numbers in the
 output (neighbours) count the data rows as given, header excluded, from 1. A row to
 predict with such a cell gets a blank output row, so the output stays aligned with the
 input. A neighbour vote reads y as class labels (numbers or text, blanks left out).
@@ -55,6 +56,8 @@ from .fit.leastsq import LeastSquares, LeastSquaresResult
 from .fit.neighbours import NeighbourMean, NeighbourVote, NeighbourVoteResult
 from .fit.scaling import standard_units
 from .fit.strip import StripMean
+from .fit.totals import find_totals
+from .fit.totals import reason as totals_reason
 from .words import clip
 
 __all__ = [
@@ -211,7 +214,24 @@ def _data(y: Any, x: Any, labels: bool = False) -> _Data:
         Y[:] = [v if isinstance(v, str) else float(v) for v in ys]
     else:
         Y = np.array([float(v) for v in ys], dtype=np.float64)
-    return _Data(names, X, Y, np.array(used, dtype=np.int64), n, left)
+    return _without_totals(_Data(names, X, Y, np.array(used, dtype=np.int64), n, left), labels)
+
+
+def _without_totals(d: _Data, labels: bool) -> _Data:
+    """Rows that look like totals of the rows above them left out, as a refresh does."""
+    Z = d.X if labels else np.column_stack([d.Y, d.X])
+    found = find_totals(Z) if Z.shape[1] >= 2 else []
+    if not found:
+        return d
+    what = "every attribute equals its sum" if labels else "y and every attribute equal their sums"
+    keep = np.ones(d.n, dtype=bool)
+    left = list(d.left_out)
+    for t in found:
+        keep[t.row] = False
+        row = int(d.used[t.row]) + 1
+        left.append(f"data row {row}: " + totals_reason(int(d.used[t.first]) + 1,
+                                                         int(d.used[t.last]) + 1, t, what))
+    return _Data(d.names, d.X[keep], d.Y[keep], d.used[keep], d.n_rows, left)
 
 
 def _rows(cells: Any, m: int, what: str) -> tuple[np.ndarray, np.ndarray]:

@@ -39,7 +39,11 @@ PREFIX = "sf_"
 INPUT_ROLES = ("y", "x", "new", "opts", "key", "newkey", "rule")
 
 #: Roles sheetfit writes; replaced on every refresh, never read as declarations.
-OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "se", "robust", "predlow", "predhigh")
+#: "z" … "means" locate what the charts read: standard units of the used rows (``z``),
+#: the confusion matrix counts, the leave-one-out error cell (``loo``), and the strip
+#: curve's centres and means.
+OUTPUT_ROLES = ("coef", "fitted", "resid", "pred", "se", "robust", "predlow", "predhigh",
+                "z", "confusion", "loo", "centres", "means")
 
 #: Hidden sheet-scoped defined name marking a sheet as sheetfit's own. A marker
 #: name survives a LibreOffice re-save (docs/engine-facts.md, P2).
@@ -66,6 +70,7 @@ SHEET_KINDS = {
     "strip": "strip",
     "about": "about",
     "audit": "audit",
+    "charts": "charts",
 }
 
 #: Longest model tag, so every owned sheet title stays within 31 characters.

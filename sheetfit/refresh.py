@@ -9,6 +9,7 @@ from __future__ import annotations
 import datetime as dt
 import tempfile
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -28,6 +29,7 @@ from .history import plan_history, read_history
 from .methods import REGISTRY, Fitted
 from .reader.package import Package, open_package
 from .reader.values import BookValues
+from .sheets.charts import ChartEntry, plan_chart_sheets
 from .sheets.index import finish_model_sheets, plan_index
 from .sheets.plan import BookPlan, SheetPlan
 from .summary import ModelSummary, summarise
@@ -35,7 +37,7 @@ from .writer.graft import OutputName, graft
 from .writer.render import render
 from .writer.target import DEFAULT_WAIT, backup_path, destination, exclusive
 
-__all__ = ["RefreshReport", "fit_model", "plan_book", "refresh"]
+__all__ = ["RefreshReport", "fit_model", "plan_book", "read_models", "refresh"]
 
 
 @dataclass
@@ -96,15 +98,19 @@ def plan_book(
     sheets: list[SheetPlan] = []
     names: list[tuple[str, str]] = []
     summaries = []
+    entries = []
     for model, fitted in fits:
         method = REGISTRY[model.settings.method]
         planned = method.plan(model, fitted, __version__)
-        summary = summarise(model, method, fitted)
-        summary.sheets = [s.title for s in planned.sheets]
-        finish_model_sheets(planned.sheets, summary)
-        sheets += planned.sheets
-        names += planned.names
-        summaries.append(summary)
+        entries.append(ChartEntry(model, fitted, planned, method.charts, method.labels))
+        summaries.append(summarise(model, method, fitted))
+    charts = plan_chart_sheets(entries)  # each model's charts sheet follows its own sheets
+    for e, summary in zip(entries, summaries):
+        model_sheets = e.planned.sheets + charts.get(e.model.tag, [])
+        summary.sheets = [s.title for s in model_sheets]
+        finish_model_sheets(model_sheets, summary)
+        sheets += model_sheets
+        names += e.planned.names
     index = plan_index(summaries, refreshed, __version__)
     index.fit_columns()
     return BookPlan([index] + sheets, names), summaries
@@ -116,9 +122,20 @@ def _values(pkg: Package, path: Path) -> BookValues:
     return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
 
 
+def read_models(pkg: Package, path: Path, file: str) -> list[ModelData]:
+    """Every declared model of an opened book, read as a refresh reads it (with the notes
+    people typed on its owned sheets); the service's inspection reads books through this."""
+    with _values(pkg, path) as values:
+        models = find_models(pkg, values, file, REGISTRY)
+        for m in models:  # notes people typed on owned sheets, put back after
+            m.kept = read_kept(values, m.tag)
+    return models
+
+
 def refresh(book: str | Path, out: str | Path | None = None,
             now: dt.datetime | None = None, *, force: bool = False, backup: bool = False,
-            wait: float = DEFAULT_WAIT) -> RefreshReport:
+            wait: float = DEFAULT_WAIT,
+            on_phase: Callable[[str], None] | None = None) -> RefreshReport:
     """Refresh every declared model of ``book``; write to ``out`` (default: the book itself).
 
     Before any work, the target is checked (``writer.target.destination``): a read-only
@@ -128,28 +145,35 @@ def refresh(book: str | Path, out: str | Path | None = None,
     waiting up to ``wait`` seconds for another refresh of it. With ``backup`` the file
     being replaced is kept as ``writer.target.backup_path`` of it.
 
+    ``on_phase``, if given, is called with "read", "fit", "write" (plan and render) and
+    "graft" as the refresh enters each phase; an exception it raises abandons the refresh
+    (the workbook untouched).
+
     Raises a SheetfitError (with file, name, sheet and cell) for input that cannot be
     used or a target that cannot be written; the workbook is then untouched.
     """
     source = Path(book)
     file = source.name
+    phase = on_phase or (lambda _phase: None)
     try:
         dest = destination(source, out, force=force, backup=backup)
         target = Path(out) if out is not None else source
         with exclusive(dest, wait):
             kept = backup_path(dest.path) if backup and dest.exists else None
+            phase("read")
             pkg = open_package(source)
+            models = read_models(pkg, source, file)
             with _values(pkg, source) as values:
-                models = find_models(pkg, values, file, REGISTRY)
-                for m in models:  # notes people typed on owned sheets, put back after
-                    m.kept = read_kept(values, m.tag)
                 before = read_history(pkg, values)  # the log, forecasts, notes to carry on
+            phase("fit")
             fits = [(m, fit_model(m)) for m in models]
+            phase("write")
             stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
             plan, summaries = plan_book(fits, stamp)
             plan.sheets += plan_history(fits, summaries, before, stamp, __version__)
             with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
                 rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
+                phase("graft")
                 graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], dest)
     except SheetfitError as exc:
         raise exc.with_file(file) from None

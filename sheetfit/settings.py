@@ -26,6 +26,7 @@ __all__ = [
     "integer",
     "k_value",
     "label",
+    "levels",
     "parse_settings",
     "positive",
     "share",
@@ -111,6 +112,16 @@ def label(raw: Any) -> str | float:
     if not text.strip():
         raise ValueError
     return text
+
+
+def levels(raw: Any) -> tuple[str, ...]:
+    """One level name, or several separated by ";" (spaces around each are dropped)."""
+    from .labels import label_text
+
+    parts = tuple(p.strip() for p in label_text(raw).split(";"))
+    if not any(parts):
+        raise ValueError
+    return parts
 
 
 @dataclass(frozen=True)

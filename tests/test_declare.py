@@ -250,7 +250,7 @@ def test_output_name_left_at_ref_error_is_replaced(tmp_path: Path) -> None:
                    "sf_a_coef": "#REF!"})
     refresh(p)
     names = {d.name: d.text for d in open_package(p).defined_names}
-    assert names["sf_a_coef"] == "'sf a coef'!$B$5:$B$6"
+    assert names["sf_a_coef"] == "'sf a coef'!$B$10:$B$11"
 
 
 def test_identifier_columns_follow_the_rows_they_name(tmp_path: Path) -> None:

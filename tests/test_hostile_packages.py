@@ -450,8 +450,8 @@ def test_odd_books_refresh_and_recalculate(engine, tmp_path: Path, build: _Build
     pkg = open_package(out)
     mine = [s.name for s in open_package(book).sheets]
     assert [s.name for s in pkg.sheets][: len(mine)] == mine
-    # index, coef, fitted, resid, about; inputs and log (the book's history)
-    assert len(pkg.owned_sheets()) == 7
+    # index, coef, fitted, resid, charts; about, inputs and log (the book's history)
+    assert len(pkg.owned_sheets()) == 8
     # 1e-9 relative, 1e-12 absolute near 0: different summation orders in two engines
     assert_cached_values_hold(out, engine, rel=1e-9, abs_=1e-12)
     # A second refresh of the refreshed book puts the owned sheets back where they were.

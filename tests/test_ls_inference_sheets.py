@@ -45,17 +45,26 @@ def _rows(path: Path, title: str) -> list[list[object]]:
         skip_empty_area=False)
 
 
+def _head_row(rows, head: str) -> int:
+    """0-based row of the header ``head`` (row 4 on row-by-row sheets; lower on the
+    coefficient sheet, under the answer block)."""
+    return next(i for i, r in enumerate(rows) if head in r)
+
+
 def _column(rows, cells, head: str, first: int, count: int) -> np.ndarray:
-    """Recalculated values of a formula column under header ``head`` on row 4."""
-    c = rows[3].index(head)
-    out = [cells[f"{col_letter(c + 1)}{first + k}"].value for k in range(count)]
+    """Recalculated values of a formula column under header ``head``, from the ``first``-th
+    row below it (1 = the first row under the header)."""
+    h = _head_row(rows, head)
+    c = rows[h].index(head)
+    out = [cells[f"{col_letter(c + 1)}{h + 1 + first + k}"].value for k in range(count)]
     return np.array(out, dtype=float)
 
 
 def _values(rows, head: str, first: int, count: int) -> np.ndarray:
-    """Written values (not formulas) under header ``head`` on row 4."""
-    c = rows[3].index(head)
-    return np.array([rows[first - 1 + k][c] for k in range(count)], dtype=float)
+    """Written values (not formulas) under header ``head``, from its ``first``-th row."""
+    h = _head_row(rows, head)
+    c = rows[h].index(head)
+    return np.array([rows[h + first + k][c] for k in range(count)], dtype=float)
 
 
 def _close(got, want, rel=1e-9, abs_=1e-12) -> None:
@@ -84,16 +93,17 @@ def test_coefficient_table_matches_statsmodels(book) -> None:
     path, fresh, ols, exog, _ = book
     title = sheet_title("m", "coef")
     rows, cells = _rows(path, title), fresh.sheet(title).cells
-    _close(_column(rows, cells, "standard error", 5, 4), ols.bse)
-    _close(_values(rows, "HC3 standard error (robust)", 5, 4), ols.HC3_se)
-    _close(_column(rows, cells, "t = coefficient / SE", 5, 4), ols.tvalues)
-    _close(_column(rows, cells, "p-value (two-sided)", 5, 4), ols.pvalues, abs_=1e-7)
+    _close(_column(rows, cells, "standard error", 1, 4), ols.bse)
+    _close(_values(rows, "HC3 standard error (robust)", 1, 4), ols.HC3_se)
+    _close(_column(rows, cells, "t = coefficient / SE", 1, 4), ols.tvalues)
+    _close(_column(rows, cells, "p-value (two-sided)", 1, 4), ols.pvalues, abs_=1e-7)
     ci = ols.conf_int(alpha=1 - LEVEL)
-    _close(_column(rows, cells, "low end (90%)", 5, 4), ci[:, 0])
-    _close(_column(rows, cells, "high end (90%)", 5, 4), ci[:, 1])
+    _close(_column(rows, cells, "low end (90%)", 1, 4), ci[:, 0])
+    _close(_column(rows, cells, "high end (90%)", 1, 4), ci[:, 1])
     vif = [variance_inflation_factor(exog, j) for j in range(1, 4)]
-    _close(_column(rows, cells, "variance inflation", 6, 3), vif)
-    fig = {r[0]: i + 1 for i, r in enumerate(rows) if r and isinstance(r[0], str)}
+    _close(_column(rows, cells, "variance inflation", 2, 3), vif)
+    fig = {r[0]: i + 1 for i, r in enumerate(rows) if r and isinstance(r[0], str)
+           and i > _head_row(rows, "standard error")}
     at = lambda label: cells[f"B{fig[label]}"].value
     _close(at("adjusted R²"), ols.rsquared_adj)
     _close(at("F statistic"), ols.fvalue)
@@ -109,10 +119,10 @@ def test_row_diagnostics_match_statsmodels(book) -> None:
     rows, cells = _rows(path, title), fresh.sheet(title).cells
     infl = ols.get_influence()
     h = infl.hat_matrix_diag
-    _close(_values(rows, "leverage h", 5, N), h)
-    _close(_column(rows, cells, "studentized residual", 5, N), infl.resid_studentized_internal)
-    _close(_column(rows, cells, "Cook's distance", 5, N), infl.cooks_distance[0])
-    _close(_column(rows, cells, "leave-one-out residual e/(1−h)", 5, N),
+    _close(_values(rows, "leverage h", 1, N), h)
+    _close(_column(rows, cells, "studentized residual", 1, N), infl.resid_studentized_internal)
+    _close(_column(rows, cells, "Cook's distance", 1, N), infl.cooks_distance[0])
+    _close(_column(rows, cells, "leave-one-out residual e/(1−h)", 1, N),
            ols.resid / (1 - h), abs_=1e-9)
     flags = [rows[4 + i][rows[3].index("flags")] for i in range(N)]
     assert "outlier" in flags[7]  # the row pushed 150 off the plane
@@ -126,11 +136,11 @@ def test_new_row_intervals_match_statsmodels(book) -> None:
     rows, cells = _rows(path, title), fresh.sheet(title).cells
     frame = ols.get_prediction(sm.add_constant(new, has_constant="add")).summary_frame(
         alpha=1 - LEVEL)
-    _close(_column(rows, cells, "predicted cost", 5, 3), frame["mean"])
-    _close(_column(rows, cells, "average: low (90%)", 5, 3), frame["mean_ci_lower"])
-    _close(_column(rows, cells, "average: high (90%)", 5, 3), frame["mean_ci_upper"])
-    _close(_column(rows, cells, "one new value: low (90%)", 5, 3), frame["obs_ci_lower"])
-    _close(_column(rows, cells, "one new value: high (90%)", 5, 3), frame["obs_ci_upper"])
+    _close(_column(rows, cells, "predicted cost", 1, 3), frame["mean"])
+    _close(_column(rows, cells, "average: low (90%)", 1, 3), frame["mean_ci_lower"])
+    _close(_column(rows, cells, "average: high (90%)", 1, 3), frame["mean_ci_upper"])
+    _close(_column(rows, cells, "one new value: low (90%)", 1, 3), frame["obs_ci_lower"])
+    _close(_column(rows, cells, "one new value: high (90%)", 1, 3), frame["obs_ci_upper"])
     flags = [rows[4 + i][rows[3].index("flag")] for i in range(3)]
     assert flags[0] == "" and "miles" in flags[1] and "extrapolated" in flags[1]
 
@@ -171,7 +181,8 @@ def test_anscombe_rows_that_drive_the_line_are_flagged(which: str, tmp_path: Pat
                      {"sf_a_y": "Data!$A$1:$A$12", "sf_a_x": "Data!$B$1:$B$12"})
     refresh(path)
     coef = _rows(path, sheet_title("a", "coef"))
-    assert round(float(coef[4][1]), 2) == 3.00 and round(float(coef[5][1]), 3) == 0.500
+    h = _head_row(coef, "standard error")
+    assert round(float(coef[h + 1][1]), 2) == 3.00 and round(float(coef[h + 2][1]), 3) == 0.500
     rs = _rows(path, sheet_title("a", "resid"))
     head = rs[3]
     flags = [str(rs[4 + i][head.index("flags")]) for i in range(11)]
@@ -187,7 +198,7 @@ def test_anscombe_rows_that_drive_the_line_are_flagged(which: str, tmp_path: Pat
         lone = x.index(19.0)
         assert lev[lone] == pytest.approx(1.0, abs=1e-12)
         assert "high leverage" in flags[lone] and cook[lone] == ""
-        fig = {r[0]: r[1] for r in coef if r and isinstance(r[0], str)}
+        fig = {r[0]: r[1] for r in coef[h:] if r and isinstance(r[0], str)}
         assert fig["leave-one-out RMSE"] == "n/a"
 
 
@@ -209,7 +220,8 @@ def test_rule_in_use_is_compared_fairly(tmp_path: Path, engine) -> None:
     title = sheet_title("r", "coef")
     rows_c = _rows(path, title)
     cells = engine.recalculate(path).sheet(title).cells
-    at = {r[0]: i + 1 for i, r in enumerate(rows_c) if r and isinstance(r[0], str)}
+    h = _head_row(rows_c, "standard error")
+    at = {r[0]: i + 1 for i, r in enumerate(rows_c) if r and isinstance(r[0], str) and i > h}
     rule_rmse = float(np.sqrt(np.mean((cost - (5000 + 0.45 * km)) ** 2)))
     got = cells[f"B{at['RMSE of the rule on these rows']}"].value
     assert got == pytest.approx(rule_rmse, rel=1e-12)

@@ -403,6 +403,13 @@ def test_refresh_end_to_end_keeps_user_parts_and_repeats_exactly(user: Path, tmp
         if name not in {*SHARED, STYLES, APP}:
             assert res[name] == data, f"{name} changed"
     _check_invariants(out)
+    # the user's chart keeps its bytes and its name; ours are numbered above it and are
+    # reached only through the owned charts sheet's drawing
+    assert src["xl/charts/chart1.xml"] == res["xl/charts/chart1.xml"]
+    ours = sorted(set(res) - set(src))
+    assert [n for n in ours if n.startswith("xl/charts/")] == ["xl/charts/chart2.xml",
+                                                               "xl/charts/chart3.xml"]
+    assert [n for n in ours if n.startswith("xl/drawings/drawing")] == ["xl/drawings/drawing2.xml"]
     refresh(out, again, now=when)
     # A refresh appends to the log (one row per model), the documentation sheet quotes
     # that row, and the log's percent format joins the styles; all else repeats exactly.
@@ -427,8 +434,12 @@ def test_refresh_after_libreoffice_resave_replaces_its_sheets(books: dict[str, P
     pkg = open_package(second)
     titles = [s.name for s in pkg.sheets]
     assert titles == ["Data", "More", "sf index", "sf demo coef", "sf demo fitted",
-                      "sf demo resid", "sf demo about", "sf inputs", "sf log"]
+                      "sf demo resid", "sf demo charts", "sf demo about", "sf inputs", "sf log"]
     outputs = sorted(d.name for d in pkg.defined_names if d.name.startswith("sf_demo_"))
-    assert outputs == ["sf_demo_coef", "sf_demo_fitted", "sf_demo_resid", "sf_demo_robust",
-                       "sf_demo_se", "sf_demo_x", "sf_demo_y"]
-    assert len(pkg.owned_sheets()) == 7
+    assert outputs == ["sf_demo_coef", "sf_demo_fitted", "sf_demo_loo", "sf_demo_resid",
+                       "sf_demo_robust", "sf_demo_se", "sf_demo_x", "sf_demo_y"]
+    assert len(pkg.owned_sheets()) == 8
+    # one set of charts: the user's chart and the two on sf demo charts, nothing left over
+    charts = [n for n in entries(second) if re.fullmatch(r"xl/charts/chart\d+\.xml", n)]
+    assert len(charts) == 1 + 2, charts
+    _check_invariants(second)

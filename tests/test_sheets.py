@@ -40,14 +40,15 @@ def test_fitted_formula_points_at_coefficients_and_data(tmp_path: Path) -> None:
     fitted = _sheet(plan, "sf a fitted")
     cells = {c.address: c for c in fitted.cells}
     first = cells["D5"]
-    # the title, a note, a blank row and the header put the coefficients in B5:B6
-    assert first.formula == "='sf a coef'!$B$5+'sf a coef'!$B$6*Data!B2"
+    # title, status, the answer block (key figures), a column-note row and the header put
+    # the coefficients in B10:B11
+    assert first.formula == "='sf a coef'!$B$10+'sf a coef'!$B$11*Data!B2"
     assert first.value == pytest.approx(res.coef_[0] + res.coef_[1] * 1.0, rel=1e-15)
     assert cells["B5"].formula == "=Data!A2"
     resid = {c.address: c for c in _sheet(plan, "sf a resid").cells}
     assert resid["D8"].formula == "=IF(C8=\"\",\"\",B8-C8)"
     names = dict(plan.names)
-    assert names["sf_a_coef"] == "'sf a coef'!$B$5:$B$6"
+    assert names["sf_a_coef"] == "'sf a coef'!$B$10:$B$11"
     assert names["sf_a_fitted"] == "'sf a fitted'!$D$5:$D$8"
     assert names["sf_a_resid"] == "'sf a resid'!$D$5:$D$8"
 
@@ -73,7 +74,7 @@ def test_renderer_stores_numbers_with_every_digit(tmp_path: Path) -> None:
         names = z.namelist()
         coef_part = next(n for n in names if n.startswith("xl/worksheets/sheet2"))
         xml = z.read(coef_part).decode()
-    stored = [float(v) for v in re.findall(r'<c r="B[56]"[^>]*><v>([^<]+)</v>', xml)]
+    stored = [float(v) for v in re.findall(r'<c r="B1[01]"[^>]*><v>([^<]+)</v>', xml)]
     assert stored == [float(c) for c in res.coef_]  # exact: bit-for-bit round trip
     assert stored[1] == 1 / 6 and float(f"{1 / 6:.16G}") != 1 / 6
 

@@ -360,10 +360,10 @@ def _hostile_book(tmp_path: Path, method: str) -> Path:
 
 
 @pytest.mark.parametrize("method, kinds", [
-    ("least_squares", {"coef", "fitted", "resid"}),
-    ("neighbour_mean", {"summary", "std", "nbrs", "fitted", "resid"}),
-    ("neighbour_vote", {"summary", "std", "nbrs", "fitted"}),
-    ("strip_mean", {"strip", "fitted", "resid"}),
+    ("least_squares", {"coef", "fitted", "resid", "charts"}),
+    ("neighbour_mean", {"summary", "std", "nbrs", "fitted", "resid", "charts"}),
+    ("neighbour_vote", {"summary", "std", "nbrs", "fitted", "charts"}),
+    ("strip_mean", {"strip", "fitted", "resid", "charts"}),
 ])
 def test_user_text_that_reads_like_a_formula_is_written_as_text(method, kinds, tmp_path: Path) \
         -> None:

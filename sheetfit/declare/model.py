@@ -12,13 +12,16 @@ and placed on the cells by the refresh.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Protocol
 
 import numpy as np
 
 from ..a1 import cell_ref, col_letter, quote_sheet
 from ..errors import Context, DataError, DeclarationError, NoModelsError
+from ..fit.totals import find_totals
+from ..fit.totals import reason as totals_reason
+from ..labels import label_text
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
 from ..reader.package import DefinedName, Package
 from ..reader.values import (
@@ -34,6 +37,7 @@ from ..reader.values import (
 from ..settings import MethodSettings, Settings, parse_settings
 from ..words import clip, plural
 from .fingerprint import InputRecord, record_inputs, settings_text
+from .levels import Coding, code_levels, indicators, is_level, text_columns
 from .refs import Area, RefError, parse_areas
 
 __all__ = [
@@ -58,6 +62,20 @@ class Column:
     sheet: str
     col: int
     first_row: int
+    #: For an indicator of a text attribute (``declare/levels.py``): the level it marks;
+    #: the cells are the text attribute's own, and the value is 1 where the cell is that level.
+    level: str | None = None
+
+    def value_ref(self, i: int) -> str:
+        """Formula expression of this column's value in the model's i-th row.
+
+        The cell reference itself, or for an indicator ``IF(EXACT(cell,"level"),1,0)``
+        (quotes in the level doubled, as a formula's text constant needs).
+        """
+        if self.level is None:
+            return self.cell(i)
+        text = self.level.replace('"', '""')
+        return f'IF(EXACT({self.cell(i)},"{text}"),1,0)'
 
     def row_of(self, i: int) -> int:
         """Sheet row of the model's i-th row (0-based)."""
@@ -144,6 +162,11 @@ class ModelData:
     #: What people typed on this model's owned sheets at the last refresh, to be written
     #: back (by sheet kind, then row identity): filled by the refresh, not a declaration.
     kept: dict[str, dict[str, list[str | float]]] = field(default_factory=dict)
+    #: Text attribute (its header name) → its baseline level, for methods that code
+    #: text attributes as indicators (``Method.text_attributes``); empty otherwise.
+    baselines: dict[str, str] = field(default_factory=dict)
+    #: Text attribute → level → rows used with that level (baseline included).
+    level_counts: dict[str, dict[str, int]] = field(default_factory=dict)
     #: What each declared range held when read (``declare/fingerprint.py``).
     record: InputRecord | None = None
 
@@ -228,6 +251,9 @@ class MethodReading(MethodSettings, Protocol):
 
     @property
     def max_attributes(self) -> int | None: ...
+
+    @property
+    def text_attributes(self) -> bool: ...
 
     @property
     def check(self) -> Callable[[ModelData], None] | None: ...
@@ -372,7 +398,15 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
     ycol = _make_column(ya, ya.col1, header, values, offset)
     xcols = [_make_column(a, c, header, values, offset) for a, c in x_cols]
     _check_headers(xcols, dx, file)
-    used, left, Y, X = _read_rows(ycol, xcols, n_rows, values, method.labels)
+    cat = (text_columns([[values.sheet(c.sheet).get(c.row_of(i), c.col) for i in range(n_rows)]
+                         for c in xcols])
+           if method.text_attributes else [False] * len(xcols))
+    used, left, Y, X, texts = _read_rows(ycol, xcols, n_rows, values, method.labels, cat)
+    num = [j for j, t in enumerate(cat) if not t]
+    keep, left = _leave_out_totals(ycol, used, left, Y, X[:, num], method.labels,
+                                   len(num) < len(cat))
+    used, Y, X = used[keep], Y[keep], X[keep]
+    texts = {j: [t for t, k in zip(col, keep) if k] for j, col in texts.items()}
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
     most = method.max_attributes
     if most is not None and len(xcols) > most:
@@ -386,13 +420,24 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             "the declared ranges hold no data rows yet", ctx,
             hint="type or paste your rows under the headers",
         )
-    _check_numeric_columns(xcols, n_rows, values, dx, file)
+    _check_numeric_columns([c for c, t in zip(xcols, cat) if not t], n_rows, values, dx, file)
     if len(used) == 0:
         raise DataError(
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
             hint="fill in the data or point the names at it",
         )
-    new = _read_new(decl, pkg, values, file, xcols, ranges) if "new" in decl.names else None
+    codings: dict[int, Coding] = {}
+    source = xcols
+    if any(cat):
+        where = Context(file, decl.names["opts"].name if "opts" in decl.names else dx.name)
+        coded = code_levels([xcols[j].name for j in texts], list(texts.values()),
+                            settings.values.get("baseline"), where)
+        codings = dict(zip(texts, coded, strict=True))
+        xcols, X = _expand(xcols, X, texts, codings)
+    elif settings.values.get("baseline") is not None:
+        code_levels([], [], settings.values.get("baseline"), Context(file, dx.name))
+    new = (_read_new(decl, pkg, values, file, source, ranges, codings) if "new" in decl.names
+           else None)
     if "newkey" in decl.names and new is None:
         raise DeclarationError(
             f"model '{tag}' names identifiers of new rows but declares no new rows",
@@ -409,7 +454,8 @@ def _read_model(decl: _Decl, pkg: Package, values: BookValues, file: str,
             Context(file, rule.name), hint="declare the rule on a least-squares model")
     names = {role: d.name for role, d in decl.names.items()}
     model = ModelData(tag, file, settings, ycol, xcols, n_rows, used, left, Y, X, new, names,
-                      keys, rule)
+                      keys, rule, baselines={c.name: c.baseline for c in codings.values()},
+                      level_counts={c.name: dict(c.counts) for c in codings.values()})
     if method.check is not None:
         method.check(model)
     used_settings = settings_text(settings.values, ["method"] + [r.name for r in method.rules])
@@ -456,13 +502,20 @@ def _check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
 
 
 def _read_rows(
-    ycol: Column, xcols: list[Column], n: int, values: BookValues, labels: bool = False
-) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray]:
-    """Used row indices, left-out rows, y (floats, or labels when ``labels``) and X."""
+    ycol: Column, xcols: list[Column], n: int, values: BookValues, labels: bool = False,
+    text: list[bool] | None = None,
+) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray, dict[int, list[str]]]:
+    """Used row indices, left-out rows, y (floats, or labels when ``labels``), X, levels.
+
+    Attribute j with ``text[j]`` is a text attribute: its X column is nan and the levels
+    of the used rows are returned under key j (``declare/levels.py``).
+    """
     cols = [ycol] + xcols
+    text = text or [False] * len(xcols)
     sheets: list[SheetValues] = [values.sheet(c.sheet) for c in cols]
     data = np.empty((n, len(cols)))
     ylab: list[object] = [None] * n
+    levels: list[list[str]] = [[""] * n for _ in xcols]
     ok = np.ones(n, dtype=bool)
     left: list[LeftOut] = []
     for i in range(n):
@@ -473,6 +526,17 @@ def _read_rows(
                 ylab[i] = v.number if v.kind == NUMBER else v.text
                 data[i, 0] = 0.0
                 continue
+            if j > 0 and text[j - 1]:
+                if is_level(v):
+                    levels[j - 1][i] = v.text
+                    data[i, j] = np.nan
+                    continue
+                ok[i] = False
+                what = (f"the number {clip(label_text(v.number), 20)}" if v.kind == NUMBER
+                        else describe_value(v))
+                left.append(LeftOut(i, ycol.row_of(i),
+                                    f"{what} in text attribute '{clip(c.name)}' ({c.cell(i)})"))
+                break
             if v.kind != NUMBER:
                 ok[i] = False
                 role = "y" if j == 0 else f"'{clip(c.name)}'"
@@ -486,13 +550,62 @@ def _read_rows(
         Y[:] = [ylab[i] for i in used]
     else:
         Y = data[used, 0].copy()
-    return used, left, Y, data[used, 1:].copy()
+    texts = {j: [levels[j][i] for i in used] for j, t in enumerate(text) if t}
+    return used, left, Y, data[used, 1:].copy(), texts
+
+
+def _expand(xcols: list[Column], X: np.ndarray, texts: dict[int, list[str]],
+            codings: dict[int, Coding]) -> tuple[list[Column], np.ndarray]:
+    """Each text attribute replaced, in place, by its indicator columns."""
+    cols: list[Column] = []
+    blocks: list[np.ndarray] = []
+    for j, c in enumerate(xcols):
+        if j in codings:
+            cols += [replace(c, name=f"{c.name} = {lv}", level=lv) for lv in codings[j].levels]
+            blocks.append(indicators(texts[j], codings[j]))
+        else:
+            cols.append(c)
+            blocks.append(X[:, j:j + 1])
+    return cols, np.hstack(blocks)
+
+
+def _leave_out_totals(
+    ycol: Column, used: np.ndarray, left: list[LeftOut], Y: np.ndarray, X: np.ndarray,
+    labels: bool, some_text: bool = False,
+) -> tuple[np.ndarray, list[LeftOut]]:
+    """Which used rows to keep, leaving out rows that look like totals of the rows above.
+
+    Compared: y and every numeric attribute (only the attributes when y holds class
+    labels; text attributes never). With a single column to compare, chance equalities
+    are too common to call a row a total, so nothing is left out (``sheetfit.fit.totals``
+    has the rule). Returns the mask over ``used`` and the left-out list with the totals.
+    """
+    keep = np.ones(len(used), dtype=bool)
+    Z = X if labels else np.column_stack([Y, X])
+    if Z.shape[1] < 2 or len(used) == 0:
+        return keep, left
+    totals = find_totals(Z)
+    if not totals:
+        return keep, left
+    attrs = "every numeric attribute" if some_text else "every attribute"
+    what = f"{attrs} equals its sum" if labels else f"y and {attrs} equal their sums"
+    left = list(left)
+    for t in totals:
+        keep[t.row] = False
+        r1, r2 = ycol.row_of(int(used[t.first])), ycol.row_of(int(used[t.last]))
+        i = int(used[t.row])
+        left.append(LeftOut(i, ycol.row_of(i), totals_reason(r1, r2, t, what)))
+    left.sort(key=lambda lo: lo.index)
+    return keep, left
 
 
 def _read_new(
     decl: _Decl, pkg: Package, values: BookValues, file: str, xcols: list[Column],
     ranges: _Ranges,
+    codings: dict[int, Coding] | None = None,
 ) -> NewRows:
+    """The new rows, their text attributes coded as in the data (``codings`` by x column)."""
+    codings = codings or {}
     d = decl.names["new"]
     areas = _areas(d, pkg, file)
     areas = _trim(areas, _last_row(areas, values))
@@ -522,9 +635,14 @@ def _read_new(
                 )
     n = rows.pop() - offset
     X = np.empty((n, len(cols)))
+    texts: dict[int, list[str]] = {j: [] for j in codings}
     for i in range(n):
         for j, c in enumerate(cols):
             v = values.sheet(c.sheet).get(c.row_of(i), c.col)
+            if j in codings:
+                texts[j].append(_new_level(v, codings[j], c, i, d, file))
+                X[i, j] = np.nan
+                continue
             if v.kind != NUMBER:
                 raise DataError(
                     f"a new row holds {describe_value(v)} where a number is needed",
@@ -536,7 +654,29 @@ def _read_new(
         raise DataError("the new rows range holds no rows", Context(file, d.name))
     keys = (_read_keys(decl.names["newkey"], pkg, values, file, areas[0], header, ranges,
                        "newkey") if "newkey" in decl.names else None)
+    if codings:
+        named = [replace(c, name=xc.name) for c, xc in zip(cols, xcols)]
+        cols, X = _expand(named, X, texts, codings)
     return NewRows(cols, X, keys)
+
+
+def _new_level(v: Value, coding: Coding, c: Column, i: int, d: DefinedName, file: str) -> str:
+    """The level a new row's text-attribute cell names; a level the data lack is refused."""
+    where = Context(file, d.name, c.sheet, cell_ref(c.row_of(i), c.col))
+    known = ", ".join(f"'{clip(t)}'" for t in coding.known())
+    if not is_level(v):
+        raise DataError(
+            f"a new row holds {describe_value(v)} where a level of text attribute "
+            f"'{clip(coding.name)}' is needed (known levels: {known})", where,
+            hint="type one of the known levels")
+    level = coding.match(v.text)
+    if level is None:
+        raise DataError(
+            f"new row level '{clip(v.text)}' of '{clip(coding.name)}' does not occur in the "
+            f"rows fitted (known levels: {known}), so the model has no coefficient for it",
+            where, hint="levels match exactly, capitals and spaces included; use a known "
+            "level or add rows with this level to the data")
+    return level
 
 
 def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like: Area,

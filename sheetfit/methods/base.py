@@ -16,7 +16,7 @@ import numpy as np
 from ..declare.model import ModelData
 from ..fit.results import Fitted, R
 from ..settings import Rule
-from ..sheets.plan import Planned
+from ..sheets.plan import Planned, SheetPlan
 
 __all__ = ["Fitted", "Forecasts", "Method", "R"]
 
@@ -30,11 +30,12 @@ class Method(Generic[R]):
     """One method: its word and description, settings, what it reads, fits, plans and says.
 
     ``fit`` runs the numeric core on a declared model's arrays (no workbook access);
-    ``plan`` lays out the sheets from the fitted result; ``figures`` and ``cautions``
-    give the summary lines for the index sheet and the command line (``cautions``: what
-    this fit's data give cause to say); ``standing`` are the cautions of what the method
-    is, said of every model using it, on its own sheets and the index; ``check``
-    refuses declarations only this method cannot use (after the cells are read).
+    ``plan`` lays out the sheets from the fitted result; ``charts`` (optional) lays out
+    the model's charts sheet from the result and the planned output names; ``figures``
+    and ``cautions`` give the summary lines for the index sheet and the command line
+    (``cautions``: what this fit's data give cause to say); ``standing`` are the cautions
+    of what the method is, said of every model using it, on its own sheets and the index;
+    ``check`` refuses declarations only this method cannot use (after the cells are read).
     """
 
     word: str
@@ -48,6 +49,9 @@ class Method(Generic[R]):
     required: tuple[str, ...] = ()
     labels: bool = False
     max_attributes: int | None = None
+    #: Whether text attributes are read as 0/1 indicator columns (``declare/levels.py``);
+    #: without it a text cell in x leaves its row out.
+    text_attributes: bool = False
     check: Callable[[ModelData], None] | None = None
     #: The figures the refresh log follows from one refresh to the next, as
     #: (name, number) pairs; None when the method has none.
@@ -58,3 +62,4 @@ class Method(Generic[R]):
     standing: tuple[str, ...] = ()
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False
+    charts: Callable[[ModelData, Fitted[R], Planned], list[SheetPlan]] | None = None

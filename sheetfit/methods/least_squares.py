@@ -2,31 +2,57 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
 from ..declare.model import ModelData
-from ..errors import Context, DataError
+from ..errors import Context, DataError, FewRowsLevelCaution
 from ..fit.checks import DEGREE_RANGE
 from ..fit.inference import intervals
 from ..fit.leastsq import LeastSquares, LeastSquaresResult, _term_names
-from ..settings import Rule, amount_or_sd, integer, share, yes_no
-from ..sheets._ls_words import least_squares_cautions
+from ..settings import Rule, amount_or_sd, integer, levels, share, yes_no
+from ..sheets._ls_words import audit_threshold_caution, least_squares_cautions
+from ..sheets.charts_methods import least_squares_charts
 from ..sheets.leastsq import plan_least_squares
 from .base import Forecasts, Method
 
 __all__ = ["METHOD"]
 
 _LO, _HI = DEGREE_RANGE
+#: Levels of a text attribute with fewer rows than this get a caution. Common practice
+#: (a rule of thumb, not a law): an indicator estimated from a handful of rows rests on
+#: those rows alone, and one unusual row moves it a lot.
+FEW_LEVEL_ROWS = 5
+
+
+def _warn_few_rows(model: ModelData) -> None:
+    for name, counts in model.level_counts.items():
+        for level, count in counts.items():
+            if count < FEW_LEVEL_ROWS:
+                warnings.warn(FewRowsLevelCaution(
+                    f"text attribute '{name}': level '{level}' has only {count} "
+                    f"row{'' if count == 1 else 's'} (fewer than {FEW_LEVEL_ROWS}, a common "
+                    "rule of thumb); what the model says about it rests on those rows alone"),
+                    stacklevel=2)
 
 
 def _fit(model: ModelData) -> LeastSquaresResult:
+    _warn_few_rows(model)
     st = model.settings
     est = LeastSquares(intercept=bool(st["intercept"]), degree=int(st["degree"]))
     return est.fit(model.X, model.Y, names=model.attribute_names)
 
 
 def _check(model: ModelData) -> None:
-    """A declared rule has one coefficient per term, in the coefficient column's order."""
+    """A polynomial has a numeric attribute; a declared rule has one coefficient per term,
+    in the coefficient column's order."""
+    if model.baselines and int(model.settings["degree"]) > 1:
+        raise DataError(
+            "a polynomial (degree above 1) needs one numeric attribute; "
+            f"'{next(iter(model.baselines))}' is a text attribute",
+            Context(model.file, model.names.get("opts", model.names.get("x"))),
+            hint="fit degree 1, or use a numeric attribute")
     rule = model.rule
     if rule is None:
         return
@@ -44,11 +70,18 @@ def _check(model: ModelData) -> None:
 def _figures(model: ModelData, res: LeastSquaresResult) -> list[str]:
     r2 = "R² (uncentred)" if res.r2_uncentred_ else "R²"
     coefs = ", ".join(f"{t} {float(c):.6g}" for t, c in zip(res.terms_, res.coef_))
-    return [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
+    lines = [coefs, f"{r2} {float(res.r2_):.6f}, RMSE {float(res.rmse_):.6g}"]
+    if model.baselines:
+        lines.append("text attributes measured against baseline " + "; ".join(
+            f"{name} = {level}" for name, level in model.baselines.items()))
+    return lines
 
 
 def _cautions(model: ModelData, res: LeastSquaresResult) -> list[str]:
-    return least_squares_cautions(res)
+    out = least_squares_cautions(res)
+    audit = audit_threshold_caution(res, model.settings.values.get("threshold"),
+                                    float(model.settings.values.get("level", 0.95)))
+    return out + ([audit] if audit else [])
 
 
 def _key_figures(model: ModelData, res: LeastSquaresResult) -> list[tuple[str, float]]:
@@ -70,8 +103,12 @@ STANDING = (
     ("A fitted line describes the data between the smallest and largest attribute values "
     "seen (the relevant range); outside it a prediction is an extrapolation. The intercept "
     "is the fixed part within that range, not the cost at zero activity."),
-    "The residuals here are in-sample: they understate the error on new rows.",
-    "Outliers pull the line; look at the residual sheet and a scatter of the data.",
+    ("The residuals are in-sample and understate the error on new rows; the leave-one-out "
+     "RMSE does not, and is the figure to compare models and rules by."),
+    ("Outliers and high-leverage rows pull the line; the residual sheet flags them "
+     "(studentized residual, Cook's distance, leverage)."),
+    ("Predicting from an extreme row: the next value tends to be closer to the average "
+     "(regression toward the mean)."),
 )
 
 METHOD: Method[LeastSquaresResult] = Method(
@@ -87,7 +124,11 @@ METHOD: Method[LeastSquaresResult] = Method(
         Rule("threshold", "an amount (250) or a multiple of the residual SD (2 sd)", None,
              amount_or_sd, "audit: list the rows whose actual differs from the fitted value "
              "by more than this, on an audit sheet"),
+        Rule("baseline", "a level of each text attribute, separated by ; in the order of x",
+             None, levels, "the level of a text attribute the others are measured against "
+             "(default: its most frequent level)"),
     ),
+    text_attributes=True,
     check=_check,
     compares_rule=True,
     fit=_fit,
@@ -97,4 +138,5 @@ METHOD: Method[LeastSquaresResult] = Method(
     key_figures=_key_figures,
     forecasts=_forecasts,
     standing=STANDING,
+    charts=least_squares_charts,
 )

@@ -6,6 +6,7 @@ import numpy as np
 
 from ..declare.model import ModelData
 from ..fit.neighbours import MeanPrediction, NeighbourMean, NeighbourMeanResult
+from ..sheets.charts_methods import neighbour_mean_charts
 from ..sheets.neighbours import plan_neighbour_mean
 from . import _neighbours
 from .base import Forecasts, Method
@@ -45,4 +46,5 @@ METHOD: Method[NeighbourMeanResult] = Method(
     key_figures=_key_figures,
     forecasts=_forecasts,
     standing=_neighbours.MEAN_STANDING,
+    charts=neighbour_mean_charts,
 )

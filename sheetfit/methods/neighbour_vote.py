@@ -7,6 +7,7 @@ from ..errors import Context, SettingError
 from ..fit.neighbours import NeighbourVote, NeighbourVoteResult
 from ..labels import label_text, labels_equal
 from ..settings import Rule, label
+from ..sheets.charts_methods import neighbour_vote_charts
 from ..sheets.neighbours import plan_neighbour_vote
 from ..words import clip
 from . import _neighbours
@@ -59,4 +60,5 @@ METHOD: Method[NeighbourVoteResult] = Method(
     cautions=_neighbours.cautions,
     key_figures=_key_figures,
     standing=_neighbours.VOTE_STANDING,
+    charts=neighbour_vote_charts,
 )

@@ -7,6 +7,7 @@ import numpy as np
 from ..declare.model import ModelData
 from ..fit.strip import StripMean, StripMeanResult
 from ..settings import Rule, positive
+from ..sheets.charts_methods import strip_charts
 from ..sheets.strip import FEW_IN_STRIP, plan_strip
 from ..words import plural
 from .base import Forecasts, Method
@@ -80,4 +81,5 @@ METHOD: Method[StripMeanResult] = Method(
     key_figures=_key_figures,
     forecasts=_forecasts,
     standing=STANDING,
+    charts=strip_charts,
 )

@@ -20,14 +20,16 @@ import numpy as np
 from scipy import stats
 
 from ..a1 import absolute, col_letter
+from ..declare.model import Keys
 from ..fit.inference import breusch_pagan, coef_table
 from ..fit.leastsq import LeastSquaresResult
 from ._ls_rows import RowColumns
 from ._ls_words import BP_LEVEL, number, range_words
-from .common import fsum_sq
-from .plan import SheetPlan
+from .common import column_notes, fsum_sq, key_heads, key_styles, put_keys
+from .plan import SheetPlan, coef_style
 
-__all__ = ["CHECK_TOL", "EXACT_FIT", "CoefInputs", "figure_row", "plan_coef_sheet"]
+__all__ = ["CHECK_TOL", "EXACT_FIT", "AnswerRow", "CoefInputs", "CoefLayout", "RuleFit",
+           "plan_coef_sheet"]
 
 #: Residuals this small relative to y (|r| <= 1e-12 |y|) are rounding noise of an exact
 #: fit; their angle with a term column is arbitrary and differs between engines (one
@@ -44,19 +46,66 @@ IDENTITY_TOL = 1e-9
 #: What the sheet's identity check allows: the sum of |product − identity|.
 IDENTITY_CHECK = "1E-6"
 
-TABLE_HEAD = 3
-FIRST_COEF = 4
 #: Lines of the fit figures other sheets read, by their position under the heading.
-FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7, "sd used": 8}
+FIGURE_LINE = {"t multiplier": 4, "exact": 5, "residual SD": 7, "sd used": 8, "loo": 10}
+
+
+@dataclass(frozen=True)
+class CoefLayout:
+    """Where things are on the coefficient sheet: the answer block, then the table.
+
+    Row 0 title, row 1 the status line; from row 3 the answer (the new rows' predictions
+    with their range and flag, when there are new rows; then the key figures); the
+    coefficient table's header at ``head``, its p rows from ``first``; the fit figures
+    two rows below the table.
+    """
+
+    p: int
+    n_new: int
+
+    @property
+    def answer(self) -> int:
+        return 3
+
+    @property
+    def key_head(self) -> int:
+        return self.answer + 1 + (self.n_new + 1 if self.n_new else 0)
+
+    @property
+    def colnote(self) -> int:
+        return self.key_head + 3
+
+    @property
+    def head(self) -> int:
+        return self.colnote + 1
+
+    @property
+    def first(self) -> int:
+        return self.head + 1
+
+    def figure_row(self, what: str) -> int:
+        """Row (0-based) of a fit figure that other sheets' formulas read."""
+        return self.first + self.p + 2 + FIGURE_LINE[what]
+
+
+@dataclass(frozen=True)
+class AnswerRow:
+    """One new row in the answer block: its prediction cells on the fitted-value sheet
+    (reference, cached value), its flag, and where it is (index, sheet row)."""
+
+    index: int
+    sheet_row: int
+    pred: tuple[str, float]
+    low: tuple[str, object]
+    high: tuple[str, object]
+    flag: str
 #: The residual SD from the sheet's residual cells agrees with the one computed from the
 #: exact residuals to this (relative): the residual cells carry the rounding of the
 #: fitted-value formulas, ~1e-9 relative on the hardest certified problem (NIST Filip).
 SD_AGREE = "1E-6"
 
 
-def figure_row(p: int, what: str) -> int:
-    """Row (0-based) of a fit figure on the coefficient sheet of a model with p terms."""
-    return FIRST_COEF + p + 2 + FIGURE_LINE[what]
+
 (C_TERM, C_COEF, C_WORDS, C_LO, C_HI, C_SE, C_HC3, C_T, C_P, C_VIF, C_COS, C_OK) = range(12)
 
 
@@ -91,11 +140,15 @@ class CoefInputs:
     rows: RowColumns
     method_note: str
     version: str
-    cautions: list[str]
     left_out: int
     range_lines: list[tuple[str, float, float, str]] = field(default_factory=list)
     data_rows: list[int] = field(default_factory=list)
     rule: RuleFit | None = None
+    lay: CoefLayout | None = None
+    answer: list[AnswerRow] = field(default_factory=list)
+    new_keys: Keys | None = None
+    amount_style: str = "num"
+    answer_style: str = "num"
 
 
 def _na(v: float) -> float | str:
@@ -109,22 +162,34 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     intercept = bool(res.intercept_)
     coef = [float(c) for c in res.coef_]
     one_line = intercept and res.degree_ == 1 and len(d.attr_names) == 1
+    lay = _layout(d)
     xs = ", ".join(d.attr_names)
     cs.put(0, 0, f"Least-squares fit — model {d.tag}: {d.y_name} on {xs}", style="title")
-    cs.note(1, 0, (
-        f"Each coefficient with the range it lies in at {d.level:.0%} confidence, and the "
-        "evidence beside it. How well the model fits and what to keep in mind follow; how "
-        "the numbers were computed is at the bottom."), width=120)
-    heads = ["term", "coefficient", "in words", f"low end ({d.level:.0%})",
-             f"high end ({d.level:.0%})", "standard error", "HC3 standard error (robust)",
+    cs.status_cell = (1, 0)
+    pct = f"{d.level:.0%}"
+    heads = ["term", "coefficient", "in words", f"low end ({pct})",
+             f"high end ({pct})", "standard error", "HC3 standard error (robust)",
              "t = coefficient / SE", "p-value (two-sided)", "variance inflation",
-             "check: cos(residuals, term)", f"check holds (|cos| ≤ {CHECK_TOL})"]
+             "check: cos(residuals, term)", "check holds"]
     for c, h in enumerate(heads):
-        cs.put(TABLE_HEAD, c, h, style="head")
+        cs.put(lay.head, c, h, style="head")
+    column_notes(cs, {
+        C_COEF: "computed by sheetfit (least squares)",
+        C_WORDS: f"the range the coefficient lies in at {pct} confidence",
+        C_LO: "coefficient − t multiplier × SE",
+        C_HI: "coefficient + t multiplier × SE",
+        C_SE: "residual SD × √ of its (XᵀX)⁻¹ diagonal entry (bottom)",
+        C_HC3: "robust to a changing spread; computed by sheetfit",
+        C_T: "coefficient ÷ standard error",
+        C_P: "T.DIST.2T(|t|, n − p): chance of a t this large if the term were 0",
+        C_VIF: "(XᵀX)⁻¹ entry × DEVSQ of the term; above 10 the terms overlap",
+        C_COS: "least squares makes it 0",
+        C_OK: f"holds when |cos| ≤ {CHECK_TOL}",
+    }, row=lay.colnote)
 
     # --- how well it fits: positions first, the coefficient rows read them ------------
-    fig = _Figures(cs, FIRST_COEF + p + 1)
-    coef_rng = f"{absolute(FIRST_COEF, C_COEF)}:{absolute(FIRST_COEF + p - 1, C_COEF)}"
+    fig = _Figures(cs, lay.first + p + 1)
+    coef_rng = f"{absolute(lay.first, C_COEF)}:{absolute(lay.first + p - 1, C_COEF)}"
     ssr = fsum_sq(d.resid)
     sum_y2 = fsum_sq(d.Y)
     exact = ssr <= float(EXACT_FIT) * sum_y2
@@ -133,7 +198,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     nr = fig.add("rows used (n)", n, f"=COUNT({R})", "int", "data rows in the fit")
     pr = fig.add("parameters (p)", p, f"=COUNT({coef_rng})", "int", "coefficients estimated")
     dfr = fig.add("residual degrees of freedom", df, f"={nr}-{pr}", "int", "n − p")
-    lvr = fig.add("confidence level", d.level, None, "ratio",
+    lvr = fig.add("confidence level", d.level, None, "pct",
                   "the level setting (default 0.95)")
     tq = float(stats.t.isf((1 - d.level) / 2, df)) if df > 0 else "n/a"
     tqr = fig.add("t multiplier", tq, f'=IF({dfr}>0,T.INV.2T(1-{lvr},{dfr}),"n/a")', "ratio",
@@ -143,27 +208,28 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
                        "then there is no error to estimate and t, F and the row "
                        "diagnostics read n/a")
     exr = f'{exr_cell}="yes"'
-    fig.add("RMSE", math.sqrt(ssr / n), f"=SQRT(SUMSQ({R})/{nr})", "num",
+    amt = d.amount_style
+    fig.add("RMSE", math.sqrt(ssr / n), f"=SQRT(SUMSQ({R})/{nr})", amt,
             "root mean squared residual (divides by n)")
     sd = math.sqrt(ssr / df) if df > 0 else "n/a"
     sd_sheet = fig.add("residual SD", sd,
-                       f'=IF({nr}>{pr},SQRT(SUMSQ({R})/({nr}-{pr})),"n/a")', "num",
+                       f'=IF({nr}>{pr},SQRT(SUMSQ({R})/({nr}-{pr})),"n/a")', amt,
                        "standard error of the estimate (divides by n − p), from the residual "
                        "cells")
     sd_exact = float(res.resid_sd_) if df > 0 else math.nan
     agree = ("n/a" if not isinstance(sd, float) else
              "holds" if abs(sd - sd_exact) <= float(SD_AGREE) * max(sd_exact, 1e-300)
-             or (sd_exact == 0 and sd <= 1e-9 * math.sqrt(sum_y2 / n)) else "fails")
-    sdr = fig.add("residual SD used for ranges", _na(sd_exact), None, "num",
+             or (sd_exact == 0 and sd <= 1e-9 * math.sqrt(sum_y2 / n)) else "FAILS")
+    sdr = fig.add("residual SD used for ranges", _na(sd_exact), None, amt,
                   "the same from the exact residuals, computed by sheetfit; standard errors "
                   "and intervals use it")
     fig.add(f"check: the two agree (relative difference ≤ {SD_AGREE})", agree,
             f'=IF(ISNUMBER({sdr}),IF(ABS({sd_sheet}-{sdr})<={SD_AGREE}*MAX({sdr},1E-300),'
-            f'"holds",IF(AND({sdr}=0,{sd_sheet}<=1E-9*SQRT(SUMSQ({Y})/{nr})),"holds","fails")),'
+            f'"holds",IF(AND({sdr}=0,{sd_sheet}<=1E-9*SQRT(SUMSQ({Y})/{nr})),"holds","FAILS")),'
             '"n/a")', "text", "the residual cells reproduce the exact residual SD")
     sd = sd_exact if df > 0 else "n/a"
     fig.add("leave-one-out RMSE", d.rows.loo_rmse,
-            f'=IF(COUNT({d.press_rng})<{nr},"n/a",SQRT(SUMSQ({d.press_rng})/{nr}))', "num",
+            f'=IF(COUNT({d.press_rng})<{nr},"n/a",SQRT(SUMSQ({d.press_rng})/{nr}))', amt,
             "RMSE when each row is predicted by the fit without it (PRESS): the figure to "
             "compare with other models and rules")
     mean = math.fsum(float(v) for v in d.Y) / n
@@ -189,18 +255,18 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     fr = fig.add("F statistic", fval,
                  f'=IF(AND({pr}-{int(intercept)}>0,{dfr}>0,NOT({exr})),'
                  f'(({total_f}-SUMSQ({R}))/({pr}-{int(intercept)}))/(SUMSQ({R})/{dfr}),"n/a")',
-                 "num", "explained against unexplained variation, per degree of freedom")
+                 "dec2", "explained against unexplained variation, per degree of freedom")
     fp = float(stats.f.sf(fval, dfm, df)) if isinstance(fval, float) else "n/a"
     fig.add("p-value of F", fp, f'=IF(ISNUMBER({fr}),F.DIST.RT({fr},{dfm},{dfr}),"n/a")',
-            "ratio", "chance of an F this large if no term mattered")
+            "pvalue", "chance of an F this large if no term mattered")
     lm = breusch_pagan(res)[0] if df > 1 and not exact else math.nan
-    bpr = fig.add("Breusch–Pagan statistic", _na(lm), None, "num",
+    bpr = fig.add("Breusch–Pagan statistic", _na(lm), None, "dec2",
                   "n·R² of the squared residuals on the terms (Koenker's form), computed "
                   "by sheetfit")
     k_bp = p - int(intercept)
     bpp = float(stats.chi2.sf(lm, k_bp)) if math.isfinite(lm) else "n/a"
     bppr = fig.add("p-value of Breusch–Pagan", bpp,
-                   f'=IF(ISNUMBER({bpr}),CHISQ.DIST.RT({bpr},{k_bp}),"n/a")', "ratio",
+                   f'=IF(ISNUMBER({bpr}),CHISQ.DIST.RT({bpr},{k_bp}),"n/a")', "pvalue",
                    "chance of a statistic this large if the spread did not change")
     fans, steady = ("fans out: quote the HC3 standard errors", "no sign that it changes")
     verdict = "n/a" if not isinstance(bpp, float) else (fans if bpp < BP_LEVEL else steady)
@@ -211,18 +277,9 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
         fig.add("correlation r", float(np.corrcoef(d.tvals[0], d.Y)[0, 1]),
                 f"=CORREL({Y},{d.term_rngs[0]})", "ratio", "Pearson correlation of y and x")
     for what, k in FIGURE_LINE.items():  # the rows other sheets' formulas read
-        if figure_row(p, what) != fig.first + k:
+        if lay.figure_row(what) != fig.first + k:
             raise RuntimeError(f"fit figure '{what}' moved; update FIGURE_LINE")
     row = fig.row + 1
-
-    # --- what to keep in mind -----------------------------------------------------------
-    cs.put(row, 0, "what to keep in mind", style="head")
-    cs.put(row, 1, "", style="head")
-    row += 1
-    for text in d.cautions:
-        cs.put(row, 1, text, style="caution")
-        row += 1
-    row += 1
     row = _plan_range(cs, row, d)
     if one_line:
         row = _plan_high_low(cs, row + 1, d, coef)
@@ -235,24 +292,25 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     # --- the coefficient rows ---------------------------------------------------------
     table = coef_table(res, d.level)
     for k, term in enumerate(res.terms_):
-        r = FIRST_COEF + k
+        r = lay.first + k
         a = r + 1
         B, F, H = (f"{col_letter(c + 1)}{a}" for c in (C_COEF, C_SE, C_T))
         cs.put(r, C_TERM, term, style="label")
-        cs.put(r, C_COEF, coef[k], style="coef")
+        cs.put(r, C_COEF, coef[k], style=coef_style(coef[k]))
         inv_jj = float(res.xtx_inv_[k, k])
         se = sd * math.sqrt(inv_jj) if isinstance(sd, float) else "n/a"
-        cs.put(r, C_SE, se, f'=IF(ISNUMBER({sdr}),{sdr}*SQRT({inv_cell(k, k)}),"n/a")', "num")
-        cs.put(r, C_HC3, _na(float(table.hc3_se[k])), style="num")
+        cs.put(r, C_SE, se, f'=IF(ISNUMBER({sdr}),{sdr}*SQRT({inv_cell(k, k)}),"n/a")',
+               coef_style(se if isinstance(se, float) else 0.0, 3))
+        cs.put(r, C_HC3, _na(float(table.hc3_se[k])), style=coef_style(float(table.hc3_se[k]), 3))
         t = coef[k] / se if isinstance(se, float) and se != 0 and not exact else "n/a"
-        cs.put(r, C_T, t, f'=IF(AND(ISNUMBER({F}),NOT({exr})),{B}/{F},"n/a")', "ratio")
+        cs.put(r, C_T, t, f'=IF(AND(ISNUMBER({F}),NOT({exr})),{B}/{F},"n/a")', "dec2")
         pv = float(2 * stats.t.sf(abs(t), df)) if isinstance(t, float) else "n/a"
-        cs.put(r, C_P, pv, f'=IF(ISNUMBER({H}),T.DIST.2T(ABS({H}),{dfr}),"n/a")', "ratio")
+        cs.put(r, C_P, pv, f'=IF(ISNUMBER({H}),T.DIST.2T(ABS({H}),{dfr}),"n/a")', "pvalue")
         ok = isinstance(se, float) and isinstance(tq, float)
         lo = coef[k] - tq * se if ok else "n/a"  # type: ignore[operator]
         hi = coef[k] + tq * se if ok else "n/a"  # type: ignore[operator]
-        cs.put(r, C_LO, lo, f'=IF(ISNUMBER({F}),{B}-{tqr}*{F},"n/a")', "coef")
-        cs.put(r, C_HI, hi, f'=IF(ISNUMBER({F}),{B}+{tqr}*{F},"n/a")', "coef")
+        cs.put(r, C_LO, lo, f'=IF(ISNUMBER({F}),{B}-{tqr}*{F},"n/a")', coef_style(coef[k], 4))
+        cs.put(r, C_HI, hi, f'=IF(ISNUMBER({F}),{B}+{tqr}*{F},"n/a")', coef_style(coef[k], 4))
         cs.put(r, C_WORDS, range_words(_what(term, k, intercept, one_line, d.y_name),
                                        lo if isinstance(lo, float) else math.nan,
                                        hi if isinstance(hi, float) else math.nan, d.level))
@@ -268,18 +326,59 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
             if intercept:
                 m = math.fsum(float(v) for v in tv) / n
                 ss = math.fsum((float(v) - m) * (float(v) - m) for v in tv)
-                cs.put(r, C_VIF, inv_jj * ss, f"={inv_cell(k, k)}*DEVSQ({t_rng})", "ratio")
+                cs.put(r, C_VIF, inv_jj * ss, f"={inv_cell(k, k)}*DEVSQ({t_rng})", "dec1")
             else:
                 cs.put(r, C_VIF, inv_jj * fsum_sq(tv), f"={inv_cell(k, k)}*SUMSQ({t_rng})",
-                       "ratio")
+                       "dec1")
         cs.put(r, C_COS, value, f, "check")
         K = f"{col_letter(C_COS + 1)}{a}"
-        cs.put(r, C_OK, "holds" if abs(value) <= float(CHECK_TOL) else "fails",
-               f'=IF(ABS({K})<={CHECK_TOL},"holds","fails")')
+        cs.put(r, C_OK, "holds" if abs(value) <= float(CHECK_TOL) else "FAILS",
+               f'=IF(ABS({K})<={CHECK_TOL},"holds","FAILS")', "verdict")
     cs.widths = {C_TERM: 24, C_COEF: 16, C_WORDS: 58, C_LO: 14, C_HI: 14, C_SE: 14,
                  C_HC3: 16, C_T: 13, C_P: 13, C_VIF: 11, C_COS: 16, C_OK: 16}
-    cs.freeze = (FIRST_COEF, 1)
+    cs.freeze = (lay.first, 1)
+    _plan_answer(cs, d, fig.refs)
     return coef_rng
+
+
+def _plan_answer(cs: SheetPlan, d: CoefInputs, figs: dict[str, tuple[str, object]]) -> None:
+    """The top of the sheet: the new rows' predictions with their range and flag, then the
+    key figures — each a formula pointing at the cell it repeats."""
+    lay = _layout(d)
+    cs.put(lay.answer, 0, "The answer", style="label")
+    pct = f"{d.level:.0%}"
+    if d.answer:
+        r = lay.answer + 1
+        heads_k = key_heads(d.new_keys) if d.new_keys is not None else ["new row"]
+        nk = len(heads_k)
+        heads = heads_k + [f"predicted {d.y_name}", f"one new value: low ({pct})",
+                               f"one new value: high ({pct})", "flag"]
+        for c, h in enumerate(heads):
+            cs.put(r, c, h, style="head")
+        styles = key_styles(d.new_keys)
+        for i, a in enumerate(d.answer):
+            rr = r + 1 + i
+            if d.new_keys is not None:
+                put_keys(cs, rr, 0, d.new_keys, a.index, styles)
+            else:
+                cs.put(rr, 0, a.sheet_row, style="row")
+            cs.put(rr, nk, a.pred[1], f"={a.pred[0]}", d.answer_style)
+            cs.put(rr, nk + 1, a.low[1], f"={a.low[0]}", d.amount_style)  # type: ignore[arg-type]
+            cs.put(rr, nk + 2, a.high[1], f"={a.high[0]}", d.amount_style)  # type: ignore[arg-type]
+            cs.put(rr, nk + 3, a.flag, style="flag")
+    r2 = "R²" if "R²" in figs else "R² (uncentred)"
+    keys = [("rows used (n)", "int"), ("RMSE", d.amount_style),
+            ("leave-one-out RMSE", d.amount_style), (r2, "ratio")]
+    for c, (label, style) in enumerate(keys):
+        ref, value = figs[label]
+        cs.put(lay.key_head, c, label, style="head")
+        cs.put(lay.key_head + 1, c, value, f"={ref}", style)  # type: ignore[arg-type]
+
+
+def _layout(d: CoefInputs) -> CoefLayout:
+    if d.lay is None:
+        raise ValueError("the coefficient sheet needs its layout")
+    return d.lay
 
 
 def _what(term: str, k: int, intercept: bool, one_line: bool, y: str) -> str:
@@ -342,6 +441,7 @@ def _plan_range(cs: SheetPlan, row: int, d: CoefInputs) -> int:
 
 def _plan_high_low(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float]) -> int:
     """The high-low estimate of a cost line beside the least-squares one (one attribute)."""
+    lay = _layout(d)
     x, y = d.tvals[0], d.Y
     X, Y = d.term_rngs[0], d.y_rng
     i_hi, i_lo = int(np.argmax(x)), int(np.argmin(x))  # MATCH(…,0) finds the first too
@@ -366,7 +466,7 @@ def _plan_high_low(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float]) ->
          "coef", "change in response between the two rows per unit of driver"),
         ("fixed part (high-low)", fixed, f"={ref[1]}-{ref[4]}*{ref[0]}", "coef",
          "response at the highest row less its variable part"),
-        ("least-squares variable rate", coef[1], f"={absolute(FIRST_COEF + 1, C_COEF)}",
+        ("least-squares variable rate", coef[1], f"={absolute(lay.first + 1, C_COEF)}",
          "coef", "from the table above"),
         ("difference (high-low − least squares)", rate - coef[1], f"={ref[4]}-{ref[6]}",
          "coef", ("two rows against all rows: the high-low figure rests on two rows only; "
@@ -382,6 +482,7 @@ def _plan_high_low(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float]) ->
 def _plan_rule(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float],
                figs: dict[str, tuple[str, object]]) -> int:
     """The rule in use today beside the least-squares fit: coefficients, RMSE, a verdict."""
+    lay = _layout(d)
     rule = d.rule
     if rule is None:
         raise ValueError("_plan_rule needs a rule")
@@ -393,7 +494,7 @@ def _plan_rule(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float],
     for k, term in enumerate(d.res.terms_):
         cs.put(r, 0, term, style="label")
         cs.put(r, 1, rule.values[k], f"={rule.cells[k]}", "coef")
-        cs.put(r, 2, coef[k], f"={absolute(FIRST_COEF + k, C_COEF)}", "coef")
+        cs.put(r, 2, coef[k], f"={absolute(lay.first + k, C_COEF)}", "coef")
         cs.put(r, 3, rule.values[k] - coef[k], f"={absolute(r, 1)}-{absolute(r, 2)}", "coef")
         r += 1
     sq = math.fsum((float(a) - float(b)) * (float(a) - float(b))
@@ -444,6 +545,7 @@ def _plan_rule(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float],
 
 def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-untyped-def]
     """The method note, (XᵀX)⁻¹ as computed, XᵀX as formulas, and their product."""
+    lay = _layout(d)
     res = d.res
     p = res.p_
     terms = res.terms_
@@ -462,7 +564,7 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
         cs.put(top, 1 + j, t, style="head")
         cs.put(top + 1 + j, 0, t, style="label")
         for k in range(p):
-            cs.put(top + 1 + j, 1 + k, float(inv[j, k]), style="num")
+            cs.put(top + 1 + j, 1 + k, float(inv[j, k]), style="check")
 
     def inv_cell(j: int, k: int) -> str:
         return absolute(top + 1 + j, 1 + k)
@@ -489,7 +591,7 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
                 v = math.fsum(float(x) * float(z) for x, z in zip(a, b))
                 f = f"=SUMPRODUCT({ra},{rb})"
             G[j, k] = v
-            cs.put(g0 + 1 + j, 1 + k, v, f, "num")
+            cs.put(g0 + 1 + j, 1 + k, v, f, "int" if v == round(v) and abs(v) < 1e15 else "check")
     P = inv @ G
     dev = float(np.abs(P - np.eye(p)).sum())
     row = g0 + p + 2
@@ -507,10 +609,10 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
         formula = (f"=IF(SUMPRODUCT(ABS(MMULT({inv_blk},{g_blk})))"
                    f"-({'+'.join(f'ABS({c})' for c in diag)})"
                    f"+({'+'.join(f'ABS({c}-1)' for c in diag)})<={IDENTITY_CHECK},"
-                   '"holds","fails")')
+                   '"holds","FAILS")')
         cs.put(row, 0, f"check: (XᵀX)⁻¹ · XᵀX is the identity (sum of |deviations| ≤ "
                        f"{IDENTITY_CHECK})", style="label")
-        cs.put(row, 1, "holds" if total <= float(IDENTITY_CHECK) else "fails", formula)
+        cs.put(row, 1, "holds" if total <= float(IDENTITY_CHECK) else "FAILS", formula)
         row += 1
     else:
         row = cs.note(row, 0, (
@@ -528,9 +630,9 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
                f"=CORREL({d.y_rng},{x_rng})*STDEV.P({d.y_rng})/STDEV.P({x_rng})", "coef")
         coef1 = float(res.coef_[1])
         same = abs(slope - coef1) <= 1e-9 * max(abs(coef1), 1e-300)
-        cs.put(row, 2, "holds" if same else "fails",
-               f'=IF(ABS({absolute(row, 1)}-{absolute(FIRST_COEF + 1, C_COEF)})<=1E-9*'
-               f'ABS({absolute(FIRST_COEF + 1, C_COEF)}),"holds","fails")')
+        cs.put(row, 2, "holds" if same else "FAILS",
+               f'=IF(ABS({absolute(row, 1)}-{absolute(lay.first + 1, C_COEF)})<=1E-9*'
+               f'ABS({absolute(lay.first + 1, C_COEF)}),"holds","FAILS")')
         cs.put(row, 3, "check: the least-squares slope equals r × SD(y) / SD(x) "
                        "(to 9 digits)", style="note")
         row += 1

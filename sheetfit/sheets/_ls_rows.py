@@ -41,7 +41,8 @@ class RowColumns:
 
 
 def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: str,
-                   sd_value: float | None, exact_ref: str, n: int, p: int) -> RowColumns:
+                   sd_value: float | None, exact_ref: str, n: int, p: int,
+                   amount: str = "num") -> RowColumns:
     """Add leverage, studentized residual, Cook's D, PRESS and flags to the residual sheet.
 
     ``resid`` are the residual cells' cached values, ``sd_ref``/``sd_value`` the residual
@@ -64,7 +65,7 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         r = FIRST_ROW + i
         a = r + 1
         h = float(infl.leverage[i])
-        rs.put(r, lev_c, h, style="ratio")
+        rs.put(r, lev_c, h, style="z")
         e = float(resid[i])
         guard = f'IF({L}{a}>=1-{_ONE},"",'
         st: float | str = ""
@@ -77,9 +78,9 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
                 ck = st * st * h / (p * (1 - h))
         rs.put(r, st_c, st,
                f'=IF(OR({L}{a}>=1-{_ONE},{exact_ref}="yes",NOT(ISNUMBER({sd_ref}))),"",'
-               f'{R}{a}/({sd_ref}*SQRT(1-{L}{a})))', "ratio")
-        rs.put(r, ck_c, ck, f'=IF({S}{a}="","",{S}{a}*{S}{a}*{L}{a}/({p}*(1-{L}{a})))', "ratio")
-        rs.put(r, pr_c, pr, f"={guard}{R}{a}/(1-{L}{a}))", "num")
+               f'{R}{a}/({sd_ref}*SQRT(1-{L}{a})))', "dec2")
+        rs.put(r, ck_c, ck, f'=IF({S}{a}="","",{S}{a}*{S}{a}*{L}{a}/({p}*(1-{L}{a})))', "z")
+        rs.put(r, pr_c, pr, f"={guard}{R}{a}/(1-{L}{a}))", amount)
         words = []
         if isinstance(st, float) and abs(st) > STUDENT_LIMIT:
             words.append("outlier")
@@ -93,16 +94,16 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
             f'&IF(AND(ISNUMBER({C}{a}),N({C}{a})>4/{n}),IF(AND(ISNUMBER({S}{a}),'
             f'ABS(N({S}{a}))>{STUDENT_LIMIT:g}),", ","")&"influential","")'
             f'&IF({L}{a}>2*{p}/{n},IF(OR(AND(ISNUMBER({S}{a}),ABS(N({S}{a}))>{STUDENT_LIMIT:g}),'
-            f'AND(ISNUMBER({C}{a}),N({C}{a})>4/{n})),", ","")&"high leverage","")'))
+            f'AND(ISNUMBER({C}{a}),N({C}{a})>4/{n})),", ","")&"high leverage","")'), "flag")
         press.append(pr if isinstance(pr, float) else None)
         flags.append(flag)
     last = FIRST_ROW + n
     rs.put(last + 1, lev_c - 1, "sum of leverages (= p)", style="label")
     lev_sum = math.fsum(float(v) for v in infl.leverage)
-    rs.put(last + 1, lev_c, lev_sum, f"=SUM({L}{FIRST_ROW + 1}:{L}{last})", "ratio")
+    rs.put(last + 1, lev_c, lev_sum, f"=SUM({L}{FIRST_ROW + 1}:{L}{last})", "z")
     rs.put(last + 2, lev_c - 1, "check (|sum − p| < 1e-9)", style="label")
-    rs.put(last + 2, lev_c, "holds" if abs(lev_sum - p) < 1e-9 else "fails",
-           f'=IF(ABS({L}{last + 2}-{p})<1E-9,"holds","fails")')
+    rs.put(last + 2, lev_c, "holds" if abs(lev_sum - p) < 1e-9 else "FAILS",
+           f'=IF(ABS({L}{last + 2}-{p})<1E-9,"holds","FAILS")', "verdict")
     rs.note(last + 4, lev_c - 1, (
         f"Flags: outlier when |studentized residual| > {STUDENT_LIMIT:g}; influential when "
         f"Cook's distance > 4/n = {4 / n:.4g}; high leverage when h > 2p/n = {2 * p / n:.4g} "

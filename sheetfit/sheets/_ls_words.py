@@ -10,11 +10,13 @@ import math
 
 import numpy as np
 
-from ..fit.inference import breusch_pagan, influence, vif
+from ..fit.inference import breusch_pagan, influence, t_quantile, vif
 from ..fit.leastsq import LeastSquaresResult
 from ..words import plural
+from ._ls_audit import audit_caution
 
-__all__ = ["BP_LEVEL", "VIF_LIMIT", "least_squares_cautions", "number", "range_words"]
+__all__ = ["BP_LEVEL", "VIF_LIMIT", "audit_threshold_caution", "least_squares_cautions",
+           "number", "range_words"]
 
 #: Breusch–Pagan p-value below which the residual spread is said to change (5 %).
 BP_LEVEL = 0.05
@@ -89,6 +91,19 @@ def least_squares_cautions(res: LeastSquaresResult) -> list[str]:
             out.append(f"{plural(ones, 'row')} with leverage 1: the line passes through "
                        f"{'it' if ones == 1 else 'them'} whatever the value, so the "
                        "leave-one-out error is not defined")
-    out.append("predicting from an extreme row: the next value tends to be closer to the "
-               "average (regression toward the mean)")
     return out
+
+
+def audit_threshold_caution(res: LeastSquaresResult, setting: object,
+                            level: float) -> str | None:
+    """The audit caution when the threshold is narrower than a typical prediction interval.
+
+    The typical interval is at the average leverage p/n: ± t · s · √(1 + p/n).
+    """
+    if not isinstance(setting, tuple) or res.df_resid_ <= 0:
+        return None
+    kind, value = str(setting[0]), float(setting[1])
+    s = float(res.resid_sd_)
+    threshold = float(value) * s if kind == "sd" else float(value)
+    half = t_quantile(level, res.df_resid_) * s * math.sqrt(1 + res.p_ / res.n_)
+    return audit_caution(threshold, half, level)

@@ -12,7 +12,7 @@ import numpy as np
 from scipy import stats
 
 from ..a1 import absolute, col_letter, quote_sheet
-from ..declare.model import Keys, ModelData
+from ..declare.model import ModelData
 from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
@@ -23,16 +23,25 @@ from ._ls_coef import (
     C_HC3,
     C_SE,
     EXACT_FIT,
-    FIRST_COEF,
+    AnswerRow,
     CoefInputs,
+    CoefLayout,
     RuleFit,
-    figure_row,
     plan_coef_sheet,
 )
 from ._ls_rows import plan_influence
-from ._ls_words import least_squares_cautions
-from .common import FIRST_ROW, fsum_sq, plan_left_out, plan_residual_sheet
-from .plan import Planned, SheetPlan
+from .common import (
+    FIRST_ROW,
+    column_notes,
+    fsum_sq,
+    key_heads,
+    key_styles,
+    key_width,
+    plan_left_out,
+    plan_residual_sheet,
+    put_keys,
+)
+from .plan import Planned, SheetPlan, decimal_style
 
 __all__ = ["plan_least_squares"]
 
@@ -90,40 +99,46 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
-    coef_ref = [cs.ref(FIRST_COEF + k, C_COEF) for k in range(p)]
+    lay = CoefLayout(p, 0 if model.new is None else model.new.n)
+    coef_ref = [cs.ref(lay.first + k, C_COEF) for k in range(p)]
+    amount = decimal_style(model.Y.tolist())
+    derived = decimal_style(model.Y.tolist(), least=2)
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
     fs.put(0, 0, f"Fitted values — model {tag}", style="title")
-    fs.note(1, 0, "Each fitted value is a formula: the coefficients on sheet "
-            f"'{cs.title}' times the term values from your data cells.")
+    fs.put(1, 0, "Each fitted value is a formula: the coefficients on sheet "
+           f"'{cs.title}' times the term values from your data cells.", style="note")
     keys = model.keys
-    nk = 0 if keys is None else len(keys.columns)
-    head = (["data row"] + ([] if keys is None else [c.name for c in keys.columns])
+    nk = key_width(keys)
+    kstyles = key_styles(keys)
+    head = (["data row"] + key_heads(keys)
             + [f"{y.name} (observed)"] + terms[int(intercept):] + [f"fitted {y.name}"])
     for c, h in enumerate(head):
         fs.put(3, c, h, style="head")
     obs_col = 1 + nk
     first_term = obs_col + 1
     fit_col = first_term + len(specs)
+    term_styles = [decimal_style(t.tolist()) for t in tvals]
     fitted = np.empty(n)
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i
-        fs.put(r, 0, int(y.row_of(int(idx))), style="int")
-        if keys is not None:
-            put_keys(fs, r, 1, keys, int(idx))
-        fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", "num")
+        fs.put(r, 0, int(y.row_of(int(idx))), style="row")
+        put_keys(fs, r, 1, keys, int(idx), kstyles)
+        fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", amount)
         formula, value, terms_row = _prediction(
-            coef, coef_ref, intercept, specs, [c.cell(int(idx)) for c in model.xs], model.X[i])
+            coef, coef_ref, intercept, specs, [c.value_ref(int(idx)) for c in model.xs],
+            model.X[i])
         for k, (ref, tv) in enumerate(terms_row):
-            fs.put(r, first_term + k, tv, f"={ref}", "num")
+            fs.put(r, first_term + k, tv, f"={ref}", term_styles[k])
         fitted[i] = value
-        fs.put(r, fit_col, value, formula, "num")
+        fs.put(r, fit_col, value, formula, derived)
     fs.widths = {0: 9, fit_col: 16}
-    fs.freeze = (FIRST_ROW, 1)
+    column_notes(fs, {obs_col: "your data cell", fit_col: "coefficients × terms, left to right"})
+    fs.freeze = (FIRST_ROW, 1 + nk)
     rule_fit: RuleFit | None = None
     if model.rule is not None:
-        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last)
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived)
     term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
@@ -132,22 +147,23 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     rs = plan_residual_sheet(
         model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted, resid,
         "residual = observed − fitted, each a formula; to the right, how much each row "
-        "moves the fit.")
+        "moves the fit.", keys=model.keys)
     resid_rng = rs.col_range(rs.columns["resid"], FIRST_ROW, last)
     ssr = fsum_sq(resid)
     df = n - p
     exact = ssr <= float(EXACT_FIT) * fsum_sq(model.Y)
     sd = float(res.resid_sd_) if df > 0 and not exact else None
     infl = influence(res)
-    rows = plan_influence(rs, infl, resid, cs.ref(figure_row(p, "sd used"), 1), sd,
-                          cs.ref(figure_row(p, "exact"), 1), n, p)
+    rows = plan_influence(rs, infl, resid, cs.ref(lay.figure_row("sd used"), 1), sd,
+                          cs.ref(lay.figure_row("exact"), 1), n, p, derived)
 
     # new rows to predict, to the right of the fitted values
     names: list[tuple[str, str]] = []
     side = fit_col + (3 if rule_fit is not None else 2)
+    answer: list[AnswerRow] = []
     if model.new is not None:
         side = _plan_new(fs, model, fitted_, coef, coef_ref, specs, intercept, side, names,
-                         level, cs, infl)
+                         level, cs, infl, lay, derived, answer)
     plan_left_out(fs, model, side)
 
     # --- coefficient sheet ----------------------------------------------------------
@@ -158,26 +174,28 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         specs=specs, tvals=tvals, Y=model.Y, resid=resid, y_rng=y_rng, resid_rng=resid_rng,
         term_rngs=term_rngs, press_rng=rs.col_range(rows.press_col, FIRST_ROW, last),
         rows=rows, method_note=res.method_note_, version=version,
-        cautions=least_squares_cautions(res) + fitted_.cautions, left_out=len(model.left_out),
+        left_out=len(model.left_out),
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
-        rule=rule_fit)
-    audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level)
-    if audit is not None and audit[1]:
-        d_in.cautions.append(audit[1])
+        rule=rule_fit, lay=lay, answer=answer,
+        new_keys=None if model.new is None else model.new.keys,
+        amount_style=derived, answer_style=decimal_style(model.Y.tolist(), least=2,
+                                                         answer=True))
+    audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level, lay)
     coef_rng = plan_coef_sheet(cs, d_in)
     names = [
         (f"sf_{tag}_coef", coef_rng if "!" in coef_rng else f"{_q(cs.title)}!{coef_rng}"),
-        (f"sf_{tag}_se", f"{_q(cs.title)}!{_col_abs(C_SE, FIRST_COEF, FIRST_COEF + p - 1)}"),
-        (f"sf_{tag}_robust", f"{_q(cs.title)}!{_col_abs(C_HC3, FIRST_COEF, FIRST_COEF + p - 1)}"),
+        (f"sf_{tag}_se", f"{_q(cs.title)}!{_col_abs(C_SE, lay.first, lay.first + p - 1)}"),
+        (f"sf_{tag}_robust", f"{_q(cs.title)}!{_col_abs(C_HC3, lay.first, lay.first + p - 1)}"),
         (f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
         (f"sf_{tag}_resid", resid_rng),
+        (f"sf_{tag}_loo", cs.ref(lay.figure_row("loo"), 1)),  # read by the charts
     ] + names
     return Planned([cs, fs, rs] + ([audit[0]] if audit is not None else []), names)
 
 
 def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_col: int,
                 fit_col: int, fitted: np.ndarray, cs: SheetPlan,
-                level: float) -> tuple[SheetPlan, str | None] | None:
+                level: float, lay: CoefLayout) -> tuple[SheetPlan, str | None] | None:
     """The audit sheet when a threshold is set, and its caution (or None)."""
     setting = model.settings.values.get("threshold")
     if setting is None:
@@ -193,7 +211,7 @@ def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_co
     sheet = plan_audit(
         model, [fs.ref(FIRST_ROW + i, obs_col, fixed=False) for i in rows],
         [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], fitted, threshold,
-        cs.ref(figure_row(p, "sd used"), 1), sd, half, level)
+        cs.ref(lay.figure_row("sd used"), 1), sd, half, level)
     thr = threshold.value * sd if threshold.per_sd and sd is not None else threshold.value
     return sheet, audit_caution(thr, half, level)
 
@@ -207,7 +225,7 @@ def _col_abs(col: int, r1: int, r2: int) -> str:
 
 
 def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
-                      intercept: bool, col: int, last: int) -> RuleFit:
+                      intercept: bool, col: int, last: int, style: str) -> RuleFit:
     """The rule in use today, applied to every data row (its coefficients × the data)."""
     rule = model.rule
     if rule is None:
@@ -216,27 +234,21 @@ def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, in
     values = np.empty(len(model.used))
     for i, idx in enumerate(model.used):
         formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
-                                        [c.cell(int(idx)) for c in model.xs], model.X[i])
+                                        [c.value_ref(int(idx)) for c in model.xs], model.X[i])
         values[i] = value
-        fs.put(FIRST_ROW + i, col, value, formula, "num")
+        fs.put(FIRST_ROW + i, col, value, formula, style)
     fs.widths[col] = 16
     return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
                    fs.col_range(col, FIRST_ROW, last), values)
 
 
-def put_keys(sheet: SheetPlan, r: int, col: int, keys: Keys, i: int) -> None:
-    """The identifier cells of model row i as formulas pointing at the user's cells."""
-    for j, c in enumerate(keys.columns):
-        v = keys.values[j][i]
-        cell = c.cell(i)
-        sheet.put(r, col + j, "" if v is None else v, f'=IF(ISBLANK({cell}),"",{cell})',
-                  "num" if isinstance(v, float) else "text")
-
-
 def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
               coef: np.ndarray, coef_ref: list[str], specs: list[tuple[int, int]],
               intercept: bool, side: int, names: list[tuple[str, str]], level: float,
-              cs: SheetPlan, infl: Influence) -> int:
+              cs: SheetPlan, infl: Influence, lay: CoefLayout, style: str,
+              answer: list[AnswerRow]) -> int:
+    """The new rows to the right of the fitted values: prediction, leverage, the range for
+    the average and for one new value, and the flag; each row also goes to ``answer``."""
     new = model.new
     if new is None:
         raise ValueError("_plan_new needs declared new rows")
@@ -244,8 +256,9 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     tag = model.tag
     iv = intervals(res, new.X, level)
     keys = new.keys
-    nk = 0 if keys is None else len(keys.columns)
-    heads = (["new row"] + ([] if keys is None else [c.name for c in keys.columns])
+    nk = key_width(keys)
+    kstyles = key_styles(keys)
+    heads = (["new row"] + key_heads(keys)
              + [c.name if c.name else model.xs[j].name for j, c in enumerate(new.columns)])
     for c, h in enumerate(heads):
         fs.put(3, side + c, h, style="head")
@@ -256,39 +269,48 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
             f"one new value: low ({pct})", f"one new value: high ({pct})", "flag"]
     for k, h in enumerate(more):
         fs.put(3, pcol + k, h, style="head")
-    fs.put(2, side, (f"Predictions for the new rows, with {pct} ranges for the average at "
-                     "these values and, wider, for one new value."), style="note")
-    p = len(coef)
-    tq_ref = cs.ref(figure_row(p, "t multiplier"), 1)
-    sd_ref = cs.ref(figure_row(p, "sd used"), 1)
+    column_notes(fs, {pcol: "coefficients × this row's terms",
+                      pcol + 1: "computed by sheetfit",
+                      pcol + 2: "prediction − t × residual SD × √leverage",
+                      pcol + 4: "prediction − t × residual SD × √(1 + leverage)"})
+    tq_ref = cs.ref(lay.figure_row("t multiplier"), 1)
+    sd_ref = cs.ref(lay.figure_row("sd used"), 1)
     df = res.df_resid_
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
+    x_styles = [decimal_style(new.X[:, j].tolist()) for j in range(new.X.shape[1])]
     for i in range(new.n):
         r = FIRST_ROW + i
         a = r + 1
-        fs.put(r, side, new.columns[0].row_of(i), style="int")
-        if keys is not None:
-            put_keys(fs, r, side + 1, keys, i)
+        fs.put(r, side, new.columns[0].row_of(i), style="row")
+        put_keys(fs, r, side + 1, keys, i, kstyles)
         for j, col in enumerate(new.columns):
-            fs.put(r, side + 1 + nk + j, float(new.X[i, j]), f"={col.cell(i)}", "num")
+            fs.put(r, side + 1 + nk + j, float(new.X[i, j]), f"={col.value_ref(i)}",
+                   x_styles[j])
         formula, value, _ = _prediction(
-            coef, coef_ref, intercept, specs, [col.cell(i) for col in new.columns], new.X[i])
-        fs.put(r, pcol, value, formula, "num")
+            coef, coef_ref, intercept, specs, [col.value_ref(i) for col in new.columns],
+            new.X[i])
+        fs.put(r, pcol, value, formula, style)
         lev = float(iv.leverage[i])
         fs.put(r, pcol + 1, lev, style="ratio")
         P, L = f"{col_letter(pcol + 1)}{a}", f"{col_letter(pcol + 2)}{a}"
+        ends: list[object] = []
         for k, (inner, sign) in enumerate([(L, "-"), (L, "+"), (f"(1+{L})", "-"),
                                            (f"(1+{L})", "+")]):
             ok = tq is not None and sd is not None
             lv = lev if k < 2 else 1 + lev
             half = tq * sd * math.sqrt(lv) if ok else None  # type: ignore[operator]
             v = ("n/a" if half is None else value - half if sign == "-" else value + half)
+            ends.append(v)
             fs.put(r, pcol + 2 + k, v,
                    f'=IF(AND(ISNUMBER({tq_ref}),ISNUMBER({sd_ref})),'
-                   f'{P}{sign}{tq_ref}*{sd_ref}*SQRT({inner}),"n/a")', "num")
-        fs.put(r, pcol + 6, _new_flag(model, res, new.X[i], lev, max_lev), style="caution")
+                   f'{P}{sign}{tq_ref}*{sd_ref}*SQRT({inner}),"n/a")', style)
+        flag = _new_flag(model, res, new.X[i], lev, max_lev)
+        fs.put(r, pcol + 6, flag, style="flag")
+        answer.append(AnswerRow(
+            i, int(new.columns[0].row_of(i)), (fs.ref(r, pcol), value),
+            (fs.ref(r, pcol + 4), ends[2]), (fs.ref(r, pcol + 5), ends[3]), flag))
     fs.widths.update({pcol: 16, pcol + 1: 12, pcol + 6: 36})
     last_new = FIRST_ROW + new.n - 1
     names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, last_new)))

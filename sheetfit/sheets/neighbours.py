@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from ..a1 import absolute, col_letter
+from ..a1 import absolute, area, col_letter
 from ..declare.model import ModelData
 from ..fit._search import TIE_DIGITS
 from ..fit.neighbours import (
@@ -292,7 +292,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     at = _At(ns, new_start, pred_col, new, extrapolated, lay, o, derived)
     if isinstance(res, NeighbourVoteResult) and focus is not None:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
-        _vote_summary(summary, model, res, fs, at, focus, version, k)
+        names += _vote_summary(summary, model, res, fs, at, focus, version, k)
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, fitted_refs, res.fitted_, res.resid_,
@@ -303,9 +303,11 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
         names = [(f"sf_{tag}_fitted", fit_rng),
                  (f"sf_{tag}_resid", rs.col_range(rc, FIRST_ROW, FIRST_ROW + res.n_ - 1))
                  ] + names
-        _mean_summary(summary, model, res, fs, rs, rc, at, version, k)
+        names += _mean_summary(summary, model, res, fs, rs, rc, at, version, k)
     else:
         raise TypeError(f"a neighbour plan for {type(res).__name__} with focus {focus!r}")
+    # read by the charts: the standard units of the used rows
+    names.append((f"sf_{tag}_z", zrefs[0].split(":")[0] + ":" + zrefs[-1].split(":")[1]))
     return Planned(sheets, names)
 
 
@@ -529,7 +531,8 @@ def _methods(s: SheetPlan, row: int, res: _Result, vote: bool) -> None:
 
 
 def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: SheetPlan,
-                  rs: SheetPlan, rc: int, at: _At, version: str, k: int) -> None:
+                  rs: SheetPlan, rc: int, at: _At, version: str,
+                  k: int) -> list[tuple[str, str]]:
     lay = at.lay
     row = _settings_block(s, model, res, version, k, False, lay)
     on = bool(res.scaling_.on)
@@ -555,10 +558,12 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: 
                    at.derived)
     _methods(s, row, res, False)
     s.widths = {0: 34, 1: 18, 2: 16}
+    return [(f"sf_{model.tag}_loo", s.ref(f + 2, 1))]  # read by the charts
 
 
 def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: SheetPlan,
-                  at: _At, focus: str | float, version: str, k: int) -> None:
+                  at: _At, focus: str | float, version: str,
+                  k: int) -> list[tuple[str, str]]:
     lay = at.lay
     row = _settings_block(s, model, res, version, k, True, lay)
     st = lay.settings
@@ -583,6 +588,7 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
          "share of data rows whose leave-one-out prediction is wrong"),
     ])
     err_cell = absolute(f + 2, 1)
+    err_row = f + 2
     n_cell = absolute(f + 1, 1)
     if at.new is not None:
         _work_list(s, lay.answer, model, res, at, focus)
@@ -644,6 +650,8 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
     row = _k_table(s, row, res, k, "error rate", err_cell, err_rate, absolute(st + 1, 1), "pct")
     _methods(s, row, res, True)
     s.widths = {0: 34, 1: 14, 2: 14}
+    return [(f"sf_{model.tag}_loo", s.ref(err_row, 1)),  # read by the charts
+            (f"sf_{model.tag}_confusion", area(s.title, top, 1, top + C - 1, C))]
 
 
 def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResult,

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
+from .chartplan import ChartPlan
 
 __all__ = ["FIT_WIDTH", "PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
            "decimals_shown"]
@@ -40,6 +41,7 @@ STYLES: dict[str, dict[str, object]] = {
     "row": {"num_format": "0", "align": "left"},  # sheet row numbers, ranks: left, under their header
     "ratio": {"num_format": "0.0000_)"},  # R², correlation: a number between -1 and 1
     "pct": {"num_format": "0.0%_)"},  # rates and shares
+    "pvalue": {"num_format": "0.0000_)"},  # p-values: four decimals (0.0000 reads "below 0.00005")
     "dist": {"num_format": "0.0000_)"},  # distances in standard units
     "z": {"num_format": "0.000_)"},  # standard units
     "class": {"align": "center"},  # class labels of a vote
@@ -103,7 +105,8 @@ class Cell:
 
 @dataclass
 class SheetPlan:
-    """Every cell of one owned sheet, plus column widths, frozen panes and print setup.
+    """Every cell of one owned sheet, plus column widths, frozen panes, print setup and
+    charts.
 
     Print setup: ``landscape`` None decides by width (wider than :data:`PORTRAIT_WIDTH`
     characters of columns), ``fit_width`` fits the columns to ``pages_wide`` page widths
@@ -126,6 +129,7 @@ class SheetPlan:
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
+    charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text", link: str | None = None) -> Cell:

@@ -242,6 +242,9 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     ss.freeze = None
     names = [(f"sf_{tag}_fitted", fs.col_range(fit_col, FIRST_ROW, last)),
              (f"sf_{tag}_resid", r_rng)] + names
+    # read by the charts: the curve and the leave-one-out RMSE
+    names += [(f"sf_{tag}_centres", col["centre"]), (f"sf_{tag}_means", col["mean"]),
+              (f"sf_{tag}_loo", ss.ref(6, 5))]
     return Planned([ss, fs, rs], names)
 
 

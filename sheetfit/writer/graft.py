@@ -23,6 +23,7 @@ from sheetfit.errors import Context, DeclarationError, PackageError
 from sheetfit.owned import is_ours
 from sheetfit.reader.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
 from sheetfit.writer._graft_app import update_app
+from sheetfit.writer._graft_parts import Attached, attached_of, place, taken_names
 from sheetfit.writer._graft_remove import (
     build_graph,
     filter_calc_chain,
@@ -63,6 +64,7 @@ class OutputName:
 class _Rendered:
     title: str
     xml: bytes
+    attached: Attached | None = None  # drawings, charts … the sheet brings along
 
 
 @dataclass(frozen=True)
@@ -73,6 +75,7 @@ class _RenderedBook:
     strings: list[str]
     sheet_type: str
     sheet_names: list[tuple[int, str, str]]  # print titles: (sheet position, name, text)
+    base: str  # the rendered workbook's folder
 
 
 def _read_rendered(path: Path) -> _RenderedBook:
@@ -89,16 +92,13 @@ def _read_rendered(path: Path) -> _RenderedBook:
         rels = parse_rels(rels_data, rp.workbook_part) if rels_data else []
         sst = read(next((r.part for r in rels if r.type.endswith("/sharedStrings")), None))
         styles = read(next((r.part for r in rels if r.type.endswith("/styles")), None))
+        ct = (read(_CT_PART) or b"").decode("utf-8")
         sheets = []
         for s in rp.sheets:
             if "/worksheets/" not in s.part.lower():
                 raise ValueError(f"rendered sheet {s.name!r} is not a worksheet")
-            if read(rels_part_of(s.part)) is not None:
-                # Seam for drawings and charts: copying a rendered sheet's rels
-                # (renumbered targets, new parts, overrides) comes with charts.
-                raise NotImplementedError("rendered sheets with relationships")
-            sheets.append(_Rendered(s.name, read(s.part) or b""))
-        ct = (read(_CT_PART) or b"").decode("utf-8")
+            # a sheet with charts brings its drawing and chart parts (_graft_parts)
+            sheets.append(_Rendered(s.name, read(s.part) or b"", attached_of(s.part, read, ct)))
     m = re.search(r'PartName="/[^"]*worksheets/[^"]+"\s+ContentType="([^"]+)"', ct)
     if sheets and styles is None:
         raise ValueError("rendered book has no styles part")
@@ -109,6 +109,7 @@ def _read_rendered(path: Path) -> _RenderedBook:
     return _RenderedBook(
         rp, sheets, styles, shared_strings(sst) if sst else [], m.group(1) if m else _T_WORKSHEET,
         scoped,
+        posixpath.dirname(rp.workbook_part),
     )
 
 
@@ -243,8 +244,13 @@ def graft(
         base = posixpath.join(posixpath.dirname(wb_part), "worksheets")
         with _editing(_CT_PART, file):
             _, listed = edit_content_types(ct_data, gone, [], rb.sheet_type)
-        first = next_number(in_use | listed, "sheet")
+        taken = taken_names(in_use | listed)
+        first = next_number(taken, "sheet")
         parts = [posixpath.join(base, f"sheet{first + j}.xml") for j in range(len(rb.sheets))]
+        taken.update(p.lower() for p in parts)
+        attached_entries, attached_types = place(
+            [(p, r.attached) for p, r in zip(parts, rb.sheets, strict=True) if r.attached],
+            taken, rb.base, posixpath.dirname(wb_part))
 
         smap = StyleMap()
         sty = next((r for r in wb_rels if r.type.endswith("/styles") and r.part), None)
@@ -273,6 +279,7 @@ def graft(
             (p, convert_sheet(r.xml, rb.strings, smap))
             for p, r in zip(parts, rb.sheets, strict=True)
         ]
+        new_entries += attached_entries
         if added_styles is not None and sty_data is not None:
             new_entries.append((added_styles, sty_data))
 
@@ -301,6 +308,8 @@ def graft(
             new_ct, listed = edit_content_types(ct_data, gone, parts, rb.sheet_type)
             if added_styles is not None and added_styles.lower() not in listed:
                 new_ct = edit_content_types(new_ct, set(), [added_styles], _T_STYLES)[0]
+            for ctype, names_of_type in attached_types.items():
+                new_ct = edit_content_types(new_ct, set(), names_of_type, ctype)[0]
         edits[lower[rels_part_of(wb_part).lower()]] = new_rels
         edits[lower[_CT_PART.lower()]] = new_ct
         app = read(_APP_PART)

@@ -14,6 +14,7 @@ from typing import Any
 import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
+from ..sheets.chartplan import ChartPlan
 from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan
 
 __all__ = ["render"]
@@ -52,6 +53,13 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
         if "_xlfn." in formula or "." not in formula:
             return formula
         return _DOTTED.sub(r"_xlfn.\1(", formula)
+
+    def _get_range_data(self, row_start: int, col_start: int, row_end: int,
+                        col_end: int) -> list[Any]:
+        # A chart's cached points: an #N/A formula result is a gap (no point), as the
+        # engines plot it, not the 0 xlsxwriter would cache for text.
+        data = super()._get_range_data(row_start, col_start, row_end, col_end)
+        return [None if d == "#N/A" else d for d in data]
 
     def _xml_number_element(self, number: float, attributes: Any = ()) -> None:
         attr = "".join(f' {k}="{self._escape_attributes(v)}"' for k, v in attributes)
@@ -122,5 +130,90 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
                 ws.write_number(c.row, c.col, c.value, fmt)
             else:
                 ws.write_string(c.row, c.col, str(c.value), fmt)
+        if sheet.charts:
+            _charts(wb, ws, sheet)
     wb.close()
     return Path(path)
+
+
+#: Series colours: a blue and an orange that read apart in colour and in grey, then more.
+_COLOURS = ("#1F5C99", "#D9661F", "#2E8B57", "#8E44AD", "#B8860B", "#C0392B", "#16A085",
+            "#7F8C8D")
+_SHAPES = ("circle", "square", "triangle", "diamond", "x", "star", "plus", "dash")
+_CHART_PRINT_SCALE = 70
+_GRID = {"visible": True, "line": {"color": "#E3E3E3", "width": 0.75}}
+_AXIS_FONT = {"size": 9, "color": "#404040"}
+
+
+def _charts(wb: xlsxwriter.Workbook, ws: Worksheet, sheet: SheetPlan) -> None:
+    """Insert each planned chart at its anchor; each prints on its own page, and the
+    cells below the last chart (the helper columns) start a new page."""
+    bottom = 0
+    for plan in sheet.charts:
+        row, col = plan.anchor
+        ws.insert_chart(row, col, _chart(wb, plan), {"object_position": 1})
+        bottom = max(bottom, row + -(-plan.size[1] // 20) + 1)  # rows are 20 px high
+    below = [c.row for c in sheet.cells if c.row >= bottom]
+    # a break one row above each later chart: an object touching a page's edge is
+    # drawn (clipped) on that page too
+    breaks = {p.anchor[0] - 1 for p in sheet.charts[1:]} | ({min(below)} if below else set())
+    ws.set_h_pagebreaks(sorted(breaks))
+    # A fit-to-width sheet ignores manual page breaks (docs/engine-facts.md, C1); a fixed
+    # scale keeps one chart per page and a 960-px chart inside a landscape A4 or letter page.
+    ws.set_print_scale(_CHART_PRINT_SCALE)
+
+
+def _plain(text: str) -> str:
+    """Chart text as text: xlsxwriter reads a name starting with '=' as a cell reference,
+    so a header such as '=cost' gets a leading space."""
+    return " " + text if text.startswith("=") else text
+
+
+def _chart(wb: xlsxwriter.Workbook, plan: ChartPlan) -> Any:
+    """One native chart from its plan: no 3-D, no fills, a legend only for several series."""
+    chart = wb.add_chart({"type": plan.kind})
+    hidden = []
+    colour = 0
+    for i, s in enumerate(plan.series):
+        opts: dict[str, Any] = {"name": _plain(s.name), "values": "=" + s.y.ref()}
+        if s.x is not None:
+            opts["categories"] = "=" + s.x.ref()
+        c = _COLOURS[colour % len(_COLOURS)]
+        if s.look == "markers":
+            # a shape per series too, so classes read apart when printed in grey
+            opts["marker"] = {"type": _SHAPES[colour % len(_SHAPES)], "size": 5,
+                              "fill": {"color": c}, "border": {"color": c}}
+            colour += 1
+        elif s.look == "line":
+            opts["line"] = {"color": c, "width": 2}
+            opts["marker"] = {"type": "none"}
+            colour += 1
+        elif s.look == "reference":
+            opts["line"] = {"color": "#808080", "width": 1, "dash_type": "dash"}
+            opts["marker"] = {"type": "none"}
+        else:
+            opts["fill"] = {"color": c}
+            opts["border"] = {"none": True}
+            colour += 1
+        if not s.in_legend:
+            hidden.append(i)
+        chart.add_series(opts)
+    chart.set_title({"name": _plain(plan.title), "name_font": {"size": 12, "bold": True}})
+    x0, x1, y0, y1 = plan.bounds
+    scatter = plan.kind == "scatter"
+    chart.set_x_axis({"name": _plain(plan.x_title), "name_font": {"size": 10, "bold": False},
+                      "num_font": _AXIS_FONT, "line": {"color": "#808080"},
+                      "crossing": "min" if scatter else None,
+                      "major_gridlines": _GRID if scatter else None,
+                      "min": x0, "max": x1})
+    chart.set_y_axis({"name": _plain(plan.y_title), "name_font": {"size": 10, "bold": False},
+                      "num_font": _AXIS_FONT, "line": {"color": "#808080"},
+                      "crossing": "min" if scatter else None,
+                      "major_gridlines": _GRID, "min": y0, "max": y1})
+    if plan.legend:
+        chart.set_legend({"position": "bottom", "delete_series": hidden})
+    else:
+        chart.set_legend({"none": True})
+    chart.set_chartarea({"border": {"none": True}})
+    chart.set_size({"width": plan.size[0], "height": plan.size[1]})
+    return chart

@@ -1,0 +1,128 @@
+"""Rows that look like totals or subtotals of the rows above them (arrays in, positions out).
+
+A table typed or pasted into a workbook often carries a "Total" row, or subtotals
+under blocks of rows. Fitted as data, such a row is an extreme point with enormous
+leverage: it drags a least-squares line towards itself and gives nearest-neighbour
+and strip methods a row that resembles nothing real. This module finds them from the
+numbers alone.
+
+The rule (one pass, O(n·m) for n rows and m columns, running sums only):
+
+* a row is a **total** when every column equals the sum of that column over a block
+  of at least two other rows directly above it: the *detail* rows (rows not already
+  found to be totals) since the previous total, or since the start;
+* a row is also a total when it equals the sum of every detail row since the previous
+  *grand* total (or the start), skipping the subtotals between them: the grand total
+  under blocks that each carry a subtotal;
+* a row of zeros in every column is never a total (nothing to add up).
+
+Allowing any block ending right above a row (not only the rows since the previous total)
+makes small-integer data full of chance matches: two rows of digits 1–9 add up to the next
+in every one of three columns about once in 8,000 row triples; with the block pinned to
+the previous total, a chance match needs the running sum of all rows since it to land on a
+row's value, which the growing sum soon makes impossible (see ``test_totals.py`` for the
+observed false-positive count).
+
+Equality is to 9 significant digits: ``|row − sum| ≤ 1e-9 · Σ|block values|`` per column.
+A total computed by a spreadsheet's SUM carries rounding of at most about
+``k · 2⁻⁵³ · Σ|values|`` for k rows (≤ 1e-10 relative for a million rows), and so do our
+running sums; both are far inside 1e-9, while two honest data values that differ
+in their 9th significant digit or earlier are told apart. Relative to Σ|values| rather
+than |sum| so that columns whose block sums cancel to near 0 are still compared on the
+scale their rounding lives on.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["TOTAL_RTOL", "Total", "find_totals", "reason"]
+
+#: Relative tolerance of "equal to the sum" (9 significant digits; see the module note).
+TOTAL_RTOL = 1e-9
+#: Fewest rows a block must hold for its sum row to count as a total.
+MIN_BLOCK = 2
+
+
+@dataclass(frozen=True)
+class Total:
+    """A row that equals the column sums of a block of detail rows above it.
+
+    ``row`` is its 0-based position among the rows given; the block is the rows
+    ``first``..``last`` (positions); ``skipped`` counts the subtotal rows inside it that
+    the sum leaves out (0 for a plain total, whose block is all detail rows).
+    """
+
+    row: int
+    first: int
+    last: int
+    skipped: int
+
+
+class _Running:
+    """Column sums and absolute sums of the detail rows since a reset."""
+
+    def __init__(self, m: int) -> None:
+        self.total = np.zeros(m)
+        self.size = np.zeros(m)
+        self.count = 0
+        self.first = -1
+        self.last = -1
+        self.skipped = 0
+
+    def reset(self) -> None:
+        self.total[:] = 0.0
+        self.size[:] = 0.0
+        self.count = 0
+        self.first = self.last = -1
+        self.skipped = 0
+
+    def add(self, i: int, row: np.ndarray) -> None:
+        self.total += row
+        self.size += np.abs(row)
+        if self.count == 0:
+            self.first = i
+        self.count += 1
+        self.last = i
+
+    def matches(self, row: np.ndarray) -> bool:
+        if self.count < MIN_BLOCK:
+            return False
+        return bool(np.all(np.abs(row - self.total) <= TOTAL_RTOL * self.size))
+
+
+def reason(first: int, last: int, total: Total, what: str) -> str:
+    """Why the row is left out, in plain words; ``first``/``last`` name the block's rows."""
+    extra = f"; its {total.skipped} subtotal{'s' if total.skipped != 1 else ''} not counted" \
+        if total.skipped else ""
+    return f"looks like the total of rows {first}–{last} ({what}{extra})"
+
+
+def find_totals(Z: np.ndarray) -> list[Total]:
+    """Rows of ``Z`` (rows × columns, finite floats) that look like totals, in row order."""
+    Z = np.asarray(Z, dtype=np.float64)
+    if Z.ndim != 2:
+        raise ValueError("find_totals needs a 2-D array of rows × columns")
+    n, m = Z.shape
+    if m == 0:
+        return []
+    block, grand = _Running(m), _Running(m)
+    found: list[Total] = []
+    for i in range(n):
+        row = Z[i]
+        if np.any(row != 0):
+            if block.matches(row):
+                found.append(Total(i, block.first, block.last, 0))
+                grand.skipped += 1  # a subtotal: the grand running sum skips it
+                block.reset()
+                continue
+            if grand.matches(row) and grand.skipped > 0:
+                found.append(Total(i, grand.first, i - 1, grand.skipped))
+                grand.reset()
+                block.reset()
+                continue
+        block.add(i, row)
+        grand.add(i, row)
+    return found
