@@ -168,7 +168,12 @@ def check(book: str | Path) -> BookCheck:
             stored = read_inputs(values) if INPUTS_SHEET in owned else {}
             index = _read_index(values) if INDEX_SHEET in owned else {}
             kinds = {t: read_cell_kinds(source, p) for t, p in owned.items()}
-            out = [_check_model(m, stored, index, owned, kinds, values) for m in models]
+            plans = _BookPlans(models)
+            plans.all_current = all(
+                m.record is not None and m.tag.casefold() in stored
+                and stored[m.tag.casefold()][0].fingerprint == m.record.fingerprint
+                for m in models)
+            out = [_check_model(m, stored, index, owned, kinds, values, plans) for m in models]
             declared = {m.tag.casefold() for m in models}
             for key, (rec, _) in stored.items():
                 if key not in declared:
@@ -201,9 +206,53 @@ def _read_index(values: BookValues) -> dict[str, tuple[str, str, str]]:
     return out
 
 
+class _BookPlans:
+    """Fresh plans of the models' sheets, made as the refresh makes them, on first need.
+
+    Some sheets show figures of every model (a comparison block): the book is planned
+    once with every model, and each model alone; a cell whose plan differs between the
+    two depends on other models and is compared only when every model is current.
+    """
+
+    def __init__(self, models: list[ModelData]) -> None:
+        self.models = models
+        self.all_current = True
+        self._fits: dict[str, Any] = {}
+        self._sheets: dict[str, SheetPlan] | None = None
+
+    def _plan(self, models: list[ModelData]) -> dict[str, SheetPlan]:
+        from .refresh import fit_model, plan_book
+
+        fits = []
+        for m in models:
+            if m.tag not in self._fits:
+                self._fits[m.tag] = fit_model(m)
+            fits.append((m, self._fits[m.tag]))
+        book, _ = plan_book(fits, "")
+        return {s.title.casefold(): s for s in book.sheets[1:]}
+
+    def of(self, model: ModelData) -> list[tuple[SheetPlan, set[tuple[int, int]]]]:
+        """The model's sheets, each with the cells that depend on other models."""
+        if self._sheets is None:
+            self._sheets = self._plan(self.models)
+        alone = self._plan([model])
+        prefix = f"sf {model.tag} ".casefold()
+        out = []
+        for t, s in self._sheets.items():
+            if not t.startswith(prefix):
+                continue
+            own = {(c.row, c.col): (c.value, c.formula) for c in alone[t].cells} \
+                if t in alone else {}
+            shared = {(c.row + 1, c.col + 1) for c in s.cells
+                      if own.get((c.row, c.col)) != (c.value, c.formula)}
+            out.append((s, set() if self.all_current else shared))
+        return out
+
+
 def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
                  index: dict[str, tuple[str, str, str]], owned: dict[str, str],
-                 kinds: dict[str, CellKinds], values: BookValues) -> ModelCheck:
+                 kinds: dict[str, CellKinds], values: BookValues,
+                 plans: _BookPlans) -> ModelCheck:
     now = model.record
     if now is None:
         raise ValueError(f"model {model.tag} was read without its input record")
@@ -237,7 +286,7 @@ def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
             found.notes.append(f"refreshed by sheetfit {version}, this is {__version__}: the "
                                "result cells were not compared with a fresh plan")
         else:
-            edits += _against_plan(model, sheets, kinds, values)
+            edits += _against_plan(plans.of(model), sheets, kinds, values)
     found.edits_total = len(edits) + len(found.edits)
     found.edits = (found.edits + edits)[:LISTED]
     if found.edits and found.status == CURRENT:
@@ -311,30 +360,30 @@ def _shown(v: Value) -> str:
     return repr(v.text[:30])
 
 
-def _against_plan(model: ModelData, sheets: dict[str, str], kinds: dict[str, CellKinds],
+def _against_plan(planned: list[tuple[SheetPlan, set[tuple[int, int]]]],
+                  sheets: dict[str, str], kinds: dict[str, CellKinds],
                   values: BookValues) -> list[Edit]:
-    """Compare each result sheet of an up-to-date model with a fresh plan of it, made as the
-    refresh makes it (its book plan without the index, which lists every model)."""
-    from .refresh import fit_model, plan_book
-
-    book, _ = plan_book([(model, fit_model(model))], "")
+    """Compare each result sheet of an up-to-date model with its fresh plan (except the
+    cells in ``skip``)."""
     edits: list[Edit] = []
-    for plan in book.sheets[1:]:
+    for plan, skip in planned:
         title = next((t for t in sheets if t.casefold() == plan.title.casefold()), None)
         if title is None:
             edits.append(Edit(plan.title, "", "the sheet is missing"))
             continue
-        edits += _compare_sheet(plan, title, kinds[title], values)
+        edits += _compare_sheet(plan, title, kinds[title], values, skip)
     return edits
 
 
 def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
-                   values: BookValues) -> list[Edit]:
+                   values: BookValues, skip: set[tuple[int, int]]) -> list[Edit]:
     sv = values.sheet(title)
     edits = []
-    seen: set[tuple[int, int]] = set()
+    seen: set[tuple[int, int]] = set(skip)
     for c in plan.cells:
         pos = (c.row + 1, c.col + 1)
+        if pos in skip:
+            continue
         seen.add(pos)
         v = sv.get(*pos)
         what = _cell_edit(c, kinds.get(pos), v)
