@@ -64,7 +64,7 @@ def _data(board: ChartSheet, model: ModelData, rows: list[int]) -> tuple[Span, l
     idx = [int(model.used[i]) for i in rows]
     y = board.column(f"{model.y.name} (observed)",
                      data_cells([model.y.cell(i) for i in idx], [model.Y[i] for i in rows]))
-    xs = [board.column(c.name, data_cells([c.cell(i) for i in idx],
+    xs = [board.column(c.name, data_cells([c.value_ref(i) for i in idx],
                                           [model.X[i, j] for i in rows]))
           for j, c in enumerate(model.xs)]
     return y, xs
