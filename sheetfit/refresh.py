@@ -78,6 +78,7 @@ def fit_model(model: ModelData) -> Fitted[Any]:
         try:
             res = method.fit(model)
             new = res.predict(model.new.X) if model.new is not None else None
+            extra = method.extra(model, res) if method.extra is not None else None
         except (SettingError, DataError) as exc:
             raise _place(exc, model) from None
     extrapolated: list[int] = []
@@ -87,7 +88,7 @@ def fit_model(model: ModelData) -> Fitted[Any]:
             extrapolated += w.message.rows
         elif issubclass(w.category, SheetfitCaution):
             cautions.append(str(w.message))
-    return Fitted(res, new, cautions, sorted(set(extrapolated)))
+    return Fitted(res, new, cautions, sorted(set(extrapolated)), extra)
 
 
 def plan_book(
