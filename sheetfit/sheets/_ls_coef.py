@@ -231,10 +231,11 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     sdr = fig.add("residual SD used for ranges", _na(sd_exact), None, amt,
                   "the same from the exact residuals, computed by sheetfit; standard errors "
                   "and intervals use it")
-    fig.add(f"check: the two agree (relative difference ≤ {SD_AGREE})", agree,
+    fig.add("check: the two SDs agree", agree,
             f'=IF(ISNUMBER({sdr}),IF(ABS({sd_sheet}-{sdr})<={SD_AGREE}*MAX({sdr},1E-300),'
             f'"holds",IF(AND({sdr}=0,{sd_sheet}<=1E-9*SQRT(SUMSQ({Y})/{nr})),"holds","FAILS")),'
-            '"n/a")', "text", "the residual cells reproduce the exact residual SD")
+            '"n/a")', "verdict", f"relative difference ≤ {SD_AGREE}: the residual cells "
+            "reproduce the exact residual SD")
     sd = sd_exact if df > 0 else "n/a"
     fig.add("leave-one-out RMSE", d.rows.loo_rmse,
             f'=IF(COUNT({d.press_rng})<{nr},"n/a",SQRT(SUMSQ({d.press_rng})/{nr}))', amt,
@@ -345,7 +346,8 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
         K = f"{col_letter(C_COS + 1)}{a}"
         cs.put(r, C_OK, "holds" if abs(value) <= float(CHECK_TOL) else "FAILS",
                f'=IF(ABS({K})<={CHECK_TOL},"holds","FAILS")', "verdict")
-    cs.widths = {C_TERM: 24, C_COEF: 16, C_WORDS: 58, C_LO: 14, C_HI: 14, C_SE: 14,
+    cs.landscape, cs.pages_wide = True, 2
+    cs.widths = {C_TERM: 30, C_COEF: 16, C_WORDS: 58, C_LO: 14, C_HI: 14, C_SE: 14,
                  C_HC3: 16, C_T: 13, C_P: 13, C_VIF: 11, C_COS: 16, C_OK: 16, C_BLO: 14,
                  C_BHI: 14}
     cs.freeze = (lay.first, 1)
