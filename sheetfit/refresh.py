@@ -79,6 +79,7 @@ def fit_model(model: ModelData) -> Fitted[Any]:
         try:
             res = method.fit(model)
             new = res.predict(model.new.X) if model.new is not None else None
+            extra = method.extra(model, res) if method.extra is not None else None
         except (SettingError, DataError) as exc:
             raise _place(exc, model) from None
     extrapolated: list[int] = []
@@ -88,7 +89,7 @@ def fit_model(model: ModelData) -> Fitted[Any]:
             extrapolated += w.message.rows
         elif issubclass(w.category, SheetfitCaution):
             cautions.append(str(w.message))
-    return Fitted(res, new, cautions, sorted(set(extrapolated)))
+    return Fitted(res, new, cautions, sorted(set(extrapolated)), extra)
 
 
 def plan_book(
@@ -106,10 +107,11 @@ def plan_book(
         summaries.append(summarise(model, method, fitted))
     charts = plan_chart_sheets(entries)  # each model's charts sheet follows its own sheets
     for e, summary in zip(entries, summaries):
-        model_sheets = e.planned.sheets + charts.get(e.model.tag, [])
-        summary.sheets = [s.title for s in model_sheets]
-        finish_model_sheets(model_sheets, summary)
-        sheets += model_sheets
+        chart_sheets = charts.get(e.model.tag, [])
+        summary.sheets = [s.title for s in e.planned.sheets + chart_sheets]
+        # the charts sheet keeps its own column widths: its charts are placed by them
+        finish_model_sheets(e.planned.sheets, summary)
+        sheets += e.planned.sheets + chart_sheets
         names += e.planned.names
     index = plan_index(summaries, refreshed, __version__)
     index.fit_columns()

@@ -23,6 +23,7 @@ __all__ = [
     "all_rules",
     "amount_or_sd",
     "choice",
+    "count_or_auto",
     "integer",
     "k_value",
     "label",
@@ -54,6 +55,16 @@ def integer(lo: int, hi: int) -> Callable[[Any], int]:
         if value != int(value) or not lo <= value <= hi:
             raise ValueError
         return int(value)
+
+    return parse
+
+
+def count_or_auto(hi: int) -> Callable[[Any], int | None]:
+    """A whole number from 0 to hi, or "auto" (None: the method decides)."""
+    def parse(raw: Any) -> int | None:
+        if isinstance(raw, str) and raw.strip().lower() == "auto":
+            return None
+        return integer(0, hi)(raw)
 
     return parse
 

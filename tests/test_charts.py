@@ -172,7 +172,7 @@ def refreshed(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
 
 def test_least_squares_charts_read_data_coefficients_fitted_and_residuals(refreshed):
     book = Book(refreshed["delivery_costs"])
-    line, resid, _ = book.charts["sf bykm charts"]
+    line, resid, order, _ = book.charts["sf bykm charts"]
     assert line.kind == "scatterChart" and "against km driven" in line.title
     x, y = line.one("data")
     for rng in (x, y):
@@ -192,6 +192,10 @@ def test_least_squares_charts_read_data_coefficients_fitted_and_residuals(refres
     zx, zy = resid.one("zero")
     assert len(_cells(zy)) == len(_cells(zx)) == 2
     assert [t[0] for t in book.targets(zx)] == [book.name("sf_bykm_fitted")[0]] * 2
+    # the rows carry identifiers (months): the residuals again, in sheet order
+    assert "in row order" in order.title
+    ox, oy = order.one("residual")
+    assert [t[0] for t in book.targets(oy)] == book.name("sf_bykm_resid")
 
     # the two models on delivery cost compared by their leave-one-out RMSE cells
     (compare,) = [c for c in book.charts["sf bykm charts"] if c.kind == "barChart"]
@@ -217,7 +221,8 @@ def test_least_squares_charts_read_data_coefficients_fitted_and_residuals(refres
 
 def test_strip_neighbour_and_comparison_charts(refreshed):
     book = Book(refreshed["field_jobs"])
-    curve, resid, compare = book.charts["sf byhours charts"]
+    curve, resid, order, compare = book.charts["sf byhours charts"]
+    assert "in row order" in order.title
     cx, cy = curve.one("strip mean")
     assert [t[0] for t in book.targets(cx)] == book.name("sf_byhours_centres")
     assert [t[0] for t in book.targets(cy)] == book.name("sf_byhours_means")
@@ -231,7 +236,9 @@ def test_strip_neighbour_and_comparison_charts(refreshed):
     _, loo = compare.one("leave-one-out RMSE")
     assert [t[0] for t in book.targets(loo)] == (book.name("sf_byhours_loo")
                                                  + book.name("sf_similar_loo"))
-    diag, sresid = book.charts["sf similar charts"]
+    diag, sresid, sorder = book.charts["sf similar charts"]
+    assert [t[0] for t in book.targets(sorder.one("residual")[1])] == book.name(
+        "sf_similar_resid")
     fx, fy = diag.one("rows")
     assert [t[0] for t in book.targets(fx)] == book.name("sf_similar_fitted")
     assert len(_data_column(book, "sf_similar_y", book.targets(fy))) == len(

@@ -291,3 +291,33 @@ def test_audit_sheet_lists_rows_beyond_threshold_and_keeps_notes(tmp_path: Path,
     assert row[sheet[3].index("explanation")] == "credit note posted twice"
     assert row[sheet[3].index("conclusion")] == "corrected in December"
     assert row[sheet[3].index("data row")] == 26  # moved down by the two inserted rows
+
+
+def test_bootstrap_ranges_on_the_sheets_are_reproducible(tmp_path: Path) -> None:
+    """The sheets carry the core's bootstrap ranges (same seed → same numbers, written as
+    values) and say how to repeat them; another seed moves them."""
+    from sheetfit.fit.bootstrap import bootstrap
+    from sheetfit.fit.leastsq import LeastSquares
+
+    X, y, new = _data()
+    rows = [["cost", "miles", "crew", "weight"]] + [[float(a)] + [float(v) for v in r]
+                                                  for a, r in zip(y, X)]
+    plan = [["miles", "crew", "weight"]] + new.tolist()
+
+    def book(seed: int) -> tuple[list, list]:
+        path = make_book(tmp_path / f"s{seed}.xlsx", {
+            "Data": rows, "Plan": plan, "Opts": [["resamples", 400], ["seed", seed]]}, {
+            "sf_m_y": f"Data!$A$1:$A${N + 1}", "sf_m_x": f"Data!$B$1:$D${N + 1}",
+            "sf_m_new": "Plan!$A$1:$C$4", "sf_m_opts": "Opts!$A$1:$B$2"})
+        refresh(path)
+        return _rows(path, sheet_title("m", "coef")), _rows(path, sheet_title("m", "fitted"))
+
+    coef7, fit7 = book(7)
+    res = LeastSquares().fit(X, y, names=["miles", "crew", "weight"])
+    want = bootstrap(res, new, resamples=400, seed=7, level=0.95)
+    _close(_values(coef7, "bootstrap low (95%)", 1, 4), want.coef_lo, rel=0, abs_=0)
+    _close(_values(coef7, "bootstrap high (95%)", 1, 4), want.coef_hi, rel=0, abs_=0)
+    _close(_values(fit7, "average: bootstrap low (95%)", 1, 3), want.pred_lo, rel=0, abs_=0)
+    assert any("default_rng(7)" in str(r[0]) for r in coef7 if r)
+    coef8, _ = book(8)
+    assert not np.array_equal(_values(coef8, "bootstrap low (95%)", 1, 4), want.coef_lo)

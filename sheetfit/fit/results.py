@@ -48,3 +48,5 @@ class Fitted(Generic[R]):
     cautions: list[str] = field(default_factory=list)
     #: Positions (0-based) of the rows to predict that lie outside the fitted range.
     extrapolated: list[int] = field(default_factory=list)
+    #: What a method computes beside its fit (least squares: the bootstrap), or None.
+    extra: Any = None

@@ -63,3 +63,6 @@ class Method(Generic[R]):
     #: Whether a ``rule`` declaration (the coefficients in use today) can be compared.
     compares_rule: bool = False
     charts: Callable[[ModelData, Fitted[R], Planned], list[SheetPlan]] | None = None
+    #: Work beside the fit, run where the fit's cautions are collected (least squares:
+    #: the bootstrap); its value reaches the planner as ``Fitted.extra``.
+    extra: Callable[[ModelData, R], object] | None = None

@@ -21,6 +21,7 @@ from scipy import stats
 
 from ..a1 import absolute, col_letter
 from ..declare.model import Keys
+from ..fit.bootstrap import Bootstrap
 from ..fit.inference import breusch_pagan, coef_table
 from ..fit.leastsq import LeastSquaresResult
 from ._ls_rows import RowColumns
@@ -106,7 +107,8 @@ SD_AGREE = "1E-6"
 
 
 
-(C_TERM, C_COEF, C_WORDS, C_LO, C_HI, C_SE, C_HC3, C_T, C_P, C_VIF, C_COS, C_OK) = range(12)
+(C_TERM, C_COEF, C_WORDS, C_LO, C_HI, C_SE, C_HC3, C_T, C_P, C_VIF, C_COS, C_OK, C_BLO,
+ C_BHI) = range(14)
 
 
 @dataclass(frozen=True)
@@ -149,6 +151,7 @@ class CoefInputs:
     new_keys: Keys | None = None
     amount_style: str = "num"
     answer_style: str = "num"
+    boot: Bootstrap | None = None
 
 
 def _na(v: float) -> float | str:
@@ -171,8 +174,13 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
              f"high end ({pct})", "standard error", "HC3 standard error (robust)",
              "t = coefficient / SE", "p-value (two-sided)", "variance inflation",
              "check: cos(residuals, term)", "check holds"]
+    if d.boot is not None:
+        heads += [f"bootstrap low ({pct})", f"bootstrap high ({pct})"]
     for c, h in enumerate(heads):
         cs.put(lay.head, c, h, style="head")
+    if d.boot is not None:
+        column_notes(cs, {C_BLO: f"percentiles of {d.boot.kept:,} refits on resampled rows "
+                                 "(how: bottom)"}, row=lay.colnote)
     column_notes(cs, {
         C_COEF: "computed by sheetfit (least squares)",
         C_WORDS: f"the range the coefficient lies in at {pct} confidence",
@@ -223,10 +231,11 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     sdr = fig.add("residual SD used for ranges", _na(sd_exact), None, amt,
                   "the same from the exact residuals, computed by sheetfit; standard errors "
                   "and intervals use it")
-    fig.add(f"check: the two agree (relative difference ≤ {SD_AGREE})", agree,
+    fig.add("check: the two SDs agree", agree,
             f'=IF(ISNUMBER({sdr}),IF(ABS({sd_sheet}-{sdr})<={SD_AGREE}*MAX({sdr},1E-300),'
             f'"holds",IF(AND({sdr}=0,{sd_sheet}<=1E-9*SQRT(SUMSQ({Y})/{nr})),"holds","FAILS")),'
-            '"n/a")', "text", "the residual cells reproduce the exact residual SD")
+            '"n/a")', "verdict", f"relative difference ≤ {SD_AGREE}: the residual cells "
+            "reproduce the exact residual SD")
     sd = sd_exact if df > 0 else "n/a"
     fig.add("leave-one-out RMSE", d.rows.loo_rmse,
             f'=IF(COUNT({d.press_rng})<{nr},"n/a",SQRT(SUMSQ({d.press_rng})/{nr}))', amt,
@@ -331,11 +340,16 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
                 cs.put(r, C_VIF, inv_jj * fsum_sq(tv), f"={inv_cell(k, k)}*SUMSQ({t_rng})",
                        "dec1")
         cs.put(r, C_COS, value, f, "check")
+        if d.boot is not None:
+            cs.put(r, C_BLO, _na(float(d.boot.coef_lo[k])), style=coef_style(coef[k], 4))
+            cs.put(r, C_BHI, _na(float(d.boot.coef_hi[k])), style=coef_style(coef[k], 4))
         K = f"{col_letter(C_COS + 1)}{a}"
         cs.put(r, C_OK, "holds" if abs(value) <= float(CHECK_TOL) else "FAILS",
                f'=IF(ABS({K})<={CHECK_TOL},"holds","FAILS")', "verdict")
-    cs.widths = {C_TERM: 24, C_COEF: 16, C_WORDS: 58, C_LO: 14, C_HI: 14, C_SE: 14,
-                 C_HC3: 16, C_T: 13, C_P: 13, C_VIF: 11, C_COS: 16, C_OK: 16}
+    cs.landscape, cs.pages_wide = True, 2
+    cs.widths = {C_TERM: 30, C_COEF: 16, C_WORDS: 58, C_LO: 14, C_HI: 14, C_SE: 14,
+                 C_HC3: 16, C_T: 13, C_P: 13, C_VIF: 11, C_COS: 16, C_OK: 16, C_BLO: 14,
+                 C_BHI: 14}
     cs.freeze = (lay.first, 1)
     _plan_answer(cs, d, fig.refs)
     return coef_rng
@@ -557,6 +571,18 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
         "Standard errors are the residual SD times the square root of the diagonal of "
         "(XᵀX)⁻¹ below; HC3 standard errors and the Breusch–Pagan statistic are computed by "
         "sheetfit (HC3: (XᵀX)⁻¹ Xᵀ diag(eᵢ²/(1−hᵢ)²) X (XᵀX)⁻¹)."), width=120)
+    if d.boot is not None:
+        bs = d.boot
+        row = cs.note(row, 0, (
+            f"Bootstrap: {bs.resamples:,} resamples of the {res.n_:,} rows, drawn with "
+            f"replacement by numpy.random.default_rng({bs.seed}).integers(0, n, (resamples, "
+            f"n)) in batches; each refitted by least squares; {bs.method}: the "
+            f"{bs.level:.0%} range is the {(1 - bs.level) / 2:.1%} and "
+            f"{(1 + bs.level) / 2:.1%} quantiles (numpy's default, linear) of the "
+            f"{bs.kept:,} refits"
+            + (f" ({bs.skipped:,} resamples could not estimate every term and were skipped)"
+               if bs.skipped else "") + ". The same seed and count give the same ranges."),
+            width=120)
     inv = np.asarray(res.xtx_inv_)
     top = row + 1
     cs.put(top, 0, "(XᵀX)⁻¹ as computed", style="label")

@@ -42,7 +42,7 @@ MAX_POINTS = 5000
 #: own charts and a comparison). The helper columns follow below, from row HELPER_HEAD.
 CHART_TOP = 3
 CHART_ROWS = 35
-CHART_SLOTS = 3
+CHART_SLOTS = 4
 HELPER_COL = 0
 HELPER_HEAD = CHART_TOP + CHART_ROWS * CHART_SLOTS + 1
 NA = "#N/A"

@@ -64,7 +64,7 @@ def _data(board: ChartSheet, model: ModelData, rows: list[int]) -> tuple[Span, l
     idx = [int(model.used[i]) for i in rows]
     y = board.column(f"{model.y.name} (observed)",
                      data_cells([model.y.cell(i) for i in idx], [model.Y[i] for i in rows]))
-    xs = [board.column(c.name, data_cells([c.cell(i) for i in idx],
+    xs = [board.column(c.name, data_cells([c.value_ref(i) for i in idx],
                                           [model.X[i, j] for i in rows]))
           for j, c in enumerate(model.xs)]
     return y, xs
@@ -90,7 +90,26 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
                 [Series("residual", res, fit, "markers"),
                  Series("zero", zy, zx, "reference", in_legend=False)],
                 bounds=(*nice_bounds(_nums(values)), None, None))
+    if model.keys is not None:
+        _row_order(board, model, res, rows)
     return fit, _pick(fit_cells, rows)
+
+
+def _row_order(board: ChartSheet, model: ModelData, res: Span, rows: list[int]) -> None:
+    """Residuals in the rows' sheet order, when the rows carry identifiers (a month, a job
+    number): a drift over time or along the list shows as a slope or a run of one sign."""
+    yname = model.y.name
+    sheet_rows = [float(model.y.row_of(int(model.used[i]))) for i in rows]
+    at = board.column("data row", [(None, v) for v in sheet_rows])
+    zx = board.column("zero line x (rows)", [(None, sheet_rows[0]), (None, sheet_rows[-1])])
+    zy = board.column("zero line y (rows)", [(None, 0), (None, 0)])
+    board.gap()
+    ids = ", ".join(c.name for c in model.keys.columns) if model.keys is not None else ""
+    board.chart("scatter", f"{yname}: residuals in row order" + suffix(len(model.used)),
+                f"data row (sheet order of {ids})", "residual (observed − fitted)",
+                [Series("residual", res, at, "markers"),
+                 Series("zero", zy, zx, "reference", in_legend=False)],
+                bounds=(*nice_bounds(sheet_rows), None, None))
 
 
 def _diagonal(board: ChartSheet, model: ModelData, loc: Located, obs: Span,

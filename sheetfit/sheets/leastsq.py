@@ -13,6 +13,7 @@ from scipy import stats
 
 from ..a1 import absolute, col_letter, quote_sheet
 from ..declare.model import ModelData
+from ..fit.bootstrap import Bootstrap
 from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
@@ -161,9 +162,10 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     names: list[tuple[str, str]] = []
     side = fit_col + (3 if rule_fit is not None else 2)
     answer: list[AnswerRow] = []
+    boot = fitted_.extra if isinstance(fitted_.extra, Bootstrap) else None
     if model.new is not None:
         side = _plan_new(fs, model, fitted_, coef, coef_ref, specs, intercept, side, names,
-                         level, cs, infl, lay, derived, answer)
+                         level, cs, infl, lay, derived, answer, boot)
     plan_left_out(fs, model, side)
 
     # --- coefficient sheet ----------------------------------------------------------
@@ -176,7 +178,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         rows=rows, method_note=res.method_note_, version=version,
         left_out=len(model.left_out),
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
-        rule=rule_fit, lay=lay, answer=answer,
+        rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
         amount_style=derived, answer_style=decimal_style(model.Y.tolist(), least=2,
                                                          answer=True))
@@ -246,7 +248,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
               coef: np.ndarray, coef_ref: list[str], specs: list[tuple[int, int]],
               intercept: bool, side: int, names: list[tuple[str, str]], level: float,
               cs: SheetPlan, infl: Influence, lay: CoefLayout, style: str,
-              answer: list[AnswerRow]) -> int:
+              answer: list[AnswerRow], boot: Bootstrap | None) -> int:
     """The new rows to the right of the fitted values: prediction, leverage, the range for
     the average and for one new value, and the flag; each row also goes to ``answer``."""
     new = model.new
@@ -267,6 +269,8 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     more = [f"predicted {model.y.name}", "leverage x₀ᵀ(XᵀX)⁻¹x₀",
             f"average: low ({pct})", f"average: high ({pct})",
             f"one new value: low ({pct})", f"one new value: high ({pct})", "flag"]
+    if boot is not None:
+        more += [f"average: bootstrap low ({pct})", f"average: bootstrap high ({pct})"]
     for k, h in enumerate(more):
         fs.put(3, pcol + k, h, style="head")
     column_notes(fs, {pcol: "coefficients × this row's terms",
@@ -308,6 +312,9 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
                    f'{P}{sign}{tq_ref}*{sd_ref}*SQRT({inner}),"n/a")', style)
         flag = _new_flag(model, res, new.X[i], lev, max_lev)
         fs.put(r, pcol + 6, flag, style="flag")
+        if boot is not None:
+            for k, v in enumerate((boot.pred_lo[i], boot.pred_hi[i])):
+                fs.put(r, pcol + 7 + k, float(v) if math.isfinite(v) else "n/a", style=style)
         answer.append(AnswerRow(
             i, int(new.columns[0].row_of(i)), (fs.ref(r, pcol), value),
             (fs.ref(r, pcol + 4), ends[2]), (fs.ref(r, pcol + 5), ends[3]), flag))
@@ -316,7 +323,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     names.append((f"sf_{tag}_pred", fs.col_range(pcol, FIRST_ROW, last_new)))
     names.append((f"sf_{tag}_predlow", fs.col_range(pcol + 4, FIRST_ROW, last_new)))
     names.append((f"sf_{tag}_predhigh", fs.col_range(pcol + 5, FIRST_ROW, last_new)))
-    return pcol + 8
+    return pcol + (10 if boot is not None else 8)
 
 
 def _new_flag(model: ModelData, res: LeastSquaresResult, x: np.ndarray, lev: float,
