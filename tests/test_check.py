@@ -243,8 +243,8 @@ def test_fingerprint_rederived_from_the_recipe_by_hand(tmp_path: Path) -> None:
     text = ("sheetfit inputs 1\nmodel a\n"
             f"y {range_digest('Data!$A$1:$A$11', 0)}\n"
             f"x {range_digest('Data!$B$1:$B$11', 1)}\n"
-            "settings method=least_squares;intercept=yes;degree=1;level=0.95;threshold=;"
-            "baseline=\n")
+            "settings method=least_squares;intercept=yes;degree=1;level=0.95;resamples=;seed=1;"
+            "threshold=;baseline=\n")
     index = python_calamine.load_workbook(str(p)).get_sheet_by_name("sf index").to_python()
     head = next(r for r in index if r and r[0] == "model")
     row = next(r for r in index if r and r[0] == "a")
