@@ -147,7 +147,7 @@ def test_new_rows_coded_and_unknown_levels_refused(tmp_path: Path) -> None:
 def test_few_rows_caution(tmp_path: Path) -> None:
     """Levels with fewer than 5 rows (common practice) are named in a caution."""
     fitted = fit_model(_model(_book(tmp_path / "f.xlsx", _visits())))
-    (note,) = [c for c in fitted.cautions if "level" in c]
+    (note,) = [c for c in fitted.cautions if "text attribute" in c]
     assert "'region': level 'Isles' has only 1 row" in note
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
