@@ -129,7 +129,9 @@ class ChartSheet:
                   "charts stay responsive; the titles say so.")
         s.note(1, 0, f"Each chart reads the helper columns from row {HELPER_HEAD + 1} on: "
                "formulas pointing at your data cells and at this model's result sheets, so "
-               "the charts follow a refresh." + sample, width=120)
+               "the charts follow a refresh (a least-squares line's range for one new value "
+               "is written as values, computed at the refresh as on the fitted-value sheet)."
+               + sample, width=120)
         return cls(s)
 
     @property

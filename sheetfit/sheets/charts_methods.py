@@ -22,8 +22,11 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+import numpy as np
+
 from ..a1 import absolute
 from ..declare.model import ModelData
+from ..fit.inference import intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.neighbours import NeighbourMeanResult, NeighbourVoteResult
 from ..fit.results import Fitted
@@ -179,13 +182,46 @@ def _line(board: ChartSheet, model: ModelData, res: LeastSquaresResult, loc: Loc
             first = False
         cells.append(("=" + "+".join(parts), value))
     gy = board.column(f"fitted {model.y.name} (line)", cells)
-    board.gap()
-    shape = "line" if degree == 1 else f"curve (degree {degree})"
+    series = [Series("data", obs, x, "markers"), Series(f"fitted {shape_of(degree)}", gy, gx,
+                                                       "line")]
     ys = [float(model.Y[i]) for i in rows] + _nums([v for _, v in cells])
+    band = _band(board, model, res, lo, hi)
+    if band is not None:
+        bx, blo, bhi, level, values = band
+        series += [Series(f"range for one new value ({level:.0%})", blo, bx, "reference"),
+                   Series("high end", bhi, bx, "reference", in_legend=False)]
+        ys += values
+    board.gap()
     board.chart("scatter", f"{model.y.name} against {model.xs[0].name}: data and fitted "
-                f"{shape}" + suffix(len(model.used)), model.xs[0].name, model.y.name,
-                [Series("data", obs, x, "markers"), Series(f"fitted {shape}", gy, gx, "line")],
-                bounds=(*nice_bounds(xv), *nice_bounds(ys)))
+                f"{shape_of(degree)}" + suffix(len(model.used)), model.xs[0].name,
+                model.y.name, series, bounds=(*nice_bounds(xv), *nice_bounds(ys)))
+
+
+def shape_of(degree: int) -> str:
+    return "line" if degree == 1 else f"curve (degree {degree})"
+
+
+#: Points across the plotted x range at which the prediction band is drawn.
+BAND_POINTS = 21
+
+
+def _band(board: ChartSheet, model: ModelData, res: LeastSquaresResult, lo: float,
+          hi: float) -> tuple[Span, Span, Span, float, list[float]] | None:
+    """The range for one new value across the plotted x range (values computed at refresh:
+    prediction ± t · residual SD · √(1 + leverage), as on the fitted-value sheet)."""
+    if res.df_resid_ <= 0 or hi <= lo:
+        return None
+    level = float(model.settings.values.get("level", 0.95))
+    grid = np.linspace(lo, hi, BAND_POINTS)
+    iv = intervals(res, grid.reshape(-1, 1), level)
+    if not (np.all(np.isfinite(iv.obs_lo)) and np.all(np.isfinite(iv.obs_hi))):
+        return None
+    bx = board.column(f"{model.xs[0].name} (range)", [(None, float(v)) for v in grid])
+    blo = board.column(f"one new value: low ({level:.0%})",
+                       [(None, float(v)) for v in iv.obs_lo])
+    bhi = board.column(f"one new value: high ({level:.0%})",
+                       [(None, float(v)) for v in iv.obs_hi])
+    return bx, blo, bhi, level, [float(v) for v in iv.obs_lo] + [float(v) for v in iv.obs_hi]
 
 
 def neighbour_mean_charts(model: ModelData, fitted: Fitted[NeighbourMeanResult],
