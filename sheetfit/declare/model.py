@@ -23,6 +23,7 @@ from ..fit.totals import find_totals
 from ..fit.totals import reason as totals_reason
 from ..labels import label_text
 from ..owned import INPUT_ROLES, MAX_TAG, OUTPUT_ROLES, is_ours, split_name
+from ..reader.formats import amount_format
 from ..reader.package import DefinedName, Package
 from ..reader.values import (
     BLANK,
@@ -65,6 +66,9 @@ class Column:
     #: For an indicator of a text attribute (``declare/levels.py``): the level it marks;
     #: the cells are the text attribute's own, and the value is 1 where the cell is that level.
     level: str | None = None
+    #: The number format of the column's first data cell when it shows a plain number
+    #: (``reader.formats.amount_format``), for the result sheets to show amounts alike.
+    fmt: str | None = None
 
     def value_ref(self, i: int) -> str:
         """Formula expression of this column's value in the model's i-th row.
@@ -482,7 +486,8 @@ def _check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
 
 def _make_column(a: Area, col: int, header: bool, values: BookValues, offset: int) -> Column:
     name = values.sheet(a.sheet).get(a.row1, col).text.strip() if header else col_letter(col)
-    return Column(name, a.sheet, col, a.row1 + offset)
+    fmt = amount_format(values.number_format(a.sheet, a.row1 + offset, col))
+    return Column(name, a.sheet, col, a.row1 + offset, fmt=fmt)
 
 
 def _check_headers(cols: list[Column], d: DefinedName, file: str) -> None:

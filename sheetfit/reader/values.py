@@ -29,9 +29,13 @@ from types import TracebackType
 from typing import Any, Protocol, Self
 
 import python_calamine
+from defusedxml import DefusedXmlException
+from defusedxml.ElementTree import ParseError
 
+from ..a1 import cell_ref
 from ..errors import Context, PackageError
 from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
+from .formats import StyleTable, cell_style_index
 from .package import parse_rels, rels_part_of
 
 __all__ = [
@@ -198,6 +202,7 @@ class BookValues:
     _zip: zipfile.ZipFile | None = field(default=None, init=False, repr=False)
     _members: dict[str, str] = field(default_factory=dict, init=False, repr=False)
     _closed: bool = field(default=False, init=False, repr=False)
+    _styles: StyleTable | None = field(default=None, init=False, repr=False)
 
     def __enter__(self) -> Self:
         return self
@@ -247,6 +252,25 @@ class BookValues:
         """The zip entry of a part (part names ignore case); KeyError if there is none."""
         self._archive()
         return self._members[part.lower()]
+
+    def number_format(self, sheet: str, row: int, col: int) -> str | None:
+        """The number format code of one cell (None when it has none that can be read)."""
+        try:
+            if self._styles is None:
+                self._styles = self._style_table()
+            member = self._member(self.sheet_parts[self._canonical(sheet)])
+            with self._archive().open(member) as fh:
+                index = cell_style_index(fh, cell_ref(row, col))
+            return None if index is None else self._styles.code(index)
+        except (KeyError, ValueError, OSError, zipfile.BadZipFile, StopIteration,
+                ParseError, DefusedXmlException, PackageError):
+            return None  # looks only: an unreadable style keeps sheetfit's own format
+
+    def _style_table(self) -> StyleTable:
+        rels_part = rels_part_of(self.workbook_part)
+        rels = parse_rels(self._archive().read(self._member(rels_part)), self.workbook_part)
+        part = next(r.part for r in rels if r.type.endswith("/styles") and r.part)
+        return StyleTable(self._archive().read(self._member(part)))
 
     def _load(self, name: str) -> SheetValues:
         if self._closed:

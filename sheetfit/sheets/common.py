@@ -216,8 +216,10 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.
         rs.put(3, c, h, style="head")
     ob, fc, rc = 1 + kw, 2 + kw, 3 + kw
     B, C = _letter(ob), _letter(fc)
-    amount = decimal_style(model.Y.tolist()) if model.Y.dtype != object else "num"
-    derived = decimal_style(model.Y.tolist(), least=2) if model.Y.dtype != object else "num"
+    amount = (decimal_style(model.Y.tolist(), fmt=model.y.fmt) if model.Y.dtype != object
+              else "num")
+    derived = (decimal_style(model.Y.tolist(), least=2, fmt=model.y.fmt)
+               if model.Y.dtype != object else "num")
     kstyles = key_styles(keys)
     for i, idx in enumerate(model.used):
         r = FIRST_ROW + i

@@ -98,7 +98,7 @@ def _std_sheet(model: ModelData, res: _Result, new: _Prediction | None
     xc = 1 + o  # first attribute column
     zc = xc + m  # first z column
     mean, sd = res.X_mean_.tolist(), res.X_sd_.tolist()
-    xstyle = [decimal_style(model.X[:, j].tolist()) for j in range(m)]
+    xstyle = [decimal_style(model.X[:, j].tolist(), fmt=model.xs[j].fmt) for j in range(m)]
     for j, c in enumerate(model.xs):
         xcol = xc + j
         rng = f"{col_letter(xcol + 1)}{_STD_FIRST + 1}:{col_letter(xcol + 1)}{last + 1}"
@@ -261,8 +261,8 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     else:
         notes.update({pred_col: f"AVERAGE of the {k} values to the left",
                       pred_col + 1: "MIN, MEDIAN, MAX of the same values"})
-    ystyle = "class" if vote else decimal_style(res.y_.tolist())
-    derived = "class" if vote else decimal_style(res.y_.tolist(), least=2)
+    ystyle = "class" if vote else decimal_style(res.y_.tolist(), fmt=model.y.fmt)
+    derived = "class" if vote else decimal_style(res.y_.tolist(), least=2, fmt=model.y.fmt)
     ctx = _Cells(model, res.y_.tolist(), zrefs, k, k_cell, focus_cell, vote, o, ystyle, derived)
     fitted_refs: list[str] = []
     kst = key_styles(model.keys)

@@ -14,8 +14,19 @@ from dataclasses import dataclass, field
 from ..a1 import absolute, area, cell_ref, quote_sheet
 from .chartplan import ChartPlan
 
-__all__ = ["FIT_WIDTH", "PORTRAIT_WIDTH", "STYLES", "BookPlan", "Cell", "Planned", "SheetPlan", "coef_style", "decimal_style",
-           "decimals_shown"]
+__all__ = [
+    "FIT_WIDTH",
+    "PORTRAIT_WIDTH",
+    "STYLES",
+    "BookPlan",
+    "Cell",
+    "Planned",
+    "SheetPlan",
+    "coef_style",
+    "decimal_style",
+    "decimals_shown",
+    "style_format",
+]
 
 Scalar = float | int | str | bool | None
 
@@ -72,10 +83,23 @@ def decimals_shown(values: Sequence[object], most: int = 4) -> int:
 
 
 def decimal_style(values: Sequence[object], most: int = 4, answer: bool = False,
-                  least: int = 0) -> str:
-    """The style for amounts like ``values``: thousands separators, the decimals they show
-    (at least ``least``: a fitted value or a mean of whole numbers is not whole)."""
+                  least: int = 0, fmt: str | None = None) -> str:
+    """The style for amounts like ``values``: the user's own number format ``fmt`` when
+    their data cells have one (a plain-number format, see ``reader.formats``), else
+    thousands separators and the decimals the values show (at least ``least``: a fitted
+    value or a mean of whole numbers is not whole)."""
+    if fmt:
+        return ("userb:" if answer else "user:") + fmt
     return f"{'answer' if answer else 'dec'}{max(least, decimals_shown(values, most))}"
+
+
+def style_format(style: str) -> dict[str, object]:
+    """The xlsxwriter format properties of a style key (the table, or a user's format)."""
+    if style.startswith("user:"):
+        return {"num_format": style[5:]}
+    if style.startswith("userb:"):
+        return {"bold": True, "num_format": style[6:]}
+    return STYLES[style]
 
 
 def coef_style(value: float, digits: int = 6) -> str:
@@ -136,7 +160,7 @@ class SheetPlan:
         """Add a cell (a formula must start with '=') and return it."""
         if formula is not None and not formula.startswith("="):
             raise ValueError(f"formula without '=': {formula}")
-        if style not in STYLES:
+        if style not in STYLES and not style.startswith(("user:", "userb:")):
             raise KeyError(style)
         if link is not None and formula is not None:
             raise ValueError("a hyperlink cell holds text, not a formula")

@@ -93,9 +93,9 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     xs = fs.col_range(xc, FIRST_ROW, last)
     ys = fs.col_range(ob, FIRST_ROW, last)
     even = res.grid_kind_ == "even"
-    ystyle = decimal_style(yv)
-    derived = decimal_style(yv, least=2)
-    xstyle = decimal_style(x)
+    ystyle = decimal_style(yv, fmt=model.y.fmt)
+    derived = decimal_style(yv, least=2, fmt=model.y.fmt)
+    xstyle = decimal_style(x, fmt=model.xs[0].fmt)
 
     ss.put(0, 0, f"Strip means — model {tag}: {y.name} by {xname}", style="title")
     ss.put(1, 0, f"Each estimate is the average {y.name} of the data rows whose {xname} lies "

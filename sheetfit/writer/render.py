@@ -15,7 +15,7 @@ import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
 from ..sheets.chartplan import ChartPlan
-from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan
+from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan, style_format
 
 __all__ = ["render"]
 
@@ -112,6 +112,8 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
         if sheet.freeze:
             ws.freeze_panes(*sheet.freeze)
         for c in sheet.cells:
+            if c.style not in formats:  # a user's own number format (plan.style_format)
+                formats[c.style] = wb.add_format(style_format(c.style))
             fmt = formats[c.style]
             if c.link is not None:
                 # an internal link: a location in this workbook, no relationship part

@@ -1,0 +1,58 @@
+"""Result sheets show amounts in the number format of the user's own data cells."""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import openpyxl
+import pytest
+import xlsxwriter
+
+from sheetfit.owned import sheet_title
+from sheetfit.reader.formats import amount_format
+from sheetfit.refresh import refresh
+
+
+@pytest.mark.parametrize(("code", "kept"), [
+    ("General", False), ("@", False), ("mm-dd-yy", False), ("d-mmm-yy", False),
+    ("[h]:mm:ss", False), ("yyyy-mm-dd", False),
+    ("#,##0.00", True), ("0.0%", True), ('"$"#,##0.00', True), ('#,##0 "km"', True),
+    ("#,##0.00;[Red](#,##0.00)", True), ("0.00E+00", True),
+])
+def test_which_formats_count_as_amounts(code: str, kept: bool) -> None:
+    """Dates, times, text and General keep sheetfit's own formats (a date format on a
+    fitted cost would show a date); plain-number formats are the user's to keep."""
+    assert (amount_format(code) == code) is kept
+
+
+def _book(path: Path) -> Path:
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": dt.datetime(2026, 1, 1)})
+    ws = wb.add_worksheet("Data")
+    money = wb.add_format({"num_format": '"$"#,##0.00'})
+    km = wb.add_format({"num_format": '#,##0 "km"'})
+    ws.write_row(0, 0, ["cost", "distance"])
+    for i in range(12):
+        ws.write_number(1 + i, 0, 1000.0 + 37.5 * i + (i % 3) * 11.25, money)
+        ws.write_number(1 + i, 1, 120.0 + 15 * i, km)
+    wb.define_name("sf_f_y", "=Data!$A$1:$A$13")
+    wb.define_name("sf_f_x", "=Data!$B$1:$B$13")
+    wb.close()
+    return path
+
+
+def test_result_sheets_use_the_data_cells_formats(tmp_path: Path) -> None:
+    path = _book(tmp_path / "f.xlsx")
+    refresh(path)
+    wb = openpyxl.load_workbook(path)
+    fitted = wb[sheet_title("f", "fitted")]
+    head = [c.value for c in fitted[4]]
+    obs = fitted.cell(5, head.index("cost (observed)") + 1)
+    fit = fitted.cell(5, head.index("fitted cost") + 1)
+    dist = fitted.cell(5, head.index("distance") + 1)
+    assert obs.number_format == '"$"#,##0.00' and fit.number_format == '"$"#,##0.00'
+    assert dist.number_format == '#,##0 "km"'
+    resid = wb[sheet_title("f", "resid")]
+    rhead = [c.value for c in resid[4]]
+    assert resid.cell(5, rhead.index("residual") + 1).number_format == '"$"#,##0.00'
