@@ -56,3 +56,24 @@ def test_result_sheets_use_the_data_cells_formats(tmp_path: Path) -> None:
     resid = wb[sheet_title("f", "resid")]
     rhead = [c.value for c in resid[4]]
     assert resid.cell(5, rhead.index("residual") + 1).number_format == '"$"#,##0.00'
+
+
+def test_date_identifiers_show_as_dates(tmp_path: Path) -> None:
+    """A month kept as a date cell shows as a date beside its row, not as a serial."""
+    wb = xlsxwriter.Workbook(str(tmp_path / "d.xlsx"))
+    ws = wb.add_worksheet("Data")
+    month = wb.add_format({"num_format": "mmm yyyy"})
+    ws.write_row(0, 0, ["month", "cost", "units"])
+    for i in range(10):
+        ws.write_datetime(1 + i, 0, dt.datetime(2026, 1 + i, 1), month)
+        ws.write_number(1 + i, 1, 500.0 + 12 * i + (i % 4))
+        ws.write_number(1 + i, 2, 10.0 + i)
+    for name, ref in {"sf_d_y": "=Data!$B$1:$B$11", "sf_d_x": "=Data!$C$1:$C$11",
+                      "sf_d_key": "=Data!$A$1:$A$11"}.items():
+        wb.define_name(name, ref)
+    wb.close()
+    refresh(tmp_path / "d.xlsx")
+    fitted = openpyxl.load_workbook(tmp_path / "d.xlsx")[sheet_title("d", "fitted")]
+    head = [c.value for c in fitted[4]]
+    cell = fitted.cell(5, head.index("month") + 1)
+    assert cell.number_format == "mmm yyyy" and cell.value.startswith("=IF(ISBLANK(")

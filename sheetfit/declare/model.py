@@ -708,7 +708,9 @@ def _read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like
     for a, c in _columns(areas):
         sv = values.sheet(a.sheet)
         name = sv.get(like.row1, c).text.strip() if header else ""
-        col = Column(name or col_letter(c), a.sheet, c, like.row1 + offset)
+        code = values.number_format(a.sheet, like.row1 + offset, c)
+        shown = None if not code or code.strip().lower() in ("general", "@") else code
+        col = Column(name or col_letter(c), a.sheet, c, like.row1 + offset, fmt=shown)
         cols.append(col)
         vals.append([_key_value(sv.get(col.row_of(i), c))
                      for i in range(like.n_rows - offset)])

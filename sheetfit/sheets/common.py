@@ -103,11 +103,15 @@ def put_keys(sheet: SheetPlan, row: int, col: int, keys: Keys | None, i: int,
 
 
 def key_styles(keys: Keys | None) -> list[str]:
-    """Number identifiers with decimals (amounts) get thousands separators; the rest as is."""
+    """Identifiers shown in their cells' own number format (a date as a date, an amount
+    as money); without one, numbers with decimals get thousands separators, the rest as is."""
     if keys is None:
         return []
     out = []
-    for col in keys.values:
+    for c, col in zip(keys.columns, keys.values, strict=True):
+        if c.fmt:
+            out.append("user:" + c.fmt)
+            continue
         vals = [v for v in col if isinstance(v, float)]
         amounts = bool(vals) and any(v != round(v) for v in vals)
         out.append(decimal_style(vals) if amounts else "key")
