@@ -43,6 +43,20 @@ SOURCE = ROOT / "extension" / "libreoffice"
 COMMAND_URL = "org.sheetfit.calc:refresh"
 SETTINGS = "/org.sheetfit.calc.Settings"
 SHEETFIT = Path(sys.executable).parent / "sheetfit"
+
+
+def _outside_venv_path() -> str:
+    """PATH without this virtual environment's bin folder.
+
+    With an activated venv first on PATH (as .ci/run has it), soffice with the Python
+    extension installed aborts at start with a DeploymentException (measured here:
+    exit 134 after 0.4 s; the same test passes with the folder left out). LibreOffice
+    is started from a desktop, not from inside a venv: the test starts it that way and
+    reaches sheetfit through SHEETFIT_COMMAND, as a user does.
+    """
+    venv_bin = str(Path(sys.executable).parent)
+    return os.pathsep.join(p for p in os.environ.get("PATH", "").split(os.pathsep)
+                           if p and p.rstrip("/") != venv_bin.rstrip("/"))
 #: the refresh time written on the index sheet differs between two refreshes
 STAMP = re.compile(r"\d{4}-\d{2}-\d{2} \d{2}:\d{2}:\d{2} UTC")
 MANIFEST_NS = "{http://openoffice.org/2001/manifest}"
@@ -148,7 +162,7 @@ def _install(info: EngineInfo, oxt: Path, base: Path) -> Path:
         capture_output=True,
         text=True,
         timeout=180,
-        env={**os.environ, "HOME": str(base)},
+        env={**os.environ, "HOME": str(base), "PATH": _outside_venv_path()},
         check=False,
         **drop,
     )
@@ -171,7 +185,8 @@ def calc() -> Iterator[Engine]:
     try:
         oxt = build_oxt.build(base / "sheetfit.oxt")
         profile = _install(info, oxt, base)
-        with Engine(info, profile_template=profile, env={"SHEETFIT_COMMAND": str(SHEETFIT)},
+        with Engine(info, profile_template=profile,
+                    env={"SHEETFIT_COMMAND": str(SHEETFIT), "PATH": _outside_venv_path()},
                     timeout=180.0) as running:
             yield running
     finally:
