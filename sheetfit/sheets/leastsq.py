@@ -18,7 +18,7 @@ from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
 from ..owned import sheet_title
-from ._ls_audit import Threshold, audit_caution, plan_audit
+from ._ls_audit import Threshold, plan_audit
 from ._ls_coef import (
     C_COEF,
     C_HC3,
@@ -193,13 +193,14 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         (f"sf_{tag}_resid", resid_rng),
         (f"sf_{tag}_loo", cs.ref(lay.figure_row("loo"), 1)),  # read by the charts
     ] + names
-    return Planned([cs, fs, rs] + ([audit[0]] if audit is not None else []), names)
+    return Planned([cs, fs, rs] + ([audit] if audit is not None else []), names)
 
 
 def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_col: int,
                 fit_col: int, fitted: np.ndarray, cs: SheetPlan,
-                level: float, lay: CoefLayout) -> tuple[SheetPlan, str | None] | None:
-    """The audit sheet when a threshold is set, and its caution (or None)."""
+                level: float, lay: CoefLayout) -> SheetPlan | None:
+    """The audit sheet when a threshold is set (its caution reaches the index and the
+    coefficient sheet through the method record's cautions)."""
     setting = model.settings.values.get("threshold")
     if setting is None:
         return None
@@ -211,12 +212,10 @@ def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_co
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else math.nan
     half = tq * sd * math.sqrt(1 + p / n) if sd is not None else math.nan
     rows = range(len(model.used))
-    sheet = plan_audit(
+    return plan_audit(
         model, [fs.ref(FIRST_ROW + i, obs_col, fixed=False) for i in rows],
         [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], fitted, threshold,
         cs.ref(lay.figure_row("sd used"), 1), sd, half, level)
-    thr = threshold.value * sd if threshold.per_sd and sd is not None else threshold.value
-    return sheet, audit_caution(thr, half, level)
 
 
 def _q(title: str) -> str:
