@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["Run", "Template", "template", "this_row"]
+__all__ = ["Part", "Run", "Template", "template", "this_row"]
 
 Scalar = float | int | str | bool | None
 Vector = Sequence[Any] | np.ndarray
@@ -30,6 +30,9 @@ class _ThisRow:
 
 #: Use in :func:`template` where the formula names its own row (``=B5-C5`` in row 5).
 this_row = _ThisRow()
+
+#: A piece of a template: literal text, a vector filling a placeholder, or ``this_row``.
+Part = str | Vector | _ThisRow
 
 
 @dataclass(frozen=True)
@@ -56,7 +59,7 @@ class Template:
         return [fmt(*t) for t in zip(*cols, strict=True)]
 
 
-def template(*parts: str | Vector | _ThisRow) -> Template:
+def template(*parts: Part) -> Template:
     """A template from literal text pieces and vectors, e.g.
     ``template("=", ref_prefix, data_rows, "-", this_row)``: text is taken literally
     (braces escaped), each vector fills one placeholder, ``this_row`` the cell's row."""

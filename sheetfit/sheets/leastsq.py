@@ -31,16 +31,20 @@ from ._ls_coef import (
     plan_coef_sheet,
 )
 from ._ls_rows import plan_influence
+from .columns import Part, template
 from .common import (
     FIRST_ROW,
     column_notes,
     fsum_sq,
     key_heads,
+    key_runs,
     key_styles,
     key_width,
     plan_left_out,
     plan_residual_sheet,
     put_keys,
+    ref_parts,
+    value_parts,
 )
 from .plan import Planned, SheetPlan, decimal_style
 
@@ -76,6 +80,21 @@ def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
     return "=" + "+".join(parts), value, terms
 
 
+def _predictions(coef: np.ndarray, coef_ref: list[str], intercept: bool,
+                 specs: list[tuple[int, int]], cells: list[tuple[Part, ...]],
+                 tvals: list[np.ndarray]) -> tuple[np.ndarray, list[list[Part]]]:
+    """:func:`_prediction` for every row at once: the fitted values in formula order
+    (intercept, then + coefficient × term, left to right: the same floating-point
+    operations, element by element) and each term's template parts."""
+    parts: list[list[Part]] = []
+    value = np.full(len(tvals[0]) if tvals else 0, float(coef[0]) if intercept else 0.0)
+    for k, (j, d) in enumerate(specs):
+        parts.append(list(cells[j]) + ([f"^{d}"] if d > 1 else []))
+        prod = float(coef[k + int(intercept)]) * np.asarray(tvals[k], dtype=float)
+        value = prod if (k == 0 and not intercept) else value + prod
+    return value, parts
+
+
 def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
                        version: str) -> Planned:
     """Plan the coefficient, fitted-value and residual sheets of a fitted model.
@@ -97,6 +116,10 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     level = float(model.settings.values.get("level", 0.95))
     specs = _term_values(model.X, degree)
     tvals = [model.X[:, j] ** d if d > 1 else model.X[:, j] for j, d in specs]
+    # the fitted sheet's term cells: a power as Python's float ** int computes it, row by
+    # row (numpy's x ** 2 is x * x, which can differ in the last bit)
+    term_vals = [np.array([v ** d for v in model.X[:, j].tolist()]) if d > 1
+                 else model.X[:, j].astype(float) for j, d in specs]
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
@@ -122,19 +145,23 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     fit_col = first_term + len(specs)
     term_styles = [decimal_style(t.tolist(), fmt=model.xs[j].fmt if d == 1 else None)
                    for t, (j, d) in zip(tvals, specs, strict=True)]
-    fitted = np.empty(n)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        fs.put(r, 0, int(y.row_of(int(idx))), style="row")
-        put_keys(fs, r, 1, keys, int(idx), kstyles)
-        fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", amount)
-        formula, value, terms_row = _prediction(
-            coef, coef_ref, intercept, specs, [c.value_ref(int(idx)) for c in model.xs],
-            model.X[i])
-        for k, (ref, tv) in enumerate(terms_row):
-            fs.put(r, first_term + k, tv, f"={ref}", term_styles[k])
-        fitted[i] = value
-        fs.put(r, fit_col, value, formula, derived)
+    used = np.asarray(model.used, dtype=np.int64)
+    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    key_runs(fs, FIRST_ROW, 1, keys, used, kstyles)
+    fs.run(obs_col, FIRST_ROW, model.Y.astype(float), template("=", *ref_parts(y, used)), amount)
+    fitted, term_parts = _predictions(coef, coef_ref, intercept, specs,
+                                      [value_parts(c, used) for c in model.xs], term_vals)
+    for k, parts in enumerate(term_parts):
+        fs.run(first_term + k, FIRST_ROW, term_vals[k],
+               template("=", *parts), term_styles[k])
+    fit_parts: list[Part] = ["="]
+    for k, parts in enumerate(term_parts):
+        if k or intercept:
+            fit_parts.append("+")
+        fit_parts += [coef_ref[k + int(intercept)], "*", *parts]
+    if intercept:
+        fit_parts.insert(1, coef_ref[0])
+    fs.run(fit_col, FIRST_ROW, fitted, template(*fit_parts), derived)
     fs.widths = {0: 9, fit_col: 16}
     column_notes(fs, {obs_col: "your data cell", fit_col: "coefficients × terms, left to right"})
     fs.freeze = (FIRST_ROW, 1 + nk)
@@ -147,7 +174,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     # --- residual sheet with the row diagnostics ----------------------------------------
     resid = model.Y - fitted  # what observed − fitted gives on the residual sheet
     rs = plan_residual_sheet(
-        model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted, resid,
+        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", np.arange(n) + FIRST_ROW + 1),
+        fitted, resid,
         "residual = observed − fitted, each a formula; to the right, how much each row "
         "moves the fit.", keys=model.keys)
     resid_rng = rs.col_range(rs.columns["resid"], FIRST_ROW, last)
