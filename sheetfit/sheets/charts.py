@@ -73,15 +73,6 @@ class Located:
     def __init__(self, planned: Planned) -> None:
         self.names = {n.lower(): t for n, t in planned.names}
         self._sheets = {s.title: s for s in planned.sheets}
-        self._values: dict[str, dict[tuple[int, int], Scalar]] = {}  # by sheet, on first use
-
-    def _value(self, title: str, row: int, col: int) -> Scalar:
-        table = self._values.get(title)
-        if table is None:
-            sheet = self._sheets.get(title)
-            table = {(c.row, c.col): c.value for c in sheet.cells} if sheet else {}
-            self._values[title] = table
-        return table.get((row, col))
 
     def has(self, name: str) -> bool:
         return name.lower() in self.names
@@ -99,7 +90,10 @@ class Located:
         c2 = col_index(m.group(5)) - 1 if m.group(5) else c1
         r2 = int(m.group(6)) - 1 if m.group(6) else r1
         q = quote_sheet(title)
-        return [[(f"{q}!{absolute(r, c)}", self._value(title, r, c))
+        sheet = self._sheets.get(title)
+        cols = [sheet.values_in(c, r1, r2) if sheet else [None] * (r2 - r1 + 1)
+                for c in range(c1, c2 + 1)]
+        return [[(f"{q}!{absolute(r, c)}", cols[c - c1][r - r1])
                  for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
 
     def column(self, name: str, j: int = 0) -> list[tuple[str, Scalar]]:

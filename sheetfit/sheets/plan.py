@@ -159,6 +159,7 @@ class SheetPlan:
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
+    _by_cell: dict[tuple[int, int], Cell] | None = field(default=None, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
     runs: list[Run] = field(default_factory=list)
 
@@ -249,12 +250,22 @@ class SheetPlan:
     def is_free(self, row: int, col: int) -> bool:
         return (row, col) not in self._taken and self._run_at(row, col) is None
 
+    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar]:
+        """Cached values planned in rows row1..row2 of a column (None where nothing is)."""
+        run = self._run_at(row1, col)
+        if run is not None and row2 <= run.last:
+            return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
+        return [self.value_at(r, col) for r in range(row1, row2 + 1)]
+
     def value_at(self, row: int, col: int) -> Scalar:
         """The cached value planned at a cell (None when nothing is planned there)."""
         run = self._run_at(row, col)
         if run is not None:
             return run.scalars(row - run.row0, row - run.row0 + 1)[0]
-        return next((c.value for c in self.loose if c.row == row and c.col == col), None)
+        if self._by_cell is None or len(self._by_cell) != len(self.loose):
+            self._by_cell = {(c.row, c.col): c for c in self.loose}
+        cell = self._by_cell.get((row, col))
+        return None if cell is None else cell.value
 
     def fit_columns(self) -> None:
         """Widen columns so header words never break mid-word and values fit.

@@ -12,7 +12,9 @@ value typed ``str``/``b``/``e`` like xlsxwriter does, every float with all its d
 from __future__ import annotations
 
 import re
+import string
 from collections.abc import Iterator, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -78,12 +80,49 @@ def _formula_cells(refs: list[str], forms: list[str], values: Sequence[object], 
     return out
 
 
+def _shifted(text: str, by: int) -> str:
+    """A format string with every positional field moved up by ``by`` (literals kept)."""
+    out = []
+    for literal, field, spec, conv in string.Formatter().parse(text):
+        out.append(literal.replace("{", "{{").replace("}", "}}"))
+        if field is not None:
+            out.append("{" + str(int(field) + by) + ("!" + conv if conv else "")
+                       + (":" + spec if spec else "") + "}")
+    return "".join(out)
+
+
+def _fast(run: Run, letter: str, s: str) -> str | None:
+    """One format string giving a whole cell from (row, *template vectors, value) when the
+    run's values are floats and its vectors numbers (no escaping per cell), else None."""
+    v = run.values
+    if not (isinstance(v, np.ndarray) and v.dtype.kind in "fiu"):
+        return None
+    t = run.formula
+    if t is None:
+        return f'<c r="{letter}{{0}}"{s}><v>{{1!r}}</v></c>'
+    if any(a is not None and not (isinstance(a, np.ndarray) and a.dtype.kind in "fiu")
+           for a in t.args):
+        return None
+    body = _shifted(_esc(with_prefixes(t.text[1:])), 1)
+    return f'<c r="{letter}{{0}}"{s}><f>{body}</f><v>{{{len(t.args) + 1}!r}}</v></c>'
+
+
 def _run_chunk(run: Run, a: int, b: int, style: int | None) -> list[str]:
     """Cell XML of items a..b-1 of a run (empty strings for unstyled blanks)."""
     letter = col_letter(run.col + 1)
     first = run.row0 + 1
-    refs = [f"{letter}{first + i}" for i in range(a, b)]
     s = f' s="{style}"' if style else ""
+    fast = _fast(run, letter, s)
+    rows = range(first + a, first + b)
+    if fast is not None:
+        vals = np.asarray(run.values[a:b], dtype=float).tolist()
+        t = run.formula
+        cols: list[Any] = [rows]
+        if t is not None:
+            cols += [rows if x is None else np.asarray(x)[a:b].tolist() for x in t.args]
+        fmt = fast.format
+        return [fmt(*c) for c in zip(*cols, vals, strict=True)]
+    refs = [f"{letter}{r}" for r in rows]
     values = run.scalars(a, b)
     t = run.formula
     if t is None:
@@ -153,21 +192,28 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
     ordered = sorted(runs, key=lambda u: u.col)
     for start in range(top, bottom + 1, CHUNK_ROWS):
         stop = min(bottom + 1, start + CHUNK_ROWS)  # sheet rows start … stop-1
-        parts: list[tuple[int, int, list[str]]] = []  # (first sheet row, column, cell XML)
+        size = stop - start
+        cols: list[list[str]] = []  # per run: cell XML of every row of the chunk ("" none)
+        by_col: list[int] = []
         for u in ordered:
             a, b = max(0, start - 1 - u.row0), min(u.n, stop - 1 - u.row0)
             if a < b:
-                parts.append((u.row0 + 1 + a, u.col + 1, _run_chunk(u, a, b, styles[u.style])))
+                lead = u.row0 + 1 + a - start
+                cols.append([""] * lead + _run_chunk(u, a, b, styles[u.style])
+                            + [""] * (size - lead - (b - a)))
+                by_col.append(u.col + 1)
         out = []
-        for r in range(start, stop):
-            cells = [(c, xml_[r - r0]) for r0, c, xml_ in parts if 0 <= r - r0 < len(xml_)]
-            attrs = f' r="{r}"'
+        for r, *cells in zip(range(start, stop), *cols, strict=True):
             if r in loose:
                 attrs, extra = loose[r]
-                cells = sorted(cells + extra, key=lambda t: t[0])
-            body = "".join(x for _, x in cells)
-            if body or r in loose:
+                merged = sorted([(c, x) for c, x in zip(by_col, cells, strict=True) if x]
+                                + extra, key=lambda t: t[0])
+                body = "".join(x for _, x in merged)
                 out.append(f"<row{attrs}>{body}</row>" if body else f"<row{attrs}/>")
+                continue
+            body = "".join(cells)
+            if body:
+                out.append(f'<row r="{r}">{body}</row>')
         if out:
             yield "".join(out).encode("utf-8")
     yield ("</sheetData>" + text[m.end():]).encode("utf-8")
