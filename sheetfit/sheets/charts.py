@@ -18,7 +18,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
-from ..a1 import absolute, col_index, quote_sheet
+from ..a1 import absolute, col_index, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..owned import sheet_title
@@ -93,8 +93,9 @@ class Located:
         sheet = self._sheets.get(title)
         cols = [sheet.values_in(c, r1, r2) if sheet else [None] * (r2 - r1 + 1)
                 for c in range(c1, c2 + 1)]
-        return [[(f"{q}!{absolute(r, c)}", cols[c - c1][r - r1])
-                 for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
+        heads = [f"{q}!${col_letter(c + 1)}$" for c in range(c1, c2 + 1)]
+        return [[(heads[j] + str(r + 1), cols[j][r - r1]) for j in range(c2 - c1 + 1)]
+                for r in range(r1, r2 + 1)]
 
     def column(self, name: str, j: int = 0) -> list[tuple[str, Scalar]]:
         """Column ``j`` of the range an output name holds."""

@@ -68,7 +68,8 @@ HOLDS, FAILS = "holds", "FAILS"
 
 def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
-    return math.fsum(float(a) * float(a) for a in v)
+    x = np.asarray(v, dtype=float)
+    return math.fsum((x * x).tolist())  # the same rounded products, summed exactly
 
 
 # --- identifiers ------------------------------------------------------------------------

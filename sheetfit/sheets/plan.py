@@ -77,11 +77,17 @@ def decimals_shown(values: Sequence[object], most: int = 4) -> int:
     Stands in for the user's own number format, which the reader does not expose: cost
     data kept to the cent give 2, whole counts give 0.
     """
-    nums = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)
-            and math.isfinite(float(v))]
+    if isinstance(values, np.ndarray) and values.dtype.kind == "f":
+        x = values[np.isfinite(values)]
+    elif all(type(v) is float for v in values):
+        x = np.array(values, dtype=float)
+        x = x[np.isfinite(x)]
+    else:
+        x = np.array([float(v) for v in values if isinstance(v, (int, float))
+                      and not isinstance(v, bool) and math.isfinite(float(v))], dtype=float)
     for d in range(most + 1):
-        if all(abs(v * 10 ** d - round(v * 10 ** d)) <= 1e-6 * max(1.0, abs(v) * 10 ** d)
-               for v in nums):
+        scaled = x * float(10 ** d)  # as v * 10 ** d, element by element
+        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-6 * np.maximum(1.0, np.abs(x) * float(10 ** d))):
             return d
     return most
 
