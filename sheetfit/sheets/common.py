@@ -260,9 +260,9 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np
         rs.put(3, c, h, style="head")
     ob, fc, rc = 1 + kw, 2 + kw, 3 + kw
     B, C = _letter(ob), _letter(fc)
-    amount = (decimal_style(model.Y.tolist(), fmt=model.y.fmt) if model.Y.dtype != object
+    amount = (decimal_style(model.Y, fmt=model.y.fmt) if model.Y.dtype != object
               else "num")
-    derived = (decimal_style(model.Y.tolist(), least=2, fmt=model.y.fmt)
+    derived = (decimal_style(model.Y, least=2, fmt=model.y.fmt)
                if model.Y.dtype != object else "num")
     used = np.asarray(model.used, dtype=np.int64)
     n = len(used)

@@ -125,8 +125,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     fs = SheetPlan(sheet_title(tag, "fitted"))
     lay = CoefLayout(p, 0 if model.new is None else model.new.n)
     coef_ref = [cs.ref(lay.first + k, C_COEF) for k in range(p)]
-    amount = decimal_style(model.Y.tolist(), fmt=y.fmt)
-    derived = decimal_style(model.Y.tolist(), least=2, fmt=y.fmt)
+    amount = decimal_style(model.Y, fmt=y.fmt)
+    derived = decimal_style(model.Y, least=2, fmt=y.fmt)
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
@@ -143,7 +143,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     obs_col = 1 + nk
     first_term = obs_col + 1
     fit_col = first_term + len(specs)
-    term_styles = [decimal_style(t.tolist(), fmt=model.xs[j].fmt if d == 1 else None)
+    term_styles = [decimal_style(t, fmt=model.xs[j].fmt if d == 1 else None)
                    for t, (j, d) in zip(tvals, specs, strict=True)]
     used = np.asarray(model.used, dtype=np.int64)
     fs.run(0, FIRST_ROW, used + y.first_row, style="row")
@@ -209,7 +209,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
         rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
-        amount_style=derived, answer_style=decimal_style(model.Y.tolist(), least=2, fmt=y.fmt,
+        amount_style=derived, answer_style=decimal_style(model.Y, least=2, fmt=y.fmt,
                                                          answer=True))
     audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level, lay)
     coef_rng = plan_coef_sheet(cs, d_in)
@@ -311,7 +311,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
-    x_styles = [decimal_style(new.X[:, j].tolist(), fmt=model.xs[j].fmt)
+    x_styles = [decimal_style(new.X[:, j], fmt=model.xs[j].fmt)
                 for j in range(new.X.shape[1])]
     for i in range(new.n):
         r = FIRST_ROW + i

@@ -71,14 +71,17 @@ for _d in range(10):
     STYLES[f"answer{_d}"] = {"bold": True, "num_format": STYLES[f"dec{_d}"]["num_format"]}
 
 
-def decimals_shown(values: Sequence[object], most: int = 4) -> int:
+def decimals_shown(values: Sequence[object] | np.ndarray, most: int = 4) -> int:
     """How many decimals the data show: the fewest (≤ ``most``) that write every value exactly.
 
     Stands in for the user's own number format, which the reader does not expose: cost
     data kept to the cent give 2, whole counts give 0.
     """
-    if isinstance(values, np.ndarray) and values.dtype.kind == "f":
-        x = values[np.isfinite(values)]
+    if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
+        x = values.astype(float)
+        x = x[np.isfinite(x)]
+    elif isinstance(values, np.ndarray):
+        return decimals_shown(values.tolist(), most)
     elif all(type(v) is float for v in values):
         x = np.array(values, dtype=float)
         x = x[np.isfinite(x)]
@@ -92,7 +95,7 @@ def decimals_shown(values: Sequence[object], most: int = 4) -> int:
     return most
 
 
-def decimal_style(values: Sequence[object], most: int = 4, answer: bool = False,
+def decimal_style(values: Sequence[object] | np.ndarray, most: int = 4, answer: bool = False,
                   least: int = 0, fmt: str | None = None) -> str:
     """The style for amounts like ``values``: the user's own number format ``fmt`` when
     their data cells have one (a plain-number format, see ``reader.formats``), else
@@ -287,16 +290,20 @@ class SheetPlan:
             vals = u.values
             if u.style in ("note", "title", "caution", "colnote", "flag") or not u.n:
                 continue
+            arr = isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu"
             if u.style in ("int", "row"):
-                nums = [abs(int(v)) for v in u.scalars(0, u.n)
-                        if isinstance(v, (int, float)) and not isinstance(v, bool)]
-                w = max(6, len(f"{max(nums, default=0):,}") + 3)
-            elif isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu":
+                nums = (np.abs(vals) if arr else np.array(  # type: ignore[arg-type]
+                    [abs(float(v)) for v in vals if isinstance(v, (int, float))
+                     and not isinstance(v, bool)], dtype=float))
+                w = max(6, len(f"{int(nums.max(initial=0)):,}") + 3)
+            elif arr:
                 w = 12
             else:
-                w = max((12 if isinstance(v, (int, float)) and not isinstance(v, bool)
-                         else min(40, len(str(v)) + 2) for v in vals if v is not None),
-                        default=0)
+                texts = [v for v in vals if type(v) is str]
+                w = max(12 if len(texts) < len(vals) and any(
+                            isinstance(v, (int, float)) and not isinstance(v, bool)
+                            for v in vals) else 0,
+                        min(40, max(map(len, texts), default=-2) + 2))
             need[u.col] = max(need.get(u.col, 0), w)
         taken = {(c.row, c.col) for c in self.loose if c.value not in (None, "")}
         for c in self.loose:
