@@ -154,20 +154,15 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     for k, parts in enumerate(term_parts):
         fs.run(first_term + k, FIRST_ROW, term_vals[k],
                template("=", *parts), term_styles[k])
-    fit_parts: list[Part] = ["="]
-    for k, parts in enumerate(term_parts):
-        if k or intercept:
-            fit_parts.append("+")
-        fit_parts += [coef_ref[k + int(intercept)], "*", *parts]
-    if intercept:
-        fit_parts.insert(1, coef_ref[0])
-    fs.run(fit_col, FIRST_ROW, fitted, template(*fit_parts), derived)
+    fs.run(fit_col, FIRST_ROW, fitted, template(*_sum_parts(coef_ref, intercept, term_parts)),
+           derived)
     fs.widths = {0: 9, fit_col: 16}
     column_notes(fs, {obs_col: "your data cell", fit_col: "coefficients × terms, left to right"})
     fs.freeze = (FIRST_ROW, 1 + nk)
     rule_fit: RuleFit | None = None
     if model.rule is not None:
-        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived)
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived,
+                                     term_vals)
     term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
@@ -255,21 +250,34 @@ def _col_abs(col: int, r1: int, r2: int) -> str:
 
 
 def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
-                      intercept: bool, col: int, last: int, style: str) -> RuleFit:
+                      intercept: bool, col: int, last: int, style: str,
+                      term_vals: list[np.ndarray]) -> RuleFit:
     """The rule in use today, applied to every data row (its coefficients × the data)."""
     rule = model.rule
     if rule is None:
         raise ValueError("_plan_rule_column needs a declared rule")
     fs.put(3, col, "rule in use: fitted", style="head")
-    values = np.empty(len(model.used))
-    for i, idx in enumerate(model.used):
-        formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
-                                        [c.value_ref(int(idx)) for c in model.xs], model.X[i])
-        values[i] = value
-        fs.put(FIRST_ROW + i, col, value, formula, style)
+    used = np.asarray(model.used, dtype=np.int64)
+    values, parts = _predictions(np.asarray(rule.values, dtype=float), list(rule.cells),
+                                 intercept, specs, [value_parts(c, used) for c in model.xs],
+                                 term_vals)
+    fs.run(col, FIRST_ROW, values, template(*_sum_parts(list(rule.cells), intercept, parts)),
+           style)
     fs.widths[col] = 16
     return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
                    fs.col_range(col, FIRST_ROW, last), values)
+
+
+def _sum_parts(coef_ref: list[str], intercept: bool, term_parts: list[list[Part]]) -> list[Part]:
+    """Template parts of intercept + coefficient × term + …, as ``_prediction`` writes it."""
+    out: list[Part] = ["="]
+    if intercept:
+        out.append(coef_ref[0])
+    for k, parts in enumerate(term_parts):
+        if k or intercept:
+            out.append("+")
+        out += [coef_ref[k + int(intercept)], "*", *parts]
+    return out
 
 
 def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
