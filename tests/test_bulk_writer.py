@@ -16,7 +16,7 @@ import pytest
 
 import sheetfit.refresh as refresh_mod
 from sheetfit.reader.package import open_package
-from sheetfit.sheets.columns import template, this_row
+from sheetfit.sheets.columns import Run, template, this_row
 from sheetfit.sheets.plan import BookPlan, SheetPlan
 from sheetfit.writer import _bulk
 from sheetfit.writer.graft import OutputName, graft
@@ -61,6 +61,11 @@ def _synthetic(n: int) -> BookPlan:
           template('=IF(B', this_row, '>0,"x&y",T.DIST.2T(1,', rows, '))'), "num")
     s.run(4, 4, [None] * n, style="pct")  # styled blanks
     s.put(4 + min(n - 1, 10), 5, "loose beside a run", style="note")  # inside the runs' rows
+    # long formulas moving down row by row: written as shared formulas on the bulk path
+    s.run(6, 4, vals * 2, template('=IF(ISNUMBER(B', this_row, '),B', this_row,
+                                   '*2+0*Data!$A$1,0)+0*LEN("pad text")'), "num")
+    s.run(7, 4, [float(i) if i % 3 else "" for i in range(n)],
+          template('=IF(ISNUMBER(Data!A', rows, '),Data!A', rows, '*3,0)&""&"padding"'), "num")
     s.put(4 + n + 1, 1, float(vals.sum()), f"=SUM(B5:B{4 + n})", "num")
     s.heights[3] = 30.0
     s.freeze = (4, 1)
@@ -89,8 +94,10 @@ def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int) -> 
     assert a[("sf syn rows", f"F{5 + min(n - 1, 10)}")][0] == "loose beside a run"
     with zipfile.ZipFile(outs[0]) as z:
         xml = next(z.read(i) for i in z.infolist() if i.filename.endswith("sheet2.xml"))
-    assert f'<dimension ref="A1:F{6 + n}"/>'.encode() in xml
+    assert f'<dimension ref="A1:H{6 + n}"/>'.encode() in xml
     assert b"_xlfn.T.DIST.2T(" in xml and b"spans=" not in xml
+    if n > 1:  # openpyxl translated the shared formulas into the full ones compared above
+        assert xml.count(b't="shared" ref=') == 2
 
 
 @pytest.mark.parametrize("book", sorted(p.name for p in EXAMPLES.glob("*.xlsx")))
@@ -121,3 +128,19 @@ def test_user_entries_are_copied_compressed_as_they_were(tmp_path: Path) -> None
             o = zo.getinfo(i.filename)
             assert (o.CRC, o.compress_size, o.compress_type) == (
                 i.CRC, i.compress_size, i.compress_type)
+
+
+def test_only_formulas_that_move_down_with_the_row_are_shared() -> None:
+    rows = np.arange(7, 12)
+    pad = '+0*LEN("a long enough formula text")'
+
+    def run(*parts: object) -> Run:
+        return Run(2, 4, np.zeros(5), "num", template(*parts))  # type: ignore[arg-type]
+
+    assert _bulk.shareable(run("=Data!B", rows, "*'sf m coef'!$B$7", pad))
+    assert _bulk.shareable(run("=IF(C", this_row, '="","",B', this_row, ")", pad))
+    assert not _bulk.shareable(run("=T.DIST.2T(1,", rows, ")", pad))  # a number, not a row
+    assert not _bulk.shareable(run("=Data!B", rows, "*B7", pad))  # a relative literal row
+    assert not _bulk.shareable(run("=Data!B", rows[[0, 1, 2, 4, 3]], pad))  # not contiguous
+    assert not _bulk.shareable(run("=Data!B", rows))  # short: written in full
+    assert not _bulk.shareable(run("=Data!B", rows, "*Data!$B$2+LOG10(", this_row, ")", pad))

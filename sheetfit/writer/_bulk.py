@@ -62,23 +62,58 @@ def _value_cells(refs: list[str], values: Sequence[object], s: str) -> list[str]
     return out
 
 
-def _formula_cells(refs: list[str], forms: list[str], values: Sequence[object], s: str) -> list[str]:
+def _formula_cells(refs: list[str], felems: list[str], values: Sequence[object],
+                   s: str) -> list[str]:
+    """Formula cells from their ``<f>`` elements and cached values (typed as xlsxwriter does)."""
     out = []
-    for ref, f, v in zip(refs, forms, values, strict=True):
+    for ref, f, v in zip(refs, felems, values, strict=True):
         if isinstance(v, float):
-            out.append(f'<c r="{ref}"{s}><f>{f}</f><v>{v!r}</v></c>')
+            out.append(f'<c r="{ref}"{s}>{f}<v>{v!r}</v></c>')
         elif isinstance(v, bool):  # as the general renderer caches a logical: its text
-            out.append(f'<c r="{ref}"{s} t="str"><f>{f}</f><v>{"TRUE" if v else "FALSE"}</v></c>')
+            out.append(f'<c r="{ref}"{s} t="str">{f}<v>{"TRUE" if v else "FALSE"}</v></c>')
         elif v is None or isinstance(v, int):
-            out.append(f'<c r="{ref}"{s}><f>{f}</f><v>{0 if v is None else v}</v></c>')
+            out.append(f'<c r="{ref}"{s}>{f}<v>{0 if v is None else v}</v></c>')
         elif v == "":
-            out.append(f'<c r="{ref}"{s} t="str"><f>{f}</f><v></v></c>')
+            out.append(f'<c r="{ref}"{s} t="str">{f}<v></v></c>')
         elif v in _ERRORS:
-            out.append(f'<c r="{ref}"{s} t="e"><f>{f}</f><v>{v}</v></c>')
+            out.append(f'<c r="{ref}"{s} t="e">{f}<v>{v}</v></c>')
         else:
-            out.append(f'<c r="{ref}"{s} t="str"><f>{f}</f><v>{_esc(str(v))}</v></c>')
+            out.append(f'<c r="{ref}"{s} t="str">{f}<v>{_esc(str(v))}</v></c>')
     return out
 
+
+#: Formulas at least this long are written once per run as a shared formula (OOXML
+#: §18.3.1.40: the first cell holds the text, the others point at it); shorter ones, such
+#: as a plain reference to a data cell that ``sheetfit check`` reads back, in full.
+SHARE_MIN = 40
+_CELL_TOKEN = re.compile(r"(?<![A-Za-z0-9_$.])\$?[A-Za-z]{1,3}[0-9]+(?![0-9(])")
+_ROW_PART = re.compile(r"(?:^|[^A-Za-z0-9_.])\$?[A-Za-z]{1,3}$")
+_TEXT_CONST = re.compile(r'"[^"]*"')
+_QUOTED_SHEET = re.compile(r"'[^']*'")
+
+
+def shareable(run: Run) -> bool:
+    """Whether every cell's formula is the first one's moved down row by row: each
+    placeholder is the row of a relative reference and its vector goes up by one a row,
+    and the literal text holds no reference with a relative row (text constants and
+    quoted sheet names aside). Anything unsure is written in full."""
+    t = run.formula
+    if t is None or run.n < 2 or len(t.text) < SHARE_MIN:
+        return False
+    for a in t.args:
+        if a is None:
+            continue
+        if not (isinstance(a, np.ndarray) and a.dtype.kind in "iu" and a.ndim == 1):
+            return False
+        if not np.all(np.diff(a) == 1):
+            return False
+    literal = []
+    for text, field, _, _ in string.Formatter().parse(t.text):
+        literal.append(text)
+        if field is not None and not _ROW_PART.search(text):
+            return False  # a placeholder that is not the row of a reference
+    bare = _QUOTED_SHEET.sub("", _TEXT_CONST.sub("", "\x00".join(literal)))
+    return _CELL_TOKEN.search(bare) is None
 
 def _shifted(text: str, by: int) -> str:
     """A format string with every positional field moved up by ``by`` (literals kept)."""
@@ -97,9 +132,11 @@ def _reprs(values: Any) -> list[str]:
     return repr(x)[1:-1].split(", ") if x else []
 
 
-def _piece(run: Run, a: int, b: int, style: int | None) -> tuple[str, list[Any]]:
+def _piece(run: Run, a: int, b: int, style: int | None,
+           si: int | None = None) -> tuple[str, list[Any]]:
     """Items a..b-1 of a run as a format fragment (placeholders from 0) and the columns
-    that fill it, one entry per row: the cell's XML, or "" for an unstyled blank."""
+    that fill it, one entry per row: the cell's XML, or "" for an unstyled blank. With
+    ``si`` the run is written as shared formula number ``si``."""
     letter = col_letter(run.col + 1)
     first = run.row0 + 1
     s = f' s="{style}"' if style else ""
@@ -108,7 +145,10 @@ def _piece(run: Run, a: int, b: int, style: int | None) -> tuple[str, list[Any]]
     numeric = isinstance(v, np.ndarray) and v.dtype.kind in "fiu"
     if numeric and t is None:
         return f'<c r="{letter}{{0}}"{s}><v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
-    if numeric and t is not None and all(
+    follower = f'<f t="shared" si="{si}"/>'
+    if si is not None and a > 0 and numeric:
+        return f'<c r="{letter}{{0}}"{s}>{follower}<v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
+    if si is None and numeric and t is not None and all(
             x is None or (isinstance(x, np.ndarray) and x.dtype.kind in "fiu") for x in t.args):
         body = _shifted(_esc(with_prefixes(t.text[1:])), 1)
         cols: list[Any] = [rows] + [rows if x is None else np.asarray(x)[a:b].tolist()
@@ -119,17 +159,25 @@ def _piece(run: Run, a: int, b: int, style: int | None) -> tuple[str, list[Any]]
     values = run.scalars(a, b)
     if t is None:
         return "{0}", [_value_cells(refs, values, s)]
+    if si is not None:
+        felems = [follower] * (b - a)
+        if a == 0:
+            text = _esc(with_prefixes(t.render(first, 0, 1)[0][1:]))
+            felems[0] = (f'<f t="shared" ref="{letter}{first}:{letter}{run.last + 1}" '
+                         f'si="{si}">{text}</f>')
+        return "{0}", [_formula_cells(refs, felems, values, s)]
     if any(x is not None and not isinstance(x, np.ndarray)
            and any(isinstance(e, str) for e in x[a:b]) for x in t.args):
         forms = [_esc(with_prefixes(f[1:])) for f in t.render(first, a, b)]  # text: escape each
     else:  # numbers only: prefix and escape the template once
         forms = Template(_esc(with_prefixes(t.text[1:])), t.args).render(first, a, b)
-    return "{0}", [_formula_cells(refs, forms, values, s)]
+    return "{0}", [_formula_cells(refs, [f"<f>{f}</f>" for f in forms], values, s)]
 
 
-def _run_chunk(run: Run, a: int, b: int, style: int | None) -> list[str]:
+def _run_chunk(run: Run, a: int, b: int, style: int | None,
+               si: int | None = None) -> list[str]:
     """Cell XML of items a..b-1 of a run (empty strings for unstyled blanks)."""
-    frag, cols = _piece(run, a, b, style)
+    frag, cols = _piece(run, a, b, style, si)
     if frag == "{0}":
         return list(cols[0])
     fmt = frag.format
@@ -137,13 +185,13 @@ def _run_chunk(run: Run, a: int, b: int, style: int | None) -> list[str]:
 
 
 def _uniform(runs: Sequence[Run], start: int, stop: int,
-             styles: dict[str, int | None]) -> str:
+             styles: dict[str, int | None], shared: dict[int, int]) -> str:
     """Rows start … stop-1 when every run covers all of them and no loose cell is there:
     one format call per row over the runs' fragments side by side."""
     frags, cols = ['<row r="{0}">'], [range(start, stop)]
     for u in runs:
         a = start - 1 - u.row0
-        frag, more = _piece(u, a, a + stop - start, styles[u.style])
+        frag, more = _piece(u, a, a + stop - start, styles[u.style], shared.get(id(u)))
         frags.append(_shifted(frag, len(cols)))
         cols += more
     fmt = ("".join(frags) + "</row>").format
@@ -205,13 +253,14 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
     else:
         top, bottom = min(loose, default=1), max(loose, default=0)
     ordered = sorted(runs, key=lambda u: u.col)
+    shared = {id(u): k for k, u in enumerate(u for u in ordered if shareable(u))}
     for start in range(top, bottom + 1, CHUNK_ROWS):
         stop = min(bottom + 1, start + CHUNK_ROWS)  # sheet rows start … stop-1
         size = stop - start
         inside = [u for u in ordered if u.row0 + 1 <= stop - 1 and u.last + 1 >= start]
         if inside and all(u.row0 + 1 <= start and u.last + 1 >= stop - 1 for u in inside) \
                 and not any(start <= r < stop for r in loose):
-            yield _uniform(inside, start, stop, styles).encode("utf-8")
+            yield _uniform(inside, start, stop, styles, shared).encode("utf-8")
             continue
         cols: list[list[str]] = []  # per run: cell XML of every row of the chunk ("" none)
         by_col: list[int] = []
@@ -219,7 +268,7 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
             a, b = max(0, start - 1 - u.row0), min(u.n, stop - 1 - u.row0)
             if a < b:
                 lead = u.row0 + 1 + a - start
-                cols.append([""] * lead + _run_chunk(u, a, b, styles[u.style])
+                cols.append([""] * lead + _run_chunk(u, a, b, styles[u.style], shared.get(id(u)))
                             + [""] * (size - lead - (b - a)))
                 by_col.append(u.col + 1)
         out = []
