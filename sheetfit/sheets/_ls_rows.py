@@ -71,9 +71,14 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
     else:
         st_num = ck_num = np.zeros(n)
     has_st = ok & (sd_value is not None)
-    st = [float(v) if k else "" for v, k in zip(st_num.tolist(), has_st.tolist(), strict=True)]
-    ck = [float(v) if k else "" for v, k in zip(ck_num.tolist(), has_st.tolist(), strict=True)]
-    pr = [float(v) if k else "" for v, k in zip(pr_num.tolist(), ok.tolist(), strict=True)]
+    def cached(v: np.ndarray, have: np.ndarray) -> np.ndarray | list[float | str]:
+        """The values as an array when every row has one (the writer's fast path), else a
+        list with blanks as empty text, which is what the formula gives there."""
+        if have.all():
+            return v
+        return [float(x) if k else "" for x, k in zip(v.tolist(), have.tolist(), strict=True)]
+
+    st, ck, pr = cached(st_num, has_st), cached(ck_num, has_st), cached(pr_num, ok)
     out_ = has_st & (np.abs(st_num) > STUDENT_LIMIT)
     infl_ = has_st & (ck_num > cook_lim)
     high = h > lev_lim
@@ -97,7 +102,8 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         "&IF(", *big_c, ",IF(", *big_s, ',", ","")&"influential","")',
         f"&IF({L}", r, f">2*{p}/{n},IF(OR(", *big_s, ",", *big_c, '),", ","")&"high leverage","")'),
         "flag")
-    press: list[float | None] = [v if isinstance(v, float) else None for v in pr]
+    press: list[float | None] = [v if isinstance(v, float) else None
+                                 for v in (pr.tolist() if isinstance(pr, np.ndarray) else pr)]
     last = FIRST_ROW + n
     rs.put(last + 1, lev_c - 1, "sum of leverages (= p)", style="label")
     lev_sum = math.fsum(h.tolist())

@@ -85,7 +85,7 @@ def _formula_cells(refs: list[str], felems: list[str], values: Sequence[object],
 #: Formulas at least this long are written once per run as a shared formula (OOXML
 #: §18.3.1.40: the first cell holds the text, the others point at it); shorter ones, such
 #: as a plain reference to a data cell that ``sheetfit check`` reads back, in full.
-SHARE_MIN = 40
+SHARE_MIN = 24
 _CELL_TOKEN = re.compile(r"(?<![A-Za-z0-9_$.])\$?[A-Za-z]{1,3}[0-9]+(?![0-9(])")
 _ROW_PART = re.compile(r"(?:^|[^A-Za-z0-9_.])\$?[A-Za-z]{1,3}$")
 _TEXT_CONST = re.compile(r'"[^"]*"')
