@@ -1,0 +1,168 @@
+"""The data rows of a model: its columns, which rows are used, the reasons others are left
+out, and the arrays the fit takes (text attributes expanded into indicators)."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from ..a1 import cell_ref, col_letter
+from ..errors import Context, DataError
+from ..fit.totals import find_totals
+from ..fit.totals import reason as totals_reason
+from ..labels import label_text
+from ..reader.formats import amount_format
+from ..reader.package import DefinedName
+from ..reader.values import BLANK, NUMBER, TEXT, BookValues, SheetValues
+from ..words import clip
+from .data import Column, LeftOut, describe_value
+from .levels import Coding, indicators, is_level
+from .refs import Area
+
+__all__ = [
+    "check_headers",
+    "check_numeric_columns",
+    "expand",
+    "leave_out_totals",
+    "make_column",
+    "read_rows",
+]
+
+
+def check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
+                           dx: DefinedName, file: str) -> None:
+    """An attribute column without a single number is a declaration mistake, not data."""
+    for c in xcols:
+        sv = values.sheet(c.sheet)
+        kinds = [sv.get(c.row_of(i), c.col) for i in range(n_rows)]
+        if not any(v.kind == NUMBER for v in kinds):
+            first = next((v for v in kinds if v.kind != BLANK), None)
+            what = describe_value(first) if first else "only blanks"
+            raise DataError(
+                f"attribute '{clip(c.name)}' holds no numbers ({what} ...); distances and "
+                "fits need numeric attributes",
+                Context(file, dx.name, c.sheet, c.span(0, n_rows - 1)),
+                hint="code the attribute as numbers or leave it out of x",
+            )
+
+
+def make_column(a: Area, col: int, header: bool, values: BookValues, offset: int) -> Column:
+    name = values.sheet(a.sheet).get(a.row1, col).text.strip() if header else col_letter(col)
+    fmt = amount_format(values.number_format(a.sheet, a.row1 + offset, col))
+    return Column(name, a.sheet, col, a.row1 + offset, fmt=fmt)
+
+
+def check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
+    seen: dict[str, Column] = {}
+    for c in cols:
+        key = c.name.casefold()
+        if key in seen:
+            first = seen[key]
+            raise DataError(
+                f"two attribute columns are both called '{clip(c.name)}' "
+                f"({cell_ref(first.first_row - 1, first.col)} and "
+                f"{cell_ref(c.first_row - 1, c.col)})",
+                Context(file, d.name, c.sheet, cell_ref(c.first_row - 1, c.col)),
+                hint="give each attribute column its own header",
+            )
+        seen[key] = c
+
+
+def read_rows(
+    ycol: Column, xcols: list[Column], n: int, values: BookValues, labels: bool = False,
+    text: list[bool] | None = None,
+) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray, dict[int, list[str]]]:
+    """Used row indices, left-out rows, y (floats, or labels when ``labels``), X, levels.
+
+    Attribute j with ``text[j]`` is a text attribute: its X column is nan and the levels
+    of the used rows are returned under key j (``declare/levels.py``).
+    """
+    cols = [ycol] + xcols
+    text = text or [False] * len(xcols)
+    sheets: list[SheetValues] = [values.sheet(c.sheet) for c in cols]
+    data = np.empty((n, len(cols)))
+    ylab: list[object] = [None] * n
+    levels: list[list[str]] = [[""] * n for _ in xcols]
+    ok = np.ones(n, dtype=bool)
+    left: list[LeftOut] = []
+    for i in range(n):
+        for j, (c, sv) in enumerate(zip(cols, sheets)):
+            v = sv.get(c.row_of(i), c.col)
+            if j == 0 and labels and v.kind in (NUMBER, TEXT) and (v.kind == NUMBER
+                                                                   or v.text.strip()):
+                ylab[i] = v.number if v.kind == NUMBER else v.text
+                data[i, 0] = 0.0
+                continue
+            if j > 0 and text[j - 1]:
+                if is_level(v):
+                    levels[j - 1][i] = v.text
+                    data[i, j] = np.nan
+                    continue
+                ok[i] = False
+                what = (f"the number {clip(label_text(v.number), 20)}" if v.kind == NUMBER
+                        else describe_value(v))
+                left.append(LeftOut(i, ycol.row_of(i),
+                                    f"{what} in text attribute '{clip(c.name)}' ({c.cell(i)})"))
+                break
+            if v.kind != NUMBER:
+                ok[i] = False
+                role = "y" if j == 0 else f"'{clip(c.name)}'"
+                left.append(LeftOut(i, ycol.row_of(i),
+                                    f"{describe_value(v)} in {role} ({c.cell(i)})"))
+                break
+            data[i, j] = v.number
+    used = np.flatnonzero(ok)
+    if labels:
+        Y = np.empty(len(used), dtype=object)
+        Y[:] = [ylab[i] for i in used]
+    else:
+        Y = data[used, 0].copy()
+    texts = {j: [levels[j][i] for i in used] for j, t in enumerate(text) if t}
+    return used, left, Y, data[used, 1:].copy(), texts
+
+
+def expand(xcols: list[Column], X: np.ndarray, texts: dict[int, list[str]],
+            codings: dict[int, Coding]) -> tuple[list[Column], np.ndarray]:
+    """Each text attribute replaced, in place, by its indicator columns."""
+    cols: list[Column] = []
+    blocks: list[np.ndarray] = []
+    for j, c in enumerate(xcols):
+        if j in codings:
+            cols += [replace(c, name=f"{c.name} = {lv}", level=lv) for lv in codings[j].levels]
+            blocks.append(indicators(texts[j], codings[j]))
+        else:
+            cols.append(c)
+            blocks.append(X[:, j:j + 1])
+    return cols, np.hstack(blocks)
+
+
+def leave_out_totals(
+    ycol: Column, used: np.ndarray, left: list[LeftOut], Y: np.ndarray, X: np.ndarray,
+    labels: bool, some_text: bool = False,
+) -> tuple[np.ndarray, list[LeftOut]]:
+    """Which used rows to keep, leaving out rows that look like totals of the rows above.
+
+    Compared: y and every numeric attribute (only the attributes when y holds class
+    labels; text attributes never). With a single column to compare, chance equalities
+    are too common to call a row a total, so nothing is left out (``sheetfit.fit.totals``
+    has the rule). Returns the mask over ``used`` and the left-out list with the totals.
+    """
+    keep = np.ones(len(used), dtype=bool)
+    Z = X if labels else np.column_stack([Y, X])
+    if Z.shape[1] < 2 or len(used) == 0:
+        return keep, left
+    totals = find_totals(Z)
+    if not totals:
+        return keep, left
+    attrs = "every numeric attribute" if some_text else "every attribute"
+    what = f"{attrs} equals its sum" if labels else f"y and {attrs} equal their sums"
+    left = list(left)
+    for t in totals:
+        keep[t.row] = False
+        r1, r2 = ycol.row_of(int(used[t.first])), ycol.row_of(int(used[t.last]))
+        i = int(used[t.row])
+        left.append(LeftOut(i, ycol.row_of(i), totals_reason(r1, r2, t, what)))
+    left.sort(key=lambda lo: lo.index)
+    return keep, left
+
