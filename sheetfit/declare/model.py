@@ -34,7 +34,7 @@ from .data import (
     RuleCells,
     describe_value,
 )
-from .fingerprint import record_inputs, settings_text
+from .fingerprint import DigestMemo, record_inputs, settings_text
 from .levels import Coding, code_levels, text_columns
 from .ranges import (
     Decl,
@@ -51,6 +51,7 @@ from .roles import read_keys, read_new, read_rule, read_settings
 from .rows import (
     check_headers,
     check_numeric_columns,
+    data_columns,
     expand,
     leave_out_totals,
     make_column,
@@ -107,11 +108,12 @@ def find_models(pkg: Package, values: BookValues, file: str,
             hint="define names sf_<model>_y and sf_<model>_x pointing at the response "
             "and attribute cells",
         )
-    return [_read_model(decls[k], pkg, values, file, methods) for k in sorted(decls)]
+    memo: DigestMemo = {}  # cell digests of ranges several models share, computed once
+    return [_read_model(decls[k], pkg, values, file, methods, memo) for k in sorted(decls)]
 
 
 def _read_model(decl: Decl, pkg: Package, values: BookValues, file: str,
-                methods: Mapping[str, MethodReading]) -> ModelData:
+                methods: Mapping[str, MethodReading], memo: DigestMemo) -> ModelData:
     tag = decl.tag
     for role in ("y", "x"):
         if role not in decl.names:
@@ -151,10 +153,9 @@ def _read_model(decl: Decl, pkg: Package, values: BookValues, file: str,
     ycol = make_column(ya, ya.col1, header, values, offset)
     xcols = [make_column(a, c, header, values, offset) for a, c in x_cols]
     check_headers(xcols, dx, file)
-    cat = (text_columns([[values.sheet(c.sheet).get(c.row_of(i), c.col) for i in range(n_rows)]
-                         for c in xcols])
-           if method.text_attributes else [False] * len(xcols))
-    used, left, Y, X, texts = read_rows(ycol, xcols, n_rows, values, method.labels, cat)
+    cells = data_columns([ycol] + xcols, n_rows, values)
+    cat = text_columns(cells[1:]) if method.text_attributes else [False] * len(xcols)
+    used, left, Y, X, texts = read_rows(ycol, xcols, cells, method.labels, cat)
     num = [j for j, t in enumerate(cat) if not t]
     keep, left = leave_out_totals(ycol, used, left, Y, X[:, num], method.labels,
                                    len(num) < len(cat))
@@ -173,7 +174,8 @@ def _read_model(decl: Decl, pkg: Package, values: BookValues, file: str,
             "the declared ranges hold no data rows yet", ctx,
             hint="type or paste your rows under the headers",
         )
-    check_numeric_columns([c for c, t in zip(xcols, cat) if not t], n_rows, values, dx, file)
+    check_numeric_columns([c for c, t in zip(xcols, cat) if not t],
+                          [cv for cv, t in zip(cells[1:], cat) if not t], n_rows, dx, file)
     if len(used) == 0:
         raise DataError(
             f"no rows with numbers in both y and x ({len(left)} rows, all left out)", ctx,
@@ -212,6 +214,6 @@ def _read_model(decl: Decl, pkg: Package, values: BookValues, file: str,
     if method.check is not None:
         method.check(model)
     used_settings = settings_text(settings.values, ["method"] + [r.name for r in method.rules])
-    model.record = record_inputs(tag, ranges, values, used_settings, INPUT_ROLES)
+    model.record = record_inputs(tag, ranges, values, used_settings, INPUT_ROLES, memo)
     return model
 

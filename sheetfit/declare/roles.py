@@ -9,15 +9,16 @@ import numpy as np
 
 from ..a1 import cell_ref, col_letter, quote_sheet
 from ..errors import Context, DataError, DeclarationError
+from ..reader.columns import CODE
 from ..reader.package import DefinedName, Package
-from ..reader.values import BLANK, NUMBER, TEXT, BookValues, Value
+from ..reader.values import BLANK, NUMBER, TEXT, BookValues, ColumnValues, Value
 from ..settings import MethodSettings, Settings, parse_settings
 from ..words import clip
 from .data import Column, Keys, KeyValue, NewRows, RuleCells, describe_value
 from .levels import Coding, is_level
 from .ranges import Decl, Ranges, areas_of, columns_of, has_header, last_row, refuse_unsaved, trim
 from .refs import Area
-from .rows import expand, make_column
+from .rows import data_columns, expand, make_column
 
 __all__ = ["read_keys", "read_new", "read_rule", "read_settings"]
 
@@ -57,22 +58,30 @@ def read_new(
                     hint="put the new-row columns in the order of x",
                 )
     n = rows.pop() - offset
+    cells = data_columns(cols, n, values)
     X = np.empty((n, len(cols)))
-    texts: dict[int, list[str]] = {j: [] for j in codings}
-    for i in range(n):
-        for j, c in enumerate(cols):
-            v = values.sheet(c.sheet).get(c.row_of(i), c.col)
-            if j in codings:
-                texts[j].append(_new_level(v, codings[j], c, i, d, file))
-                X[i, j] = np.nan
-                continue
-            if v.kind != NUMBER:
-                raise DataError(
-                    f"a new row holds {describe_value(v)} where a number is needed",
-                    Context(file, d.name, c.sheet, cell_ref(c.row_of(i), c.col)),
-                    hint="fill it in or shorten the range of new rows",
-                )
-            X[i, j] = v.number
+    bad = np.zeros((n, len(cols)), dtype=bool)
+    texts: dict[int, list[str]] = {}
+    for j, cv in enumerate(cells):
+        if j in codings:
+            found = [codings[j].match(cv.text[i]) if level else None
+                     for i, level in enumerate(cv.levels().tolist())]
+            bad[:, j] = [lv is None for lv in found]
+            texts[j] = [lv or "" for lv in found]
+            X[:, j] = np.nan
+        else:
+            bad[:, j] = ~cv.of_kind(NUMBER)
+            X[:, j] = cv.number
+    if bad.any():  # the first unusable cell, row by row, left to right
+        i, j = divmod(int(np.flatnonzero(bad.ravel())[0]), len(cols))
+        c, v = cols[j], cells[j].value(i)
+        if j in codings:
+            _new_level(v, codings[j], c, i, d, file)  # raises, saying why
+        raise DataError(
+            f"a new row holds {describe_value(v)} where a number is needed",
+            Context(file, d.name, c.sheet, cell_ref(c.row_of(i), c.col)),
+            hint="fill it in or shorten the range of new rows",
+        )
     if n == 0:
         raise DataError("the new rows range holds no rows", Context(file, d.name))
     keys = (read_keys(decl.names["newkey"], pkg, values, file, areas[0], header, ranges,
@@ -130,8 +139,7 @@ def read_keys(d: DefinedName, pkg: Package, values: BookValues, file: str, like:
         shown = None if not code or code.strip().lower() in ("general", "@") else code
         col = Column(name or col_letter(c), a.sheet, c, like.row1 + offset, fmt=shown)
         cols.append(col)
-        vals.append([_key_value(sv.get(col.row_of(i), c))
-                     for i in range(like.n_rows - offset)])
+        vals.append(_key_values(data_columns([col], like.n_rows - offset, values)[0]))
     return Keys(cols, vals)
 
 
@@ -158,12 +166,12 @@ def read_rule(d: DefinedName, pkg: Package, values: BookValues, file: str) -> Ru
     return RuleCells(d.name, cells, np.array(nums))
 
 
-def _key_value(v: Value) -> KeyValue:
-    if v.kind == NUMBER:
-        return v.number
-    if v.kind == BLANK:
-        return None
-    return v.text
+def _key_values(cv: ColumnValues) -> list[KeyValue]:
+    """What each identifier cell shows: its number, its text, or None for a blank."""
+    out: list[KeyValue] = cv.number.tolist()
+    for i in np.flatnonzero(~cv.of_kind(NUMBER)).tolist():
+        out[i] = None if cv.kind[i] == CODE[BLANK] else cv.text.get(i, "")
+    return out
 
 
 def read_settings(decl: Decl, pkg: Package, values: BookValues, file: str,

@@ -12,17 +12,19 @@ from ..errors import Context, DataError
 from ..fit.totals import find_totals
 from ..fit.totals import reason as totals_reason
 from ..labels import label_text
+from ..reader.columns import CODE
 from ..reader.formats import amount_format
 from ..reader.package import DefinedName
-from ..reader.values import BLANK, NUMBER, TEXT, BookValues, SheetValues
+from ..reader.values import BLANK, NUMBER, BookValues, ColumnValues
 from ..words import clip
 from .data import Column, LeftOut, describe_value
-from .levels import Coding, indicators, is_level
+from .levels import Coding, indicators
 from .refs import Area
 
 __all__ = [
     "check_headers",
     "check_numeric_columns",
+    "data_columns",
     "expand",
     "leave_out_totals",
     "make_column",
@@ -30,15 +32,18 @@ __all__ = [
 ]
 
 
-def check_numeric_columns(xcols: list[Column], n_rows: int, values: BookValues,
-                           dx: DefinedName, file: str) -> None:
+def data_columns(cols: list[Column], n_rows: int, values: BookValues) -> list[ColumnValues]:
+    """The data cells of each column (its n_rows rows below the header), read in bulk."""
+    return [values.column(c.sheet, c.col, c.first_row, c.first_row + n_rows - 1) for c in cols]
+
+
+def check_numeric_columns(xcols: list[Column], cells: list[ColumnValues], n_rows: int,
+                          dx: DefinedName, file: str) -> None:
     """An attribute column without a single number is a declaration mistake, not data."""
-    for c in xcols:
-        sv = values.sheet(c.sheet)
-        kinds = [sv.get(c.row_of(i), c.col) for i in range(n_rows)]
-        if not any(v.kind == NUMBER for v in kinds):
-            first = next((v for v in kinds if v.kind != BLANK), None)
-            what = describe_value(first) if first else "only blanks"
+    for c, cv in zip(xcols, cells, strict=True):
+        if not cv.of_kind(NUMBER).any():
+            filled = np.flatnonzero(~cv.of_kind(BLANK))
+            what = describe_value(cv.value(int(filled[0]))) if len(filled) else "only blanks"
             raise DataError(
                 f"attribute '{clip(c.name)}' holds no numbers ({what} ...); distances and "
                 "fits need numeric attributes",
@@ -70,56 +75,54 @@ def check_headers(cols: list[Column], d: DefinedName, file: str) -> None:
 
 
 def read_rows(
-    ycol: Column, xcols: list[Column], n: int, values: BookValues, labels: bool = False,
+    ycol: Column, xcols: list[Column], cells: list[ColumnValues], labels: bool = False,
     text: list[bool] | None = None,
 ) -> tuple[np.ndarray, list[LeftOut], np.ndarray, np.ndarray, dict[int, list[str]]]:
     """Used row indices, left-out rows, y (floats, or labels when ``labels``), X, levels.
 
-    Attribute j with ``text[j]`` is a text attribute: its X column is nan and the levels
-    of the used rows are returned under key j (``declare/levels.py``).
+    ``cells`` are the data cells of y then each x column (``data_columns``). A row is used
+    when y holds a number (or, for labels, a number or a non-blank text) and every
+    attribute a number, or a level for a text attribute (``text[j]``: its X column is nan
+    and the levels of the used rows are returned under key j, ``declare/levels.py``).
+    Otherwise the row is left out, the reason naming its first unusable cell from the left.
     """
     cols = [ycol] + xcols
     text = text or [False] * len(xcols)
-    sheets: list[SheetValues] = [values.sheet(c.sheet) for c in cols]
-    data = np.empty((n, len(cols)))
-    ylab: list[object] = [None] * n
-    levels: list[list[str]] = [[""] * n for _ in xcols]
-    ok = np.ones(n, dtype=bool)
+    n = len(cells[0])
+    ok = np.empty((n, len(cols)), dtype=bool)
+    for j, cv in enumerate(cells):
+        if j == 0 and labels:
+            ok[:, 0] = cv.of_kind(NUMBER) | cv.levels()
+        elif j > 0 and text[j - 1]:
+            ok[:, j] = cv.levels()
+        else:
+            ok[:, j] = cv.of_kind(NUMBER)
+    bad = ~ok
+    rows_bad = np.flatnonzero(bad.any(axis=1))
     left: list[LeftOut] = []
-    for i in range(n):
-        for j, (c, sv) in enumerate(zip(cols, sheets)):
-            v = sv.get(c.row_of(i), c.col)
-            if j == 0 and labels and v.kind in (NUMBER, TEXT) and (v.kind == NUMBER
-                                                                   or v.text.strip()):
-                ylab[i] = v.number if v.kind == NUMBER else v.text
-                data[i, 0] = 0.0
-                continue
-            if j > 0 and text[j - 1]:
-                if is_level(v):
-                    levels[j - 1][i] = v.text
-                    data[i, j] = np.nan
-                    continue
-                ok[i] = False
-                what = (f"the number {clip(label_text(v.number), 20)}" if v.kind == NUMBER
-                        else describe_value(v))
-                left.append(LeftOut(i, ycol.row_of(i),
-                                    f"{what} in text attribute '{clip(c.name)}' ({c.cell(i)})"))
-                break
-            if v.kind != NUMBER:
-                ok[i] = False
-                role = "y" if j == 0 else f"'{clip(c.name)}'"
-                left.append(LeftOut(i, ycol.row_of(i),
-                                    f"{describe_value(v)} in {role} ({c.cell(i)})"))
-                break
-            data[i, j] = v.number
-    used = np.flatnonzero(ok)
+    for i, j in zip(rows_bad.tolist(), bad[rows_bad].argmax(axis=1).tolist()):
+        c, v = cols[j], cells[j].value(i)
+        if j > 0 and text[j - 1]:
+            what = (f"the number {clip(label_text(v.number), 20)}" if v.kind == NUMBER
+                    else describe_value(v))
+            reason = f"{what} in text attribute '{clip(c.name)}' ({c.cell(i)})"
+        else:
+            role = "y" if j == 0 else f"'{clip(c.name)}'"
+            reason = f"{describe_value(v)} in {role} ({c.cell(i)})"
+        left.append(LeftOut(i, ycol.row_of(i), reason))
+    used = np.flatnonzero(~bad.any(axis=1))
+    ycells = cells[0]
     if labels:
         Y = np.empty(len(used), dtype=object)
-        Y[:] = [ylab[i] for i in used]
+        Y[:] = [float(ycells.number[i]) if ycells.kind[i] == CODE[NUMBER] else ycells.text[i]
+                for i in used.tolist()]
     else:
-        Y = data[used, 0].copy()
-    texts = {j: [levels[j][i] for i in used] for j, t in enumerate(text) if t}
-    return used, left, Y, data[used, 1:].copy(), texts
+        Y = ycells.number[used]
+    X = np.empty((len(used), len(xcols)))
+    for j, cv in enumerate(cells[1:]):
+        X[:, j] = np.nan if text[j] else cv.number[used]
+    texts = {j: [cells[j + 1].text[i] for i in used.tolist()] for j, t in enumerate(text) if t}
+    return used, left, Y, X, texts
 
 
 def expand(xcols: list[Column], X: np.ndarray, texts: dict[int, list[str]],
