@@ -32,12 +32,11 @@ import python_calamine
 from defusedxml import DefusedXmlException
 from defusedxml.ElementTree import ParseError
 
-from ..a1 import cell_ref
 from ..errors import Context, PackageError
 from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
 from .columns import ColumnValues, column_values
-from .formats import StyleTable, cell_style_index
+from .formats import StyleTable, row_style_indices
 from .package import parse_rels, rels_part_of
 
 __all__ = [
@@ -207,6 +206,9 @@ class BookValues:
     _members: dict[str, str] = field(default_factory=dict, init=False, repr=False)
     _closed: bool = field(default=False, init=False, repr=False)
     _styles: StyleTable | None = field(default=None, init=False, repr=False)
+    #: Style index of the cells of each sheet row asked for, by (sheet, row): column -> index.
+    _row_styles: dict[tuple[str, int], dict[int, int]] = field(
+        default_factory=dict, init=False, repr=False)
 
     def __enter__(self) -> Self:
         return self
@@ -271,9 +273,11 @@ class BookValues:
         try:
             if self._styles is None:
                 self._styles = self._style_table()
-            member = self._member(self.sheet_parts[self._canonical(sheet)])
-            with self._archive().open(member) as fh:
-                index = cell_style_index(fh, cell_ref(row, col))
+            key = (self._canonical(sheet), row)
+            if key not in self._row_styles:
+                with self._archive().open(self._member(self.sheet_parts[key[0]])) as fh:
+                    self._row_styles[key] = row_style_indices(fh, row)
+            index = self._row_styles[key].get(col)
             return None if index is None else self._styles.code(index)
         except (KeyError, ValueError, OSError, zipfile.BadZipFile, StopIteration,
                 ParseError, DefusedXmlException, PackageError):
