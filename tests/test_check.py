@@ -254,9 +254,10 @@ def test_fingerprint_rederived_from_the_recipe_by_hand(tmp_path: Path) -> None:
 @pytest.mark.parametrize("stream", [False, True], ids=["fast", "stream"])
 def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_path: Path,
                                                              monkeypatch) -> None:
-    """The bulk digests of a two-column area holding every kind of cell equal SHA-256 of
-    the README's tokens, written out here by hand, in recipe order (row by row, left to
-    right), and the one-cell path (``digest_cell``) of each cell; in both readers."""
+    """The bulk digests of a two-column area holding every kind of cell (0 and -0, repeated
+    numbers and texts) equal SHA-256 of the README's tokens, written out here by hand, in
+    recipe order (row by row, left to right), and the one-cell path (``digest_cell``) of
+    each cell; in both readers."""
     import datetime as dt
 
     import xlsxwriter
@@ -278,6 +279,9 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_p
         ((1e-05, "n:1e-05"), ("ünïcode ✓", "t:ünïcode ✓")),
         ((dt.datetime(2024, 2, 29), "n:45351.0"), (1.5e16, "n:1.5e+16")),
         ((12.0, "n:12.0"), ("  ", "t:  ")),
+        ((0.0, "n:0.0"), (-0.0, "n:-0.0")),  # equal numbers, two tokens
+        ((1.5, "n:1.5"), ("plain", "t:plain")),  # repeated: hashed once, placed twice
+        (("plain", "t:plain"), (1.5, "n:1.5")),
     ]
     for r, row in enumerate(cells):
         for c, (v, _) in enumerate(row):
@@ -297,12 +301,12 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_p
         monkeypatch.setattr(BookValues, "_fast", lambda self, name: None)
     pkg = open_package(path)
     with _values(pkg, path) as values:
-        area = parse_areas("Data!$A$1:$B$6")[0]
+        area = parse_areas("Data!$A$1:$B$9")[0]
         memo: dict = {}
         assert area_digests(area, values, memo) == want
         assert area_digests(area, values, memo) == want  # again, from the memo
         one_by_one = "".join(digest_cell(values.sheet("Data").get(r, c))
-                             for r in range(1, 7) for c in (1, 2))
+                             for r in range(1, 10) for c in (1, 2))
         assert one_by_one == want
         assert values.readers["Data"] == ("stream" if stream else "fast")
 

@@ -177,30 +177,42 @@ def _digest4(token: bytes) -> bytes:
     return hashlib.sha256(token).digest()[:DIGEST_HEX // 2]
 
 
+def _hash_all(tokens: list[bytes]) -> np.ndarray:
+    return np.frombuffer(b"".join(map(_digest4, tokens)), dtype=">u4")
+
+
 def column_digests(cv: ColumnValues) -> np.ndarray:
     """The digest of every cell of one column (step 2 of the recipe), as big-endian uint32s.
 
     The same tokens as ``cell_token`` (tests/test_check.py compares them cell by cell),
-    built in bulk: numbers through ``repr`` of the float array's items, the text cells
-    from the column's text, one digest shared by every blank.
+    built in bulk and hashed once per distinct token: numbers through ``repr`` of each
+    distinct float (told apart by their bits, so 0.0 and -0.0 stay two tokens), text
+    cells through their distinct texts, one digest shared by every blank.
     """
     n = len(cv)
     out = np.empty(n, dtype=">u4")
     for kind, token in _FIXED.items():
         mask = cv.of_kind(kind)
         if mask.any():
-            out[mask] = np.frombuffer(_digest4(token.encode()), dtype=">u4")[0]
+            out[mask] = _hash_all([token.encode()])[0]
     nums = np.flatnonzero(cv.of_kind(NUMBER))
-    for k in range(0, len(nums), _CHUNK):
-        at = nums[k:k + _CHUNK]
-        tokens = [("n:" + r).encode() for r in map(repr, cv.number[at].tolist())]
-        out[at] = np.frombuffer(b"".join(map(_digest4, tokens)), dtype=">u4")
-    texts = [i for i in cv.text if KINDS[cv.kind[i]] in _PREFIX]
-    for k in range(0, len(texts), _CHUNK):
-        cells = texts[k:k + _CHUNK]
-        tokens = [(_PREFIX[KINDS[cv.kind[i]]] + cv.text[i]).encode("utf-8", "surrogatepass")
-                  for i in cells]
-        out[cells] = np.frombuffer(b"".join(map(_digest4, tokens)), dtype=">u4")
+    if len(nums):
+        bits, where = np.unique(cv.number[nums].view(np.uint64), return_inverse=True)
+        digests = np.empty(len(bits), dtype=">u4")
+        for k in range(0, len(bits), _CHUNK):
+            floats = bits[k:k + _CHUNK].view(np.float64).tolist()
+            digests[k:k + _CHUNK] = _hash_all([("n:" + r).encode() for r in map(repr, floats)])
+        out[nums] = digests[where.ravel()]
+    seen: dict[str, int] = {}
+    cells = [i for i in cv.text if KINDS[cv.kind[i]] in _PREFIX]
+    tokens = [_PREFIX[KINDS[cv.kind[i]]] + cv.text[i] for i in cells]
+    distinct = [seen.setdefault(t, len(seen)) for t in tokens]
+    if cells:
+        texts = list(seen)
+        digests = np.concatenate([
+            _hash_all([t.encode("utf-8", "surrogatepass") for t in texts[k:k + _CHUNK]])
+            for k in range(0, len(texts), _CHUNK)])
+        out[cells] = digests[distinct]
     return out
 
 
