@@ -308,6 +308,7 @@ class BookValues:
         zf = self._archive()
         data = zf.read(member)
         found = scan(data) if utf8(data) else None
+        del data  # the sheet's XML is not held while the fast reader parses the same part
         stop: int | None = None
         if found is not None and found.located:
             if found.last_row == 0:  # nothing in the sheet holds a value or a formula
@@ -322,7 +323,6 @@ class BookValues:
                                        self.date1904)
             if found.tail > TAIL_LIMIT:
                 stop = found.last_row
-        del data
         with zf.open(member) as fh:
             cells = stream_sheet(fh, self._shared_strings(), stop)
         self.readers[name] = "stream"
