@@ -172,6 +172,7 @@ def refresh(book: str | Path, out: str | Path | None = None,
             with _values(pkg, source) as values:  # one reader: each sheet read once
                 models = read_models(pkg, source, file, values)
                 before = read_history(pkg, values)  # the log, forecasts, notes to carry on
+            del values  # the cells read stay in memory no longer than the read phase
             phase("fit")
             fits = [(m, fit_model(m)) for m in models]
             phase("write")
