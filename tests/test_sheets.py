@@ -69,7 +69,7 @@ def test_renderer_stores_numbers_with_every_digit(tmp_path: Path) -> None:
     rows = [["cost", "units"], [0.0, 0.0], [1.0, 6.0], [2.0, 12.0]]  # slope exactly 1/6
     plan, _, res = _plan(tmp_path, rows, {"sf_a_y": "Data!$A$1:$A$4",
                                           "sf_a_x": "Data!$B$1:$B$4"})
-    out = render(plan, tmp_path / "owned.xlsx")
+    out = render(plan, tmp_path / "owned.xlsx").path
     with zipfile.ZipFile(out) as z:
         names = z.namelist()
         coef_part = next(n for n in names if n.startswith("xl/worksheets/sheet2"))

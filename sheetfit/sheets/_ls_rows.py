@@ -15,6 +15,7 @@ import numpy as np
 
 from ..a1 import col_letter
 from ..fit.inference import LEVERAGE_ONE, Influence
+from .columns import template, this_row
 from .common import FIRST_ROW
 from .plan import SheetPlan
 
@@ -50,56 +51,56 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
     fit is exact, as the cell ``exact_ref`` says: then no row has a studentized residual).
     """
     rcol = rs.columns["resid"]
-    c0 = max(c.col for c in rs.cells) + 2
+    c0 = rs.last_col() + 2
     lev_c, st_c, ck_c, pr_c, fl_c = c0, c0 + 1, c0 + 2, c0 + 3, c0 + 4
     heads = ["leverage h", "studentized residual", "Cook's distance",
              "leave-one-out residual e/(1−h)", "flags"]
     for k, head in enumerate(heads):
         rs.put(3, c0 + k, head, style="head")
     cook_lim, lev_lim = 4 / n, 2 * p / n
-    press: list[float | None] = []
-    flags: list[str] = []
     R = col_letter(rcol + 1)
     L, S, C = (col_letter(c + 1) for c in (lev_c, st_c, ck_c))
-    for i in range(n):
-        r = FIRST_ROW + i
-        a = r + 1
-        h = float(infl.leverage[i])
-        rs.put(r, lev_c, h, style="z")
-        e = float(resid[i])
-        guard = f'IF({L}{a}>=1-{_ONE},"",'
-        st: float | str = ""
-        ck: float | str = ""
-        pr: float | str = ""
-        if h < LEVERAGE_ONE:
-            pr = e / (1 - h)
-            if sd_value is not None:
-                st = e / (sd_value * math.sqrt(1 - h))
-                ck = st * st * h / (p * (1 - h))
-        rs.put(r, st_c, st,
-               f'=IF(OR({L}{a}>=1-{_ONE},{exact_ref}="yes",NOT(ISNUMBER({sd_ref}))),"",'
-               f'{R}{a}/({sd_ref}*SQRT(1-{L}{a})))', "dec2")
-        rs.put(r, ck_c, ck, f'=IF({S}{a}="","",{S}{a}*{S}{a}*{L}{a}/({p}*(1-{L}{a})))', "z")
-        rs.put(r, pr_c, pr, f"={guard}{R}{a}/(1-{L}{a}))", amount)
-        words = []
-        if isinstance(st, float) and abs(st) > STUDENT_LIMIT:
-            words.append("outlier")
-        if isinstance(ck, float) and ck > cook_lim:
-            words.append("influential")
-        if h > lev_lim:
-            words.append("high leverage")
-        flag = ", ".join(words)
-        rs.put(r, fl_c, flag, (
-            f'=IF(AND(ISNUMBER({S}{a}),ABS(N({S}{a}))>{STUDENT_LIMIT:g}),"outlier","")'
-            f'&IF(AND(ISNUMBER({C}{a}),N({C}{a})>4/{n}),IF(AND(ISNUMBER({S}{a}),'
-            f'ABS(N({S}{a}))>{STUDENT_LIMIT:g}),", ","")&"influential","")'
-            f'&IF({L}{a}>2*{p}/{n},IF(OR(AND(ISNUMBER({S}{a}),ABS(N({S}{a}))>{STUDENT_LIMIT:g}),'
-            f'AND(ISNUMBER({C}{a}),N({C}{a})>4/{n})),", ","")&"high leverage","")'), "flag")
-        press.append(pr if isinstance(pr, float) else None)
-        flags.append(flag)
+    h = np.asarray(infl.leverage, dtype=float)[:n]
+    e = np.asarray(resid, dtype=float)[:n]
+    ok = h < LEVERAGE_ONE
+    one_minus = np.where(ok, 1 - h, 1.0)
+    pr_num = e / one_minus  # the same operations as e / (1 - h), row by row
+    if sd_value is not None:
+        st_num = e / (sd_value * np.sqrt(one_minus))
+        ck_num = st_num * st_num * h / (p * one_minus)
+    else:
+        st_num = ck_num = np.zeros(n)
+    has_st = ok & (sd_value is not None)
+    st = [float(v) if k else "" for v, k in zip(st_num.tolist(), has_st.tolist(), strict=True)]
+    ck = [float(v) if k else "" for v, k in zip(ck_num.tolist(), has_st.tolist(), strict=True)]
+    pr = [float(v) if k else "" for v, k in zip(pr_num.tolist(), ok.tolist(), strict=True)]
+    out_ = has_st & (np.abs(st_num) > STUDENT_LIMIT)
+    infl_ = has_st & (ck_num > cook_lim)
+    high = h > lev_lim
+    flags = [", ".join(w for w, on in (("outlier", a), ("influential", b), ("high leverage", c))
+                       if on)
+             for a, b, c in zip(out_.tolist(), infl_.tolist(), high.tolist(), strict=True)]
+    r = this_row
+    rs.run(lev_c, FIRST_ROW, h, style="z")
+    rs.run(st_c, FIRST_ROW, st, template(
+        f"=IF(OR({L}", r, f">=1-{_ONE},{exact_ref}=\"yes\",NOT(ISNUMBER({sd_ref}))),\"\",",
+        f"{R}", r, f"/({sd_ref}*SQRT(1-{L}", r, ")))"), "dec2")
+    rs.run(ck_c, FIRST_ROW, ck, template(
+        f"=IF({S}", r, f'="","",{S}', r, f"*{S}", r, f"*{L}", r, f"/({p}*(1-{L}", r, ")))"), "z")
+    rs.run(pr_c, FIRST_ROW, pr, template(
+        f"=IF({L}", r, f'>=1-{_ONE},"",{R}', r, f"/(1-{L}", r, "))"), amount)
+    lim = f"{STUDENT_LIMIT:g}"
+    big_s = (f"AND(ISNUMBER({S}", r, f"),ABS(N({S}", r, f"))>{lim})")
+    big_c = (f"AND(ISNUMBER({C}", r, f"),N({C}", r, f")>4/{n})")
+    rs.run(fl_c, FIRST_ROW, flags, template(
+        "=IF(", *big_s, ',"outlier","")',
+        "&IF(", *big_c, ",IF(", *big_s, ',", ","")&"influential","")',
+        f"&IF({L}", r, f">2*{p}/{n},IF(OR(", *big_s, ",", *big_c, '),", ","")&"high leverage","")'),
+        "flag")
+    press: list[float | None] = [v if isinstance(v, float) else None for v in pr]
     last = FIRST_ROW + n
     rs.put(last + 1, lev_c - 1, "sum of leverages (= p)", style="label")
-    lev_sum = math.fsum(float(v) for v in infl.leverage)
+    lev_sum = math.fsum(h.tolist())
     rs.put(last + 1, lev_c, lev_sum, f"=SUM({L}{FIRST_ROW + 1}:{L}{last})", "z")
     rs.put(last + 2, lev_c - 1, "check (|sum − p| < 1e-9)", style="label")
     rs.put(last + 2, lev_c, "holds" if abs(lev_sum - p) < 1e-9 else "FAILS",

@@ -19,10 +19,11 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from ..a1 import col_letter
-from ..declare.model import Keys, ModelData
+from ..a1 import col_letter, quote_sheet
+from ..declare.model import Column, Keys, ModelData
 from ..owned import sheet_title
-from .plan import SheetPlan, decimal_style
+from .columns import Part, template, this_row
+from .plan import Scalar, SheetPlan, decimal_style
 
 __all__ = [
     "COLNOTE_ROW",
@@ -34,6 +35,7 @@ __all__ = [
     "fsum_sq",
     "key_formula",
     "key_heads",
+    "key_runs",
     "key_styles",
     "key_width",
     "plan_cautions",
@@ -41,6 +43,8 @@ __all__ = [
     "plan_methods",
     "plan_residual_sheet",
     "put_keys",
+    "ref_parts",
+    "value_parts",
 ]
 
 #: Row (0-based) of the first data row on row-by-row sheets (fitted, residual, neighbours).
@@ -64,7 +68,8 @@ HOLDS, FAILS = "holds", "FAILS"
 
 def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
-    return math.fsum(float(a) * float(a) for a in v)
+    x = np.asarray(v, dtype=float)
+    return math.fsum((x * x).tolist())  # the same rounded products, summed exactly
 
 
 # --- identifiers ------------------------------------------------------------------------
@@ -84,6 +89,38 @@ def key_heads(keys: Keys | None, width: int | None = None) -> list[str]:
 def key_formula(cell: str) -> str:
     """An identifier shown as the user's cell holds it; a blank cell shows blank, not 0."""
     return f'=IF(ISBLANK({cell}),"",{cell})'
+
+
+def ref_parts(column: Column, idx: np.ndarray | Sequence[int]) -> tuple[Part, ...]:
+    """Template parts (``sheets.columns.template``) of ``column``'s cells in the model's
+    rows ``idx``: ``Data!C`` and the sheet rows, i.e. what ``Column.cell(i)`` writes."""
+    rows = np.asarray(idx, dtype=np.int64) + column.first_row
+    return (f"{quote_sheet(column.sheet)}!{col_letter(column.col)}", rows)
+
+
+def value_parts(column: Column, idx: np.ndarray | Sequence[int]) -> tuple[Part, ...]:
+    """Template parts of ``Column.value_ref`` in the model's rows ``idx`` (the cell, or the
+    indicator ``IF(EXACT(cell,"level"),1,0)`` of a text attribute's level)."""
+    cell = ref_parts(column, idx)
+    if column.level is None:
+        return cell
+    text = column.level.replace('"', '""')
+    return ("IF(EXACT(", *cell, f',"{text}"),1,0)')
+
+
+def key_runs(sheet: SheetPlan, row0: int, col: int, keys: Keys | None,
+             idx: np.ndarray | Sequence[int], styles: Sequence[str] | None = None) -> None:
+    """:func:`put_keys` for the model's rows ``idx`` at once: one run per identifier
+    column from ``row0``, each cell a formula pointing at the user's cell."""
+    if keys is None:
+        return
+    for j, c in enumerate(keys.columns):
+        vals = keys.values[j]
+        cached = ["" if vals[int(i)] is None else vals[int(i)] for i in idx]
+        cell = ref_parts(c, idx)
+        sheet.run(col + j, row0, cached,
+                  template("=IF(ISBLANK(", *cell, '),"",', *cell, ")"),
+                  styles[j] if styles is not None else "key")
 
 
 def put_keys(sheet: SheetPlan, row: int, col: int, keys: Keys | None, i: int,
@@ -199,9 +236,12 @@ def plan_left_out(sheet: SheetPlan, model: ModelData, col: int) -> None:
     sheet.widths[col + 1 + kw] = 44
 
 
-def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.ndarray,
+def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np.ndarray,
                         resid: np.ndarray, note: str, keys: Keys | None = None) -> SheetPlan:
     """The residual sheet: observed, fitted (from another sheet), observed − fitted.
+
+    ``fitted_ref`` are template parts (``sheets.columns.template``) of the fitted-value
+    cells, row by row, e.g. ``("'sf m fitted'!F", rows)``.
 
     ``fitted`` and ``resid`` are the cached values (nan where the row has no fitted value,
     which the sheet shows blank). With ``keys`` (pass ``model.keys``) the identifier
@@ -220,21 +260,30 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[str], fitted: np.
         rs.put(3, c, h, style="head")
     ob, fc, rc = 1 + kw, 2 + kw, 3 + kw
     B, C = _letter(ob), _letter(fc)
-    amount = (decimal_style(model.Y.tolist(), fmt=model.y.fmt) if model.Y.dtype != object
+    amount = (decimal_style(model.Y, fmt=model.y.fmt) if model.Y.dtype != object
               else "num")
-    derived = (decimal_style(model.Y.tolist(), least=2, fmt=model.y.fmt)
+    derived = (decimal_style(model.Y, least=2, fmt=model.y.fmt)
                if model.Y.dtype != object else "num")
-    kstyles = key_styles(keys)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        rs.put(r, 0, int(y.row_of(int(idx))), style="row")
-        put_keys(rs, r, 1, keys, int(idx), kstyles)
-        rs.put(r, ob, float(model.Y[i]), f"={y.cell(int(idx))}", amount)
-        f, e = float(fitted[i]), float(resid[i])
-        blank = math.isnan(f)
-        rs.put(r, fc, "" if blank else f, f"={fitted_ref[i]}", derived)
-        rs.put(r, rc, "" if blank else e, f'=IF({C}{r + 1}="","",{B}{r + 1}-{C}{r + 1})',
-               derived)
+    used = np.asarray(model.used, dtype=np.int64)
+    n = len(used)
+    rs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    key_runs(rs, FIRST_ROW, 1, keys, used, key_styles(keys))
+    rs.run(ob, FIRST_ROW, model.Y.astype(float), template("=", *ref_parts(y, used)), amount)
+    f = np.asarray(fitted, dtype=float)
+    blank = np.isnan(f)
+    if blank.any():
+        fit_vals: Sequence[Scalar] | np.ndarray = [
+            "" if b else v for b, v in zip(blank.tolist(), f.tolist(), strict=True)]
+        res_vals: Sequence[Scalar] | np.ndarray = [
+            "" if b else v for b, v in zip(blank.tolist(), resid.tolist(), strict=True)]
+    else:
+        fit_vals, res_vals = f, np.asarray(resid, dtype=float)
+    rs.run(fc, FIRST_ROW, fit_vals, template("=", *fitted_ref), derived)
+    rs.run(rc, FIRST_ROW, res_vals,
+           template(f"=IF({C}", this_row, f'="","",{B}', this_row, f"-{C}", this_row, ")"),
+           derived)
+    if n != len(fitted):
+        raise ValueError("fitted values and used rows differ in number")
     rs.widths.update({0: 9, rc: 16})
     column_notes(rs, {ob: "your data cell", fc: "from the fitted-value sheet",
                       rc: "observed − fitted, row by row"})

@@ -31,16 +31,20 @@ from ._ls_coef import (
     plan_coef_sheet,
 )
 from ._ls_rows import plan_influence
+from .columns import Part, template
 from .common import (
     FIRST_ROW,
     column_notes,
     fsum_sq,
     key_heads,
+    key_runs,
     key_styles,
     key_width,
     plan_left_out,
     plan_residual_sheet,
     put_keys,
+    ref_parts,
+    value_parts,
 )
 from .plan import Planned, SheetPlan, decimal_style
 
@@ -76,6 +80,21 @@ def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
     return "=" + "+".join(parts), value, terms
 
 
+def _predictions(coef: np.ndarray, coef_ref: list[str], intercept: bool,
+                 specs: list[tuple[int, int]], cells: list[tuple[Part, ...]],
+                 tvals: list[np.ndarray]) -> tuple[np.ndarray, list[list[Part]]]:
+    """:func:`_prediction` for every row at once: the fitted values in formula order
+    (intercept, then + coefficient × term, left to right: the same floating-point
+    operations, element by element) and each term's template parts."""
+    parts: list[list[Part]] = []
+    value = np.full(len(tvals[0]) if tvals else 0, float(coef[0]) if intercept else 0.0)
+    for k, (j, d) in enumerate(specs):
+        parts.append(list(cells[j]) + ([f"^{d}"] if d > 1 else []))
+        prod = float(coef[k + int(intercept)]) * np.asarray(tvals[k], dtype=float)
+        value = prod if (k == 0 and not intercept) else value + prod
+    return value, parts
+
+
 def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
                        version: str) -> Planned:
     """Plan the coefficient, fitted-value and residual sheets of a fitted model.
@@ -97,13 +116,17 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     level = float(model.settings.values.get("level", 0.95))
     specs = _term_values(model.X, degree)
     tvals = [model.X[:, j] ** d if d > 1 else model.X[:, j] for j, d in specs]
+    # the fitted sheet's term cells: a power as Python's float ** int computes it, row by
+    # row (numpy's x ** 2 is x * x, which can differ in the last bit)
+    term_vals = [np.array([v ** d for v in model.X[:, j].tolist()]) if d > 1
+                 else model.X[:, j].astype(float) for j, d in specs]
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
     lay = CoefLayout(p, 0 if model.new is None else model.new.n)
     coef_ref = [cs.ref(lay.first + k, C_COEF) for k in range(p)]
-    amount = decimal_style(model.Y.tolist(), fmt=y.fmt)
-    derived = decimal_style(model.Y.tolist(), least=2, fmt=y.fmt)
+    amount = decimal_style(model.Y, fmt=y.fmt)
+    derived = decimal_style(model.Y, least=2, fmt=y.fmt)
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
@@ -120,34 +143,34 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     obs_col = 1 + nk
     first_term = obs_col + 1
     fit_col = first_term + len(specs)
-    term_styles = [decimal_style(t.tolist(), fmt=model.xs[j].fmt if d == 1 else None)
+    term_styles = [decimal_style(t, fmt=model.xs[j].fmt if d == 1 else None)
                    for t, (j, d) in zip(tvals, specs, strict=True)]
-    fitted = np.empty(n)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        fs.put(r, 0, int(y.row_of(int(idx))), style="row")
-        put_keys(fs, r, 1, keys, int(idx), kstyles)
-        fs.put(r, obs_col, float(model.Y[i]), f"={y.cell(int(idx))}", amount)
-        formula, value, terms_row = _prediction(
-            coef, coef_ref, intercept, specs, [c.value_ref(int(idx)) for c in model.xs],
-            model.X[i])
-        for k, (ref, tv) in enumerate(terms_row):
-            fs.put(r, first_term + k, tv, f"={ref}", term_styles[k])
-        fitted[i] = value
-        fs.put(r, fit_col, value, formula, derived)
+    used = np.asarray(model.used, dtype=np.int64)
+    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    key_runs(fs, FIRST_ROW, 1, keys, used, kstyles)
+    fs.run(obs_col, FIRST_ROW, model.Y.astype(float), template("=", *ref_parts(y, used)), amount)
+    fitted, term_parts = _predictions(coef, coef_ref, intercept, specs,
+                                      [value_parts(c, used) for c in model.xs], term_vals)
+    for k, parts in enumerate(term_parts):
+        fs.run(first_term + k, FIRST_ROW, term_vals[k],
+               template("=", *parts), term_styles[k])
+    fs.run(fit_col, FIRST_ROW, fitted, template(*_sum_parts(coef_ref, intercept, term_parts)),
+           derived)
     fs.widths = {0: 9, fit_col: 16}
     column_notes(fs, {obs_col: "your data cell", fit_col: "coefficients × terms, left to right"})
     fs.freeze = (FIRST_ROW, 1 + nk)
     rule_fit: RuleFit | None = None
     if model.rule is not None:
-        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived)
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived,
+                                     term_vals)
     term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
     # --- residual sheet with the row diagnostics ----------------------------------------
     resid = model.Y - fitted  # what observed − fitted gives on the residual sheet
     rs = plan_residual_sheet(
-        model, [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in range(n)], fitted, resid,
+        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", np.arange(n) + FIRST_ROW + 1),
+        fitted, resid,
         "residual = observed − fitted, each a formula; to the right, how much each row "
         "moves the fit.", keys=model.keys)
     resid_rng = rs.col_range(rs.columns["resid"], FIRST_ROW, last)
@@ -181,7 +204,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
         rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
-        amount_style=derived, answer_style=decimal_style(model.Y.tolist(), least=2, fmt=y.fmt,
+        amount_style=derived, answer_style=decimal_style(model.Y, least=2, fmt=y.fmt,
                                                          answer=True))
     audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level, lay)
     coef_rng = plan_coef_sheet(cs, d_in)
@@ -227,21 +250,34 @@ def _col_abs(col: int, r1: int, r2: int) -> str:
 
 
 def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
-                      intercept: bool, col: int, last: int, style: str) -> RuleFit:
+                      intercept: bool, col: int, last: int, style: str,
+                      term_vals: list[np.ndarray]) -> RuleFit:
     """The rule in use today, applied to every data row (its coefficients × the data)."""
     rule = model.rule
     if rule is None:
         raise ValueError("_plan_rule_column needs a declared rule")
     fs.put(3, col, "rule in use: fitted", style="head")
-    values = np.empty(len(model.used))
-    for i, idx in enumerate(model.used):
-        formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
-                                        [c.value_ref(int(idx)) for c in model.xs], model.X[i])
-        values[i] = value
-        fs.put(FIRST_ROW + i, col, value, formula, style)
+    used = np.asarray(model.used, dtype=np.int64)
+    values, parts = _predictions(np.asarray(rule.values, dtype=float), list(rule.cells),
+                                 intercept, specs, [value_parts(c, used) for c in model.xs],
+                                 term_vals)
+    fs.run(col, FIRST_ROW, values, template(*_sum_parts(list(rule.cells), intercept, parts)),
+           style)
     fs.widths[col] = 16
     return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
                    fs.col_range(col, FIRST_ROW, last), values)
+
+
+def _sum_parts(coef_ref: list[str], intercept: bool, term_parts: list[list[Part]]) -> list[Part]:
+    """Template parts of intercept + coefficient × term + …, as ``_prediction`` writes it."""
+    out: list[Part] = ["="]
+    if intercept:
+        out.append(coef_ref[0])
+    for k, parts in enumerate(term_parts):
+        if k or intercept:
+            out.append("+")
+        out += [coef_ref[k + int(intercept)], "*", *parts]
+    return out
 
 
 def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
@@ -283,7 +319,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
-    x_styles = [decimal_style(new.X[:, j].tolist(), fmt=model.xs[j].fmt)
+    x_styles = [decimal_style(new.X[:, j], fmt=model.xs[j].fmt)
                 for j in range(new.X.shape[1])]
     for i in range(new.n):
         r = FIRST_ROW + i

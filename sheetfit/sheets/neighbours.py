@@ -295,7 +295,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
         names += _vote_summary(summary, model, res, fs, at, focus, version, k)
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
-            model, fitted_refs, res.fitted_, res.resid_,
+            model, (fitted_refs,), res.fitted_, res.resid_,
             "residual = observed − fitted (the leave-one-out mean of the row's neighbours).",
             keys=model.keys)
         rc = 3 + key_width(model.keys)

@@ -11,8 +11,11 @@ import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
+import numpy as np
+
 from ..a1 import absolute, area, cell_ref, quote_sheet
 from .chartplan import ChartPlan
+from .columns import Run, Template
 
 __all__ = [
     "FIT_WIDTH",
@@ -21,6 +24,7 @@ __all__ = [
     "BookPlan",
     "Cell",
     "Planned",
+    "Run",
     "SheetPlan",
     "coef_style",
     "decimal_style",
@@ -67,22 +71,31 @@ for _d in range(10):
     STYLES[f"answer{_d}"] = {"bold": True, "num_format": STYLES[f"dec{_d}"]["num_format"]}
 
 
-def decimals_shown(values: Sequence[object], most: int = 4) -> int:
+def decimals_shown(values: Sequence[object] | np.ndarray, most: int = 4) -> int:
     """How many decimals the data show: the fewest (≤ ``most``) that write every value exactly.
 
     Stands in for the user's own number format, which the reader does not expose: cost
     data kept to the cent give 2, whole counts give 0.
     """
-    nums = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)
-            and math.isfinite(float(v))]
+    if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
+        x = values.astype(float)
+        x = x[np.isfinite(x)]
+    elif isinstance(values, np.ndarray):
+        return decimals_shown(values.tolist(), most)
+    elif all(type(v) is float for v in values):
+        x = np.array(values, dtype=float)
+        x = x[np.isfinite(x)]
+    else:
+        x = np.array([float(v) for v in values if isinstance(v, (int, float))
+                      and not isinstance(v, bool) and math.isfinite(float(v))], dtype=float)
     for d in range(most + 1):
-        if all(abs(v * 10 ** d - round(v * 10 ** d)) <= 1e-6 * max(1.0, abs(v) * 10 ** d)
-               for v in nums):
+        scaled = x * float(10 ** d)  # as v * 10 ** d, element by element
+        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-6 * np.maximum(1.0, np.abs(x) * float(10 ** d))):
             return d
     return most
 
 
-def decimal_style(values: Sequence[object], most: int = 4, answer: bool = False,
+def decimal_style(values: Sequence[object] | np.ndarray, most: int = 4, answer: bool = False,
                   least: int = 0, fmt: str | None = None) -> str:
     """The style for amounts like ``values``: the user's own number format ``fmt`` when
     their data cells have one (a plain-number format, see ``reader.formats``), else
@@ -140,7 +153,9 @@ class SheetPlan:
     """
 
     title: str
-    cells: list[Cell] = field(default_factory=list)
+    #: Cells placed one by one (titles, headers, notes, figures); long regular columns
+    #: are :class:`Run` s in ``runs``. ``cells`` gives both, cell by cell.
+    loose: list[Cell] = field(default_factory=list)
     widths: dict[int, float] = field(default_factory=dict)
     heights: dict[int, float] = field(default_factory=dict)
     freeze: tuple[int, int] | None = None
@@ -153,7 +168,46 @@ class SheetPlan:
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
+    _by_cell: dict[tuple[int, int], Cell] | None = field(default=None, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
+    runs: list[Run] = field(default_factory=list)
+
+    @property
+    def cells(self) -> list[Cell]:
+        """Every cell: the loose ones, then each run's cells (built on each call)."""
+        out = list(self.loose)
+        for run in self.runs:
+            out += [Cell(r, c, v, f, run.style) for r, c, v, f in run.cells()]
+        return out
+
+    def _run_at(self, row: int, col: int) -> Run | None:
+        return next((u for u in self.runs if u.col == col and u.row0 <= row <= u.last), None)
+
+    def run(self, col: int, row0: int, values: Sequence[Scalar] | np.ndarray,
+            formula: Template | None = None, style: str = "text") -> Run:
+        """Add a column run: rows row0 … row0+len(values)-1 of ``col`` (0-based), with
+        cached ``values`` and, if given, the formula ``template`` (text starting '=')."""
+        if formula is not None and not formula.text.startswith("="):
+            raise ValueError(f"formula without '=': {formula.text}")
+        if formula is not None and any(a is not None and len(a) != len(values)
+                                       for a in formula.args):
+            raise ValueError(f"{self.title}: a formula vector's length differs from the values'")
+        if style not in STYLES and not style.startswith(("user:", "userb:")):
+            raise KeyError(style)
+        if isinstance(values, np.ndarray) and values.dtype.kind == "f" \
+                and not np.isfinite(values).all():
+            raise ValueError(f"{self.title}: a run of column {col + 1} holds NaN or infinity")
+        run = Run(col, row0, values, style, formula)
+        if run.n == 0:
+            return run
+        for u in self.runs:
+            if u.col == col and u.row0 <= run.last and row0 <= u.last:
+                raise ValueError(f"{self.title}: runs overlap in column {cell_ref(1, col + 1)}")
+        clash = next(((r, c) for r, c in self._taken if c == col and row0 <= r <= run.last), None)
+        if clash is not None:
+            raise ValueError(f"{self.title}: cell {cell_ref(clash[0] + 1, col + 1)} planned twice")
+        self.runs.append(run)
+        return run
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text", link: str | None = None) -> Cell:
@@ -164,13 +218,13 @@ class SheetPlan:
             raise KeyError(style)
         if link is not None and formula is not None:
             raise ValueError("a hyperlink cell holds text, not a formula")
-        if (row, col) in self._taken:
+        if (row, col) in self._taken or self._run_at(row, col) is not None:
             raise ValueError(f"{self.title}: cell {cell_ref(row + 1, col + 1)} planned twice")
         self._taken.add((row, col))
         cell = Cell(row, col, value, formula, style, link)
         if style == "head":  # column headers wrap onto two lines
             self.heights.setdefault(row, 30.0)
-        self.cells.append(cell)
+        self.loose.append(cell)
         return cell
 
     def note(self, row: int, col: int, text: str, width: int = 100) -> int:
@@ -194,10 +248,33 @@ class SheetPlan:
 
     def last_row(self) -> int:
         """The last row holding a cell (-1 for an empty sheet)."""
-        return max((c.row for c in self.cells), default=-1)
+        return max([c.row for c in self.loose] + [u.last for u in self.runs if u.n],
+                   default=-1)
+
+    def last_col(self) -> int:
+        """The last column holding a cell (-1 for an empty sheet)."""
+        return max([c.col for c in self.loose] + [u.col for u in self.runs if u.n],
+                   default=-1)
 
     def is_free(self, row: int, col: int) -> bool:
-        return (row, col) not in self._taken
+        return (row, col) not in self._taken and self._run_at(row, col) is None
+
+    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar]:
+        """Cached values planned in rows row1..row2 of a column (None where nothing is)."""
+        run = self._run_at(row1, col)
+        if run is not None and row2 <= run.last:
+            return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
+        return [self.value_at(r, col) for r in range(row1, row2 + 1)]
+
+    def value_at(self, row: int, col: int) -> Scalar:
+        """The cached value planned at a cell (None when nothing is planned there)."""
+        run = self._run_at(row, col)
+        if run is not None:
+            return run.scalars(row - run.row0, row - run.row0 + 1)[0]
+        if self._by_cell is None or len(self._by_cell) != len(self.loose):
+            self._by_cell = {(c.row, c.col): c for c in self.loose}
+        cell = self._by_cell.get((row, col))
+        return None if cell is None else cell.value
 
     def fit_columns(self) -> None:
         """Widen columns so header words never break mid-word and values fit.
@@ -209,8 +286,27 @@ class SheetPlan:
         a lower bound.
         """
         need: dict[int, float] = {}
-        taken = {(c.row, c.col) for c in self.cells if c.value not in (None, "")}
-        for c in self.cells:
+        for u in self.runs:
+            vals = u.values
+            if u.style in ("note", "title", "caution", "colnote", "flag") or not u.n:
+                continue
+            arr = isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu"
+            if u.style in ("int", "row"):
+                nums = (np.abs(vals) if arr else np.array(  # type: ignore[arg-type]
+                    [abs(float(v)) for v in vals if isinstance(v, (int, float))
+                     and not isinstance(v, bool)], dtype=float))
+                w = max(6, len(f"{int(nums.max(initial=0)):,}") + 3)
+            elif arr:
+                w = 12
+            else:
+                texts = [v for v in vals if type(v) is str]
+                w = max(12 if len(texts) < len(vals) and any(
+                            isinstance(v, (int, float)) and not isinstance(v, bool)
+                            for v in vals) else 0,
+                        min(40, max(map(len, texts), default=-2) + 2))
+            need[u.col] = max(need.get(u.col, 0), w)
+        taken = {(c.row, c.col) for c in self.loose if c.value not in (None, "")}
+        for c in self.loose:
             if c.style in ("note", "title", "caution", "colnote", "flag") or c.value is None:
                 continue
             if c.style == "head":
@@ -229,7 +325,7 @@ class SheetPlan:
 
     def total_width(self) -> float:
         """Characters of width of the used columns (default width 8.43)."""
-        cols = {c.col for c in self.cells}
+        cols = {c.col for c in self.loose} | {u.col for u in self.runs}
         return sum(self.widths.get(c, 8.43) for c in range(max(cols, default=-1) + 1))
 
 

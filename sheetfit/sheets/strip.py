@@ -198,7 +198,7 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
                "show how well the curve predicts the data rows.", style="note")
     plan_left_out(fs, model, side)
 
-    rs = plan_residual_sheet(model, refs, res.fitted_, res.resid_,
+    rs = plan_residual_sheet(model, (refs,), res.fitted_, res.resid_,
                              "residual = observed − fitted (leave-one-out strip mean); "
                              "blank where the row's strip holds no other row.",
                              keys=model.keys)

@@ -13,15 +13,20 @@ from __future__ import annotations
 
 import contextlib
 import posixpath
+import queue
 import re
+import threading
 import zipfile
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import IO
 
 from sheetfit.errors import Context, DeclarationError, PackageError
 from sheetfit.owned import is_ours
 from sheetfit.reader.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
+from sheetfit.sheets.columns import Run
+from sheetfit.writer._bulk import stream_sheet
 from sheetfit.writer._graft_app import update_app
 from sheetfit.writer._graft_parts import Attached, attached_of, place, taken_names
 from sheetfit.writer._graft_remove import (
@@ -39,6 +44,7 @@ from sheetfit.writer._graft_workbook import (
     next_rid,
 )
 from sheetfit.writer._styles import StyleMap, bare_styles, merge_styles, user_style_indices
+from sheetfit.writer.render import Rendition
 from sheetfit.writer.target import Destination, plain, replacing
 
 __all__ = ["OutputName", "graft"]
@@ -58,6 +64,21 @@ class OutputName:
 
     name: str
     text: str
+
+
+@dataclass(frozen=True)
+class _Streamed:
+    """A sheet part written at the last moment: the converted part with its runs."""
+
+    xml: bytes
+    runs: list[Run]
+    styles: dict[str, int | None]
+
+    def chunks(self) -> Iterator[bytes]:
+        return stream_sheet(self.xml, self.runs, self.styles)
+
+
+Entry = bytes | _Streamed
 
 
 @dataclass(frozen=True)
@@ -160,7 +181,7 @@ def _editing(part: str, file: str) -> Iterator[None]:
 
 def graft(
     pkg: Package,
-    rendered: str | Path,
+    rendered: str | Path | Rendition,
     names: Sequence[OutputName],
     target: str | Path | Destination,
 ) -> None:
@@ -176,7 +197,8 @@ def graft(
     cannot be read or was saved again since ``pkg`` was read, OutputError when
     the target cannot be written; on any error neither file is changed.
     """
-    source, rendered = pkg.path, Path(rendered)
+    rendition = rendered if isinstance(rendered, Rendition) else Rendition(Path(rendered))
+    source, rendered = pkg.path, rendition.path
     dest = target if isinstance(target, Destination) else plain(target)
     file = str(source)
     rb = _read_rendered(rendered)
@@ -275,10 +297,13 @@ def graft(
                 user_sheets = (read(s.part) or b"" for s in pkg.sheets if s.is_worksheet)
                 base_styles = bare_styles(rb.styles, *user_style_indices(user_sheets))
                 sty_data, smap = merge_styles(base_styles, rb.styles)
-        new_entries = [
-            (p, convert_sheet(r.xml, rb.strings, smap))
-            for p, r in zip(parts, rb.sheets, strict=True)
-        ]
+        final = {k: (None if v is None else smap.xf.get(v, 0) or None)
+                 for k, v in rendition.styles.items()}
+        new_entries: list[tuple[str, Entry]] = []
+        for p, r in zip(parts, rb.sheets, strict=True):
+            xml = convert_sheet(r.xml, rb.strings, smap)
+            runs = rendition.runs.get(r.title)
+            new_entries.append((p, xml if not runs else _Streamed(xml, runs, final)))
         new_entries += attached_entries
         if added_styles is not None and sty_data is not None:
             new_entries.append((added_styles, sty_data))
@@ -327,21 +352,91 @@ def graft(
         _write_atomic(zs, infos, gone, edits, new_entries, dest)
 
 
+#: Deflate level of the parts sheetfit writes (docs/engine-facts.md, P15: level 1 writes
+#: sheet XML several times faster than the default 6 for a few per cent more bytes).
+COMPRESS_LEVEL = 1
+
+
+def _copy_raw(src: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile) -> None:
+    """Copy an entry's compressed bytes as they are: no inflating and deflating again, so
+    the user's parts keep their bytes inside the archive as well as out of it."""
+    fp = src.fp
+    if fp is None:
+        raise ValueError("source archive is closed")
+    fp.seek(info.header_offset)
+    head = fp.read(30)
+    if head[:4] != b"PK\x03\x04":
+        raise zipfile.BadZipFile(f"bad local header for {info.filename}")
+    skip = int.from_bytes(head[26:28], "little") + int.from_bytes(head[28:30], "little")
+    fp.seek(info.header_offset + 30 + skip)
+    raw = fp.read(info.compress_size)
+    zi = zipfile.ZipInfo(info.filename, info.date_time)
+    zi.compress_type = info.compress_type
+    zi.external_attr = info.external_attr
+    zi.create_system = info.create_system
+    zi.flag_bits = info.flag_bits & ~0x08  # sizes go in the local header: no descriptor
+    zi.CRC, zi.compress_size, zi.file_size = info.CRC, info.compress_size, info.file_size
+    out = zout.fp
+    if out is None:
+        raise ValueError("target archive is closed")
+    zi.header_offset = out.tell()
+    zip64 = info.file_size > zipfile.ZIP64_LIMIT or info.compress_size > zipfile.ZIP64_LIMIT
+    out.write(zi.FileHeader(zip64))
+    out.write(raw)
+    zout.start_dir = out.tell()
+    zout.filelist.append(zi)
+    zout.NameToInfo[zi.filename] = zi
+
+
+def _write_beside(part: IO[bytes], chunks: Iterator[bytes]) -> None:
+    """Write ``chunks`` to ``part`` from a second thread, so that deflating one chunk
+    (zlib lets go of the interpreter lock) runs beside building the next on another core.
+    An error on either side stops both and is raised here."""
+    todo: queue.Queue[bytes | None] = queue.Queue(maxsize=3)
+    failed: list[BaseException] = []
+
+    def consume() -> None:
+        while (chunk := todo.get()) is not None:
+            if not failed:
+                try:
+                    part.write(chunk)
+                except BaseException as exc:  # noqa: BLE001 - handed to the producer
+                    failed.append(exc)
+
+    worker = threading.Thread(target=consume, name="sheetfit-deflate", daemon=True)
+    worker.start()
+    try:
+        for chunk in chunks:
+            if failed:
+                break
+            todo.put(chunk)
+    finally:
+        todo.put(None)
+        worker.join()
+    if failed:
+        raise failed[0]
+
+
 def _write_atomic(
     zs: zipfile.ZipFile,
     infos: list[zipfile.ZipInfo],
     gone: set[str],
     edits: dict[str, bytes],
-    new_entries: list[tuple[str, bytes]],
+    new_entries: list[tuple[str, Entry]],
     target: Destination,
 ) -> None:
     """Write the new package into a temporary file beside ``target`` that then replaces it
-    (``writer/target.py``: permissions kept, backup if asked, OS errors as refusals)."""
+    (``writer/target.py``: permissions kept, backup if asked, OS errors as refusals).
+    Untouched entries are copied compressed, as they are; sheet parts with column runs
+    are streamed in chunks."""
     with replacing(target) as fh, zipfile.ZipFile(fh, "w") as zout:
         for info in infos:
             if info.filename.lower() in gone:
                 continue
             data = edits.get(info.filename)
+            if data is None and info.compress_type in (zipfile.ZIP_STORED, zipfile.ZIP_DEFLATED):
+                _copy_raw(zs, info, zout)
+                continue
             if data is None:
                 data = zs.read(info)
             zi = zipfile.ZipInfo(info.filename, info.date_time)
@@ -349,7 +444,12 @@ def _write_atomic(
             zi.external_attr = info.external_attr
             zi.create_system = info.create_system
             zout.writestr(zi, data)
-        for name, data in new_entries:
+        for name, entry in new_entries:
             zi = zipfile.ZipInfo(name, _FIXED_TIME)
             zi.compress_type = zipfile.ZIP_DEFLATED
-            zout.writestr(zi, data)
+            zi._compresslevel = COMPRESS_LEVEL  # type: ignore[attr-defined]
+            if isinstance(entry, bytes):
+                zout.writestr(zi, entry)
+                continue
+            with zout.open(zi, "w") as part:
+                _write_beside(part, entry.chunks())

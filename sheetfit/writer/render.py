@@ -7,7 +7,7 @@ written here is a temporary file and never the user's workbook.
 from __future__ import annotations
 
 import math
-import re
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -15,18 +15,22 @@ import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
 from ..sheets.chartplan import ChartPlan
+from ..sheets.columns import Run
 from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan, style_format
+from .dotted import with_prefixes
 
-__all__ = ["render"]
+__all__ = ["Rendition", "render"]
 
 
-#: Functions with dotted names need the _xlfn. prefix in the file, or engines show #NAME?
-#: (docs/engine-facts.md, F1). Only functions sheet plans may use are listed.
-_DOTTED = re.compile(
-    r"(?<![\w.])((?:STDEV|VAR)\.[PS]|T\.(?:DIST(?:\.2T|\.RT)?|INV(?:\.2T)?)|F\.(?:DIST|INV)(?:\.RT)?"
-    r"|NORM\.S?\.?(?:DIST|INV)|CHISQ\.(?:DIST|INV)(?:\.RT)?|PERCENTILE\.(?:INC|EXC)"
-    r"|QUARTILE\.(?:INC|EXC)|MODE\.SNGL|RANK\.EQ|CONFIDENCE\.T)\("
-)
+@dataclass(frozen=True)
+class Rendition:
+    """The rendered package and what the graft streams into it: each sheet's column runs
+    (by title) and each run style's cell-format index in the rendered styles part
+    (None: the default format)."""
+
+    path: Path
+    runs: dict[str, list[Run]] = field(default_factory=dict)
+    styles: dict[str, int | None] = field(default_factory=dict)
 
 
 class _ExactWorksheet(Worksheet):  # type: ignore[misc]
@@ -49,10 +53,7 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
         super()._xml_formula_element(formula, result, attributes)
 
     def _prepare_formula(self, formula: str, expand_future_functions: bool = False) -> str:
-        formula = formula.removeprefix("{").removeprefix("=").removesuffix("}")
-        if "_xlfn." in formula or "." not in formula:
-            return formula
-        return _DOTTED.sub(r"_xlfn.\1(", formula)
+        return with_prefixes(formula.removeprefix("{").removeprefix("=").removesuffix("}"))
 
     def _get_range_data(self, row_start: int, col_start: int, row_end: int,
                         col_end: int) -> list[Any]:
@@ -88,8 +89,15 @@ def _print_setup(ws: Worksheet, sheet: SheetPlan) -> None:
         ws.repeat_rows(*rows)
 
 
-def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
-    """Write every planned sheet, in order, to a new xlsx at ``path``; return the path."""
+def render(plan: BookPlan, path: str | Path, date1904: bool = False,
+           bulk: bool = True) -> Rendition:
+    """Write every planned sheet, in order, to a new xlsx at ``path``.
+
+    With ``bulk`` (the default) the column runs of sheets without charts are left out of
+    the package and handed to the graft (``writer._bulk``), which streams them into the
+    user's package; otherwise (and on sheets with charts, whose cached points xlsxwriter
+    reads from its own cells) every cell goes through xlsxwriter.
+    """
     wb = xlsxwriter.Workbook(
         str(path),
         {
@@ -102,6 +110,13 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
         },
     )
     formats: dict[str, Any] = {k: (wb.add_format(v) if v else None) for k, v in STYLES.items()}
+
+    def fmt_of(style: str) -> Any:
+        if style not in formats:  # a user's own number format (plan.style_format)
+            formats[style] = wb.add_format(style_format(style))
+        return formats[style]
+
+    runs: dict[str, list[Run]] = {}
     for sheet in plan.sheets:
         ws = wb.add_worksheet(sheet.title, worksheet_class=_ExactWorksheet)
         _print_setup(ws, sheet)
@@ -111,15 +126,20 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
             ws.set_row(row, height)
         if sheet.freeze:
             ws.freeze_panes(*sheet.freeze)
-        for c in sheet.cells:
-            if c.style not in formats:  # a user's own number format (plan.style_format)
-                formats[c.style] = wb.add_format(style_format(c.style))
-            fmt = formats[c.style]
+        streamed = bulk and not sheet.charts and bool(sheet.runs)
+        if streamed:
+            runs[sheet.title] = sheet.runs
+            for u in sheet.runs:
+                fmt = fmt_of(u.style)
+                if fmt is not None:
+                    fmt._get_xf_index()  # into the styles part although no cell here uses it
+        for c in (sheet.loose if streamed else sheet.cells):
+            fmt = fmt_of(c.style)
             if c.link is not None:
                 # an internal link: a location in this workbook, no relationship part
                 ws.write_url(c.row, c.col, f"internal:{c.link}", fmt, str(c.value))
             elif c.formula is not None:
-                value = c.value
+                value = 0 if c.value is None else c.value  # xlsxwriter's default result
                 if isinstance(value, bool):
                     value = "TRUE" if value else "FALSE"
                 ws.write_formula(c.row, c.col, c.formula, fmt, value)
@@ -135,7 +155,9 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False) -> Path:
         if sheet.charts:
             _charts(wb, ws, sheet)
     wb.close()
-    return Path(path)
+    used = {u.style for rs in runs.values() for u in rs}
+    return Rendition(Path(path), runs,
+                     {k: None if formats[k] is None else formats[k].xf_index for k in used})
 
 
 #: Series colours: a blue and an orange that read apart in colour and in grey, then more.
@@ -155,7 +177,8 @@ def _charts(wb: xlsxwriter.Workbook, ws: Worksheet, sheet: SheetPlan) -> None:
         row, col = plan.anchor
         ws.insert_chart(row, col, _chart(wb, plan), {"object_position": 1})
         bottom = max(bottom, row + -(-plan.size[1] // 20) + 1)  # rows are 20 px high
-    below = [c.row for c in sheet.cells if c.row >= bottom]
+    below = [r for r in [c.row for c in sheet.loose] + [u.row0 for u in sheet.runs if u.n]
+             if r >= bottom] + [bottom for u in sheet.runs if u.row0 < bottom <= u.last]
     # a break one row above each later chart: an object touching a page's edge is
     # drawn (clipped) on that page too
     breaks = {p.anchor[0] - 1 for p in sheet.charts[1:]} | ({min(below)} if below else set())
