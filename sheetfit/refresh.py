@@ -124,13 +124,18 @@ def _values(pkg: Package, path: Path) -> BookValues:
     return BookValues(path, parts, pkg.date1904, pkg.workbook_part)
 
 
-def read_models(pkg: Package, path: Path, file: str) -> list[ModelData]:
+def read_models(pkg: Package, path: Path, file: str,
+                values: BookValues | None = None) -> list[ModelData]:
     """Every declared model of an opened book, read as a refresh reads it (with the notes
-    people typed on its owned sheets); the service's inspection reads books through this."""
-    with _values(pkg, path) as values:
-        models = find_models(pkg, values, file, REGISTRY)
-        for m in models:  # notes people typed on owned sheets, put back after
-            m.kept = read_kept(values, m.tag)
+    people typed on its owned sheets); the service's inspection reads books through this.
+    ``values``: a values reader of ``pkg`` the caller holds open (and closes), else one of
+    its own."""
+    if values is None:
+        with _values(pkg, path) as own:
+            return read_models(pkg, path, file, own)
+    models = find_models(pkg, values, file, REGISTRY)
+    for m in models:  # notes people typed on owned sheets, put back after
+        m.kept = read_kept(values, m.tag)
     return models
 
 
@@ -164,9 +169,10 @@ def refresh(book: str | Path, out: str | Path | None = None,
             kept = backup_path(dest.path) if backup and dest.exists else None
             phase("read")
             pkg = open_package(source)
-            models = read_models(pkg, source, file)
-            with _values(pkg, source) as values:
+            with _values(pkg, source) as values:  # one reader: each sheet read once
+                models = read_models(pkg, source, file, values)
                 before = read_history(pkg, values)  # the log, forecasts, notes to carry on
+            del values  # the cells read stay in memory no longer than the read phase
             phase("fit")
             fits = [(m, fit_model(m)) for m in models]
             phase("write")

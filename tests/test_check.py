@@ -251,6 +251,66 @@ def test_fingerprint_rederived_from_the_recipe_by_hand(tmp_path: Path) -> None:
     assert row[head.index("input fingerprint")] == h(text)[:16]
 
 
+@pytest.mark.parametrize("stream", [False, True], ids=["fast", "stream"])
+def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_path: Path,
+                                                             monkeypatch) -> None:
+    """The bulk digests of a two-column area holding every kind of cell (0 and -0, repeated
+    numbers and texts) equal SHA-256 of the README's tokens, written out here by hand, in
+    recipe order (row by row, left to right), and the one-cell path (``digest_cell``) of
+    each cell; in both readers."""
+    import datetime as dt
+
+    import xlsxwriter
+
+    from sheetfit.declare.fingerprint import area_digests, digest_cell
+    from sheetfit.declare.refs import parse_areas
+    from sheetfit.reader.package import open_package
+    from sheetfit.reader.values import BookValues
+    from sheetfit.refresh import _values
+
+    path = tmp_path / "kinds.xlsx"
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Data")
+    date = wb.add_format({"num_format": "yyyy-mm-dd"})
+    cells = [  # (column A, column B) as written, then the tokens the recipe makes of them
+        ((1.5, "n:1.5"), ("plain", "t:plain")),
+        ((True, "l:TRUE"), (None, "b:")),
+        (("=1/0", "e:#DIV/0!"), (0.1, "n:0.1")),
+        ((1e-05, "n:1e-05"), ("ünïcode ✓", "t:ünïcode ✓")),
+        ((dt.datetime(2024, 2, 29), "n:45351.0"), (1.5e16, "n:1.5e+16")),
+        ((12.0, "n:12.0"), ("  ", "t:  ")),
+        ((0.0, "n:0.0"), (-0.0, "n:-0.0")),  # equal numbers, two tokens
+        ((1.5, "n:1.5"), ("plain", "t:plain")),  # repeated: hashed once, placed twice
+        (("plain", "t:plain"), (1.5, "n:1.5")),
+    ]
+    for r, row in enumerate(cells):
+        for c, (v, _) in enumerate(row):
+            if isinstance(v, bool):
+                ws.write_boolean(r, c, v)
+            elif isinstance(v, dt.datetime):
+                ws.write_datetime(r, c, v, date)
+            elif isinstance(v, str) and v.startswith("="):
+                ws.write_formula(r, c, v, None, "#DIV/0!")
+            elif isinstance(v, str):
+                ws.write_string(r, c, v)
+            elif v is not None:
+                ws.write_number(r, c, v)
+    wb.close()
+    want = "".join(hashlib.sha256(tok.encode()).hexdigest()[:8] for row in cells for _, tok in row)
+    if stream:
+        monkeypatch.setattr(BookValues, "_fast", lambda self, name: None)
+    pkg = open_package(path)
+    with _values(pkg, path) as values:
+        area = parse_areas("Data!$A$1:$B$9")[0]
+        memo: dict = {}
+        assert area_digests(area, values, memo) == want
+        assert area_digests(area, values, memo) == want  # again, from the memo
+        one_by_one = "".join(digest_cell(values.sheet("Data").get(r, c))
+                             for r in range(1, 10) for c in (1, 2))
+        assert one_by_one == want
+        assert values.readers["Data"] == ("stream" if stream else "fast")
+
+
 def test_identifier_change_names_the_key_range(tmp_path: Path) -> None:
     rows = [["month"] + r for r in _rows()]
     for i, r in enumerate(rows[1:]):

@@ -136,6 +136,64 @@ def _route_book(path: Path, data: np.ndarray, total: bool) -> Path:
                                             "sf_route_x": "Data!$C:$D"})
 
 
+def _totals_row_by_row(Z: np.ndarray) -> list[Total]:
+    """The rule of ``sheetfit.fit.totals`` written plainly, one row at a time (the module's
+    note, bullet by bullet): the reference the windowed array version must equal."""
+    from sheetfit.fit.totals import MIN_BLOCK, TOTAL_RTOL
+
+    m = Z.shape[1]
+    found: list[Total] = []
+    block: list[int] = []  # detail rows since the previous total
+    grand: list[int] = []  # detail rows since the previous grand total
+    b_sum, b_abs, g_sum, g_abs = (np.zeros(m) for _ in range(4))
+    skipped = 0
+    for i, row in enumerate(Z):
+        if np.any(row != 0):
+            if len(block) >= MIN_BLOCK and np.all(np.abs(row - b_sum) <= TOTAL_RTOL * b_abs):
+                found.append(Total(i, block[0], block[-1], 0))
+                skipped += 1
+                block, b_sum, b_abs = [], np.zeros(m), np.zeros(m)
+                continue
+            if skipped and len(grand) >= MIN_BLOCK and \
+                    np.all(np.abs(row - g_sum) <= TOTAL_RTOL * g_abs):
+                found.append(Total(i, grand[0], i - 1, skipped))
+                block, b_sum, b_abs = [], np.zeros(m), np.zeros(m)
+                grand, g_sum, g_abs, skipped = [], np.zeros(m), np.zeros(m), 0
+                continue
+        block.append(i)
+        grand.append(i)
+        b_sum, b_abs = b_sum + row, b_abs + np.abs(row)
+        g_sum, g_abs = g_sum + row, g_abs + np.abs(row)
+    return found
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_windowed_rule_equals_the_rule_row_by_row(seed: int) -> None:
+    """Seeded tables of up to 3,000 rows with subtotals, grand totals, zero rows and small
+    integers (chance matches): the array version finds exactly the totals the plain loop
+    finds, across its window boundaries (64 rows after a total, doubling)."""
+    rng = np.random.default_rng(seed)
+    blocks, detail = [], []
+    for b in range(int(rng.integers(2, 40))):
+        size = int(rng.integers(1, 200)) if seed % 2 else int(rng.integers(1, 8))
+        block = (rng.integers(0, 4, (size, 3)) if seed % 3 == 0
+                 else np.round(rng.normal(100, 30, (size, 3)), 2)).astype(float)
+        if rng.random() < 0.2:
+            block[int(rng.integers(0, size))] = 0.0
+        blocks.append(block)
+        detail.append(block)
+        if rng.random() < 0.7 or (b == 0 and size >= 2):
+            blocks.append(block.sum(axis=0, keepdims=True))
+        if rng.random() < 0.15:
+            blocks.append(np.vstack(detail).sum(axis=0, keepdims=True))
+            detail = []
+    Z = np.vstack(blocks)
+    want = _totals_row_by_row(Z)
+    assert find_totals(Z) == want
+    if seed % 3:  # continuous data: the first block's subtotal (at least) is found
+        assert len(want) > 0 or len(blocks[0]) < 2
+
+
 def test_total_row_under_whole_column_data(tmp_path: Path) -> None:
     """The issue's scenario: a "Total" row under the data, names on whole columns.
 

@@ -77,3 +77,36 @@ def test_date_identifiers_show_as_dates(tmp_path: Path) -> None:
     head = [c.value for c in fitted[4]]
     cell = fitted.cell(5, head.index("month") + 1)
     assert cell.number_format == "mmm yyyy" and cell.value.startswith("=IF(ISBLANK(")
+
+
+def test_one_scan_reads_the_formats_of_a_whole_row(tmp_path: Path) -> None:
+    """``BookValues.number_format`` of every cell of a row far down a sheet (where new rows
+    sit under thousands of data rows) equals openpyxl's reading of the same cells; a cell
+    the row does not hold has no format (None); the row is scanned once for all of them."""
+    from sheetfit.reader import values as values_mod
+    from sheetfit.reader.package import open_package
+    from sheetfit.refresh import _values
+
+    path = tmp_path / "rows.xlsx"
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Data")
+    codes = {0: "0.00", 1: "#,##0", 2: None, 4: "0.0%", 27: '"$"#,##0.00'}  # D, Z.. left empty
+    for r in range(3000):
+        ws.write_row(r, 0, [float(r), r * 2.5, r % 7])
+    for c, code in codes.items():
+        ws.write_number(3000, c, 1.25 + c, wb.add_format({"num_format": code}) if code else None)
+    wb.close()
+    scans = []
+    real = values_mod.row_style_indices
+    pkg = open_package(path)
+    with _values(pkg, path) as values:
+        values_mod.row_style_indices = lambda fh, row: scans.append(row) or real(fh, row)
+        try:
+            got = {c: values.number_format("Data", 3001, c + 1) for c in range(30)}
+        finally:
+            values_mod.row_style_indices = real
+    sheet = openpyxl.load_workbook(path)["Data"]
+    for c in range(30):
+        want = sheet.cell(3001, c + 1).number_format if c in codes else None
+        assert got[c] == want, c
+    assert scans == [3001]

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+import math
 import re
 import zipfile
 from collections.abc import Callable
@@ -109,6 +110,46 @@ def test_fast_and_streaming_readers_agree(book, tmp_path: Path, monkeypatch) -> 
         assert kinds == {"blank", "number", "text", "error", "other"}
         assert fast[("Data", 3, 2)].text == "rich text end"
         assert fast[("Data", 5, 7)].text == "=1+1"
+
+
+def _same_value(a, b) -> bool:
+    """Two Values equal in kind, text and number (nan equal to nan)."""
+    return (a.kind, a.text) == (b.kind, b.text) and (
+        a.number == b.number or (math.isnan(a.number) and math.isnan(b.number)))
+
+
+@pytest.mark.parametrize("stream", [False, True], ids=["fast", "stream"])
+@pytest.mark.parametrize("book", EXAMPLES + ["every_kind", "unsaved"],
+                         ids=lambda b: getattr(b, "stem", b))
+def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, stream: bool, tmp_path: Path,
+                                                          monkeypatch) -> None:
+    """``BookValues.column`` (arrays, the declarations' path) gives for every cell exactly
+    the Value ``SheetValues.get`` gives, in both readers: every kind, errors, formula cells
+    without a result, rows and columns beyond the used area, a run starting mid-sheet."""
+    path = (_every_kind(tmp_path / "kinds.xlsx") if book == "every_kind"
+            else _formula_book(tmp_path, 5) if book == "unsaved" else book)
+    pkg = open_package(path)
+    seen = set()
+    with monkeypatch.context() as m:
+        if stream:
+            m.setattr(BookValues, "_fast", lambda self, name: None)
+        with _values(pkg, path) as values:
+            for name in values.sheet_parts:
+                sv = values.sheet(name)
+                rows = max(sv.last_used_row(1, 60), 1) + 2
+                for c in range(1, 40):
+                    for row1 in (1, 2):
+                        col = values.column(name, c, row1, rows)
+                        assert values.column(name, c, row1, rows) is col  # read once
+                        assert len(col) == rows - row1 + 1
+                        for i in range(len(col)):
+                            want = sv.get(row1 + i, c)
+                            seen.add(want.kind)
+                            assert _same_value(col.value(i), want), (name, row1 + i, c)
+    if book == "every_kind":
+        assert seen == {"blank", "number", "text", "error", "other"}
+    if book == "unsaved":
+        assert "unsaved" in seen
 
 
 def test_only_the_declared_sheets_are_parsed(tmp_path: Path) -> None:

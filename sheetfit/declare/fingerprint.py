@@ -32,17 +32,33 @@ from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from ..a1 import absolute, quote_sheet
-from ..reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, BookValues, Value
+from ..reader.columns import KINDS
+from ..reader.values import (
+    BLANK,
+    ERROR,
+    NUMBER,
+    OTHER,
+    TEXT,
+    UNSAVED,
+    BookValues,
+    ColumnValues,
+    Value,
+)
 from .refs import Area
 
 __all__ = [
     "DIGEST_HEX",
     "RECIPE",
+    "DigestMemo",
     "InputRecord",
     "RangeRecord",
+    "area_digests",
     "cell_addresses",
     "cell_token",
+    "column_digests",
     "digest_cell",
     "record_inputs",
     "settings_text",
@@ -148,15 +164,82 @@ def settings_text(values: Mapping[str, Any], names: Sequence[str]) -> str:
     return ";".join(f"{n}={_setting_word(values[n])}" for n in names)
 
 
+#: Cells whose tokens are built and hashed together (bounds the memory the tokens take).
+_CHUNK = 1 << 16
+_PREFIX = {TEXT: "t:", ERROR: "e:", OTHER: "l:"}
+_FIXED = {BLANK: "b:", UNSAVED: "u:"}
+
+#: Cell digests of columns already hashed, by (sheet, column, first row, last row).
+DigestMemo = dict[tuple[str, int, int, int], np.ndarray]
+
+
+def _digest4(token: bytes) -> bytes:
+    return hashlib.sha256(token).digest()[:DIGEST_HEX // 2]
+
+
+def _hash_all(tokens: list[bytes]) -> np.ndarray:
+    return np.frombuffer(b"".join(map(_digest4, tokens)), dtype=">u4")
+
+
+def column_digests(cv: ColumnValues) -> np.ndarray:
+    """The digest of every cell of one column (step 2 of the recipe), as big-endian uint32s.
+
+    The same tokens as ``cell_token`` (tests/test_check.py compares them cell by cell),
+    built in bulk and hashed once per distinct token: numbers through ``repr`` of each
+    distinct float (told apart by their bits, so 0.0 and -0.0 stay two tokens), text
+    cells through their distinct texts, one digest shared by every blank.
+    """
+    n = len(cv)
+    out = np.empty(n, dtype=">u4")
+    for kind, token in _FIXED.items():
+        mask = cv.of_kind(kind)
+        if mask.any():
+            out[mask] = _hash_all([token.encode()])[0]
+    nums = np.flatnonzero(cv.of_kind(NUMBER))
+    if len(nums):
+        bits, where = np.unique(cv.number[nums].view(np.uint64), return_inverse=True)
+        digests = np.empty(len(bits), dtype=">u4")
+        for k in range(0, len(bits), _CHUNK):
+            floats = bits[k:k + _CHUNK].view(np.float64).tolist()
+            digests[k:k + _CHUNK] = _hash_all([("n:" + r).encode() for r in map(repr, floats)])
+        out[nums] = digests[where.ravel()]
+    seen: dict[str, int] = {}
+    cells = [i for i in cv.text if KINDS[cv.kind[i]] in _PREFIX]
+    tokens = [_PREFIX[KINDS[cv.kind[i]]] + cv.text[i] for i in cells]
+    distinct = [seen.setdefault(t, len(seen)) for t in tokens]
+    if cells:
+        texts = list(seen)
+        digests = np.concatenate([
+            _hash_all([t.encode("utf-8", "surrogatepass") for t in texts[k:k + _CHUNK]])
+            for k in range(0, len(texts), _CHUNK)])
+        out[cells] = digests[distinct]
+    return out
+
+
+def area_digests(area: Area, values: BookValues, memo: DigestMemo | None = None) -> str:
+    """The cell digests of one area in recipe order (row by row, left to right), run together."""
+    memo = {} if memo is None else memo
+    cols = []
+    for c in range(area.col1, area.col2 + 1):
+        key = (area.sheet.casefold(), c, area.row1, area.row2)
+        if key not in memo:
+            memo[key] = column_digests(values.column(area.sheet, c, area.row1, area.row2))
+        cols.append(memo[key])
+    return np.column_stack(cols).ravel().astype(">u4").tobytes().hex()
+
+
 def record_inputs(tag: str, ranges: Mapping[str, tuple[str, Sequence[Area]]],
-                  values: BookValues, settings: str, role_order: Sequence[str]) -> InputRecord:
-    """The record of a model's declared ranges (role -> (defined name, areas)) as read now."""
+                  values: BookValues, settings: str, role_order: Sequence[str],
+                  memo: DigestMemo | None = None) -> InputRecord:
+    """The record of a model's declared ranges (role -> (defined name, areas)) as read now.
+
+    ``memo`` keeps each column's digests for the other models of the same book read.
+    """
     out = []
     for role in role_order:
         if role not in ranges:
             continue
         name, areas = ranges[role]
-        digests = "".join(digest_cell(values.sheet(s).get(r, c))
-                          for s, r, c in cell_addresses(areas))
+        digests = "".join(area_digests(a, values, memo) for a in areas)
         out.append(RangeRecord(role, name, range_text(areas), digests))
     return InputRecord(tag, tuple(out), settings)

@@ -24,7 +24,7 @@ import numpy as np
 
 from ..errors import Context, DataError, SettingError
 from ..labels import labels_equal
-from ..reader.values import NUMBER, TEXT, Value
+from ..reader.values import NUMBER, TEXT, ColumnValues, Value
 from ..words import clip
 
 __all__ = ["MAX_LEVEL", "Coding", "code_levels", "indicators", "is_level", "text_columns"]
@@ -55,14 +55,9 @@ def is_level(v: Value) -> bool:
     return v.kind == TEXT and bool(v.text.strip())
 
 
-def text_columns(cells: Sequence[Sequence[Value]]) -> list[bool]:
+def text_columns(cells: Sequence[ColumnValues]) -> list[bool]:
     """For each attribute column's data cells: is it a text attribute (more text than numbers)?"""
-    out = []
-    for col in cells:
-        texts = sum(1 for v in col if is_level(v))
-        numbers = sum(1 for v in col if v.kind == NUMBER)
-        out.append(texts > numbers)
-    return out
+    return [int(cv.levels().sum()) > int(cv.of_kind(NUMBER).sum()) for cv in cells]
 
 
 def _baselines(setting: tuple[str, ...] | None, names: list[str],

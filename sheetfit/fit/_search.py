@@ -13,8 +13,12 @@ compared.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-from scipy.spatial import cKDTree
+
+if TYPE_CHECKING:  # scipy's neighbour search is imported when a neighbour model is fitted
+    from scipy.spatial import cKDTree
 
 from sheetfit.fit._sums import fsum_rows
 

@@ -27,10 +27,12 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from scipy.spatial import cKDTree
+
+if TYPE_CHECKING:  # scipy's neighbour search is imported when a neighbour model is fitted
+    from scipy.spatial import cKDTree
 
 from sheetfit.errors import DataError
 from sheetfit.fit import checks
@@ -170,6 +172,8 @@ def _fit_search(
     kk = checks.check_k(k, n)
     scaling = standard_units(X, on, names_)
     Z = scaling.transform(X)
+    from scipy.spatial import cKDTree  # here, not at start-up: a least-squares book needs none
+
     tree = cKDTree(Z)
     table_max = min(TABLE_MAX_K, n - 1)
     depth = max(kk or 0, table_max)

@@ -6,7 +6,8 @@ leverage: it drags a least-squares line towards itself and gives nearest-neighbo
 and strip methods a row that resembles nothing real. This module finds them from the
 numbers alone.
 
-The rule (one pass, O(n·m) for n rows and m columns, running sums only):
+The rule (one pass, O(n·m) for n rows and m columns, running sums only; the rows are
+examined a window at a time with array operations):
 
 * a row is a **total** when every column equals the sum of that column over a block
   of at least two other rows directly above it: the *detail* rows (rows not already
@@ -61,36 +62,49 @@ class Total:
     skipped: int
 
 
+#: Rows examined at once after a total is found; doubled while none is found (to _MAX_WINDOW).
+_MIN_WINDOW = 64
+_MAX_WINDOW = 1 << 16
+
+
 class _Running:
     """Column sums and absolute sums of the detail rows since a reset."""
 
     def __init__(self, m: int) -> None:
-        self.total = np.zeros(m)
-        self.size = np.zeros(m)
+        self.m = m
+        self.reset()
+
+    def reset(self) -> None:
+        self.total = np.zeros(self.m)
+        self.size = np.zeros(self.m)
         self.count = 0
         self.first = -1
         self.last = -1
         self.skipped = 0
 
-    def reset(self) -> None:
-        self.total[:] = 0.0
-        self.size[:] = 0.0
-        self.count = 0
-        self.first = self.last = -1
-        self.skipped = 0
+    def window(self, rows: np.ndarray, nonzero: np.ndarray) -> tuple[np.ndarray, np.ndarray,
+                                                                      np.ndarray]:
+        """For each of ``rows`` (in order, none a total), whether it matches the sum of the
+        detail rows before it; and the running sums before each row and after the last.
 
-    def add(self, i: int, row: np.ndarray) -> None:
-        self.total += row
-        self.size += np.abs(row)
+        The running sums are accumulated row after row (``np.cumsum`` adds in order), so
+        they are bit for bit the sums a row-by-row loop keeps.
+        """
+        total = np.cumsum(np.vstack([self.total, rows]), axis=0)
+        size = np.cumsum(np.vstack([self.size, np.abs(rows)]), axis=0)
+        count = self.count + np.arange(len(rows))
+        close = np.all(np.abs(rows - total[:-1]) <= TOTAL_RTOL * size[:-1], axis=1)
+        return nonzero & (count >= MIN_BLOCK) & close, total, size
+
+    def advance(self, start: int, k: int, total: np.ndarray, size: np.ndarray) -> None:
+        """Add rows start..start+k-1 (sums after them: ``total[k]``, ``size[k]``)."""
+        if k == 0:
+            return
         if self.count == 0:
-            self.first = i
-        self.count += 1
-        self.last = i
-
-    def matches(self, row: np.ndarray) -> bool:
-        if self.count < MIN_BLOCK:
-            return False
-        return bool(np.all(np.abs(row - self.total) <= TOTAL_RTOL * self.size))
+            self.first = start
+        self.total, self.size = total[k].copy(), size[k].copy()
+        self.count += k
+        self.last = start + k - 1
 
 
 def reason(first: int, last: int, total: Total, what: str) -> str:
@@ -109,20 +123,32 @@ def find_totals(Z: np.ndarray) -> list[Total]:
     if m == 0:
         return []
     block, grand = _Running(m), _Running(m)
+    nonzero = np.any(Z != 0, axis=1)
     found: list[Total] = []
-    for i in range(n):
-        row = Z[i]
-        if np.any(row != 0):
-            if block.matches(row):
-                found.append(Total(i, block.first, block.last, 0))
-                grand.skipped += 1  # a subtotal: the grand running sum skips it
-                block.reset()
-                continue
-            if grand.matches(row) and grand.skipped > 0:
-                found.append(Total(i, grand.first, i - 1, grand.skipped))
-                grand.reset()
-                block.reset()
-                continue
-        block.add(i, row)
-        grand.add(i, row)
+    i, width = 0, _MIN_WINDOW
+    while i < n:
+        j = min(n, i + width)
+        rows = Z[i:j]
+        sub, b_total, b_size = block.window(rows, nonzero[i:j])
+        grand_hit, g_total, g_size = grand.window(rows, nonzero[i:j])
+        if grand.skipped == 0:  # a grand total sums subtotalled blocks
+            grand_hit[:] = False
+        hits = np.flatnonzero(sub | grand_hit)
+        if len(hits) == 0:
+            block.advance(i, j - i, b_total, b_size)
+            grand.advance(i, j - i, g_total, g_size)
+            i, width = j, min(2 * width, _MAX_WINDOW)
+            continue
+        t = int(hits[0])
+        k = i + t
+        block.advance(i, t, b_total, b_size)
+        grand.advance(i, t, g_total, g_size)
+        if sub[t]:  # a subtotal: the grand running sum skips it
+            found.append(Total(k, block.first, block.last, 0))
+            grand.skipped += 1
+        else:
+            found.append(Total(k, grand.first, k - 1, grand.skipped))
+            grand.reset()
+        block.reset()
+        i, width = k + 1, _MIN_WINDOW
     return found

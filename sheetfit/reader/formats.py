@@ -11,7 +11,9 @@ from typing import IO
 
 from defusedxml import ElementTree
 
-__all__ = ["BUILTIN_FORMATS", "StyleTable", "amount_format", "cell_style_index"]
+from ..a1 import col_index
+
+__all__ = ["BUILTIN_FORMATS", "StyleTable", "amount_format", "row_style_indices"]
 
 #: Built-in number formats by id (ECMA-376 Part 1, 18.8.30 numFmt; the common ones, from
 #: memory of the standard's table).
@@ -54,23 +56,40 @@ class StyleTable:
         return self.codes[index] if 0 <= index < len(self.codes) else None
 
 
-def cell_style_index(fh: IO[bytes], ref: str) -> int | None:
-    """The ``s`` attribute of cell ``ref`` (e.g. "B5") in a sheet part; 0 when it has none."""
-    pat = re.compile(rb'<c\b[^>]*\br="' + ref.encode() + rb'"[^>]*>')
+def row_style_indices(fh: IO[bytes], row: int) -> dict[int, int]:
+    """The ``s`` attribute (0 when absent) of each cell of sheet row ``row`` in a sheet part,
+    by column number; empty when the row is not within ``SCAN_LIMIT`` bytes of the top.
+
+    One scan serves every cell of the row (the first data row's columns, a row of new
+    rows), so a row far down a large part is read once, not once per column.
+    """
+    cell = re.compile(rb'<c\b[^>]*\br="([A-Z]{1,3})' + str(row).encode() + rb'"[^>]*>')
     s_attr = re.compile(rb'\bs="(\d+)"')
     tail, seen = b"", 0
+    found = None
     while seen < SCAN_LIMIT:
         chunk = fh.read(_CHUNK)
         if not chunk:
-            return None
+            break
         seen += len(chunk)
         buf = tail + chunk
-        m = pat.search(buf)
-        if m is not None:
-            s = s_attr.search(m.group(0))
-            return int(s.group(1)) if s else 0
+        found = cell.search(buf)
+        if found is not None:
+            span = buf[found.start():]
+            while b"</row>" not in span and seen < SCAN_LIMIT:  # the rest of the row
+                more = fh.read(_CHUNK)
+                if not more:
+                    break
+                seen += len(more)
+                span += more
+            end = span.find(b"</row>")
+            out: dict[int, int] = {}
+            for m in cell.finditer(span if end < 0 else span[:end]):
+                s = s_attr.search(m.group(0))
+                out.setdefault(col_index(m.group(1).decode()), int(s.group(1)) if s else 0)
+            return out
         tail = buf[-512:]
-    return None
+    return {}
 
 
 _DATE_TOKENS = re.compile(r"[ymdhsYMDHS]")

@@ -21,9 +21,9 @@ is read on first use; the file is opened once and held until the reader is close
 
 from __future__ import annotations
 
-import datetime as dt
 import zipfile
 from dataclasses import dataclass, field
+from operator import itemgetter
 from pathlib import Path
 from types import TracebackType
 from typing import Any, Protocol, Self
@@ -32,10 +32,11 @@ import python_calamine
 from defusedxml import DefusedXmlException
 from defusedxml.ElementTree import ParseError
 
-from ..a1 import cell_ref
 from ..errors import Context, PackageError
 from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
-from .formats import StyleTable, cell_style_index
+from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
+from .columns import ColumnValues, column_values
+from .formats import StyleTable, row_style_indices
 from .package import parse_rels, rels_part_of
 
 __all__ = [
@@ -47,16 +48,11 @@ __all__ = [
     "TEXT_CAP",
     "UNSAVED",
     "BookValues",
+    "ColumnValues",
     "SheetValues",
     "Value",
 ]
 
-BLANK, NUMBER, TEXT, ERROR, OTHER = "blank", "number", "text", "error", "other"
-#: A formula cell stored without its result (written by a program that does not calculate).
-UNSAVED = "unsaved"
-
-_EPOCH_1900 = dt.datetime(1899, 12, 30)
-_EPOCH_1904 = dt.datetime(1904, 1, 1)
 _SHARED_STRINGS = "/sharedStrings"
 #: The fast reader may build this many cells beyond four per value before we stream instead.
 DENSE_SLACK = 1 << 20
@@ -64,17 +60,10 @@ DENSE_SLACK = 1 << 20
 TAIL_LIMIT = 16 << 20
 
 
-@dataclass(frozen=True)
-class Value:
-    """One cell's content as sheetfit sees it: its kind and, for numbers, the float."""
-
-    kind: str
-    number: float = float("nan")
-    text: str = ""
-
-
 class _Cells(Protocol):
     def raw(self, row: int, col: int) -> Any: ...
+
+    def column(self, col: int, row1: int, row2: int) -> list[Any]: ...
 
     def last_row(self, col1: int, col2: int) -> int: ...
 
@@ -90,6 +79,18 @@ class _Dense:
             return self.rows[row - 1][col - 1] if row > 0 and col > 0 else ""
         except IndexError:
             return ""
+
+    def column(self, col: int, row1: int, row2: int) -> list[Any]:
+        """Raw values of rows row1..row2 of one column ("" beyond the rectangle)."""
+        n = row2 - row1 + 1
+        if col < 1 or row1 < 1:
+            return [self.raw(r, col) for r in range(row1, row2 + 1)]
+        seg = self.rows[row1 - 1:row2]
+        try:
+            out = list(map(itemgetter(col - 1), seg))
+        except IndexError:  # a short row: the slow way
+            out = [row[col - 1] if len(row) >= col else "" for row in seg]
+        return out + [""] * (n - len(out))
 
     def last_row(self, col1: int, col2: int) -> int:
         for i in range(len(self.rows) - 1, -1, -1):
@@ -108,6 +109,20 @@ class _Sparse:
     def raw(self, row: int, col: int) -> Any:
         cells = self.rows.get(row)
         return "" if cells is None else cells.get(col, "")
+
+    def column(self, col: int, row1: int, row2: int) -> list[Any]:
+        """Raw values of rows row1..row2 of one column ("" where no cell holds one)."""
+        out: list[Any] = [""] * (row2 - row1 + 1)
+        if len(self.rows) < len(out):
+            for r, cells in self.rows.items():
+                if row1 <= r <= row2 and col in cells:
+                    out[r - row1] = cells[col]
+        else:
+            for r in range(row1, row2 + 1):
+                found = self.rows.get(r)
+                if found is not None and col in found:
+                    out[r - row1] = found[col]
+        return out
 
     def last_row(self, col1: int, col2: int) -> int:
         if len(self._order) != len(self.rows):
@@ -135,26 +150,12 @@ class SheetValues:
             return Value(ERROR, text=err)
         if self.unsaved and (row, col) in self.unsaved:
             return Value(UNSAVED)
-        return self._classify(self.cells.raw(row, col))
+        return classify(self.cells.raw(row, col), self.date1904)
 
-    def _classify(self, raw: Any) -> Value:
-        if isinstance(raw, bool):
-            return Value(OTHER, text=str(raw).upper())
-        if isinstance(raw, (int, float)):
-            return Value(NUMBER, float(raw))
-        if isinstance(raw, str):
-            return Value(BLANK) if raw == "" else Value(TEXT, text=raw[:TEXT_CAP])
-        epoch = _EPOCH_1904 if self.date1904 else _EPOCH_1900
-        if isinstance(raw, dt.datetime):
-            return Value(NUMBER, (raw - epoch) / dt.timedelta(days=1))
-        if isinstance(raw, dt.date):
-            return Value(NUMBER, float((raw - epoch.date()).days))
-        if isinstance(raw, dt.time):
-            secs = raw.hour * 3600 + raw.minute * 60 + raw.second + raw.microsecond / 1e6
-            return Value(NUMBER, secs / 86400.0)
-        if isinstance(raw, dt.timedelta):
-            return Value(NUMBER, raw / dt.timedelta(days=1))
-        return Value(OTHER, text=str(raw)[:TEXT_CAP])
+    def column(self, col: int, row1: int, row2: int) -> ColumnValues:
+        """Rows row1..row2 of one column at once, as arrays (``reader/columns.py``)."""
+        return column_values(self.name, col, row1, self.cells.column(col, row1, row2),
+                             self.errors, self.unsaved, self.date1904)
 
     def last_used_row(self, col1: int, col2: int) -> int:
         """The last row holding any value, error or formula in columns col1..col2; 0 if none."""
@@ -196,6 +197,8 @@ class BookValues:
     #: Which reader read each sheet ("fast" or "stream"), by sheet name.
     readers: dict[str, str] = field(default_factory=dict)
     _cache: dict[str, SheetValues] = field(default_factory=dict)
+    _columns: dict[tuple[str, int, int, int], ColumnValues] = field(
+        default_factory=dict, init=False, repr=False)
     _book: Any = None
     _book_failed: bool = field(default=False, init=False, repr=False)
     _strings: list[str] | None = field(default=None, init=False, repr=False)
@@ -203,6 +206,9 @@ class BookValues:
     _members: dict[str, str] = field(default_factory=dict, init=False, repr=False)
     _closed: bool = field(default=False, init=False, repr=False)
     _styles: StyleTable | None = field(default=None, init=False, repr=False)
+    #: Style index of the cells of each sheet row asked for, by (sheet, row): column -> index.
+    _row_styles: dict[tuple[str, int], dict[int, int]] = field(
+        default_factory=dict, init=False, repr=False)
 
     def __enter__(self) -> Self:
         return self
@@ -235,6 +241,15 @@ class BookValues:
             self._cache[key] = self._load(key)
         return self._cache[key]
 
+    def column(self, sheet: str, col: int, row1: int, row2: int) -> ColumnValues:
+        """Rows row1..row2 of one column of ``sheet`` as arrays, read once per reader:
+        models that share a range share its arrays (treat them as read-only)."""
+        key = (self._canonical(sheet), col, row1, row2)
+        found = self._columns.get(key)
+        if found is None:
+            found = self._columns[key] = self.sheet(sheet).column(col, row1, row2)
+        return found
+
     def _canonical(self, name: str) -> str:
         for known in self.sheet_parts:
             if known.casefold() == name.casefold():
@@ -258,9 +273,11 @@ class BookValues:
         try:
             if self._styles is None:
                 self._styles = self._style_table()
-            member = self._member(self.sheet_parts[self._canonical(sheet)])
-            with self._archive().open(member) as fh:
-                index = cell_style_index(fh, cell_ref(row, col))
+            key = (self._canonical(sheet), row)
+            if key not in self._row_styles:
+                with self._archive().open(self._member(self.sheet_parts[key[0]])) as fh:
+                    self._row_styles[key] = row_style_indices(fh, row)
+            index = self._row_styles[key].get(col)
             return None if index is None else self._styles.code(index)
         except (KeyError, ValueError, OSError, zipfile.BadZipFile, StopIteration,
                 ParseError, DefusedXmlException, PackageError):
@@ -291,6 +308,7 @@ class BookValues:
         zf = self._archive()
         data = zf.read(member)
         found = scan(data) if utf8(data) else None
+        del data  # the sheet's XML is not held while the fast reader parses the same part
         stop: int | None = None
         if found is not None and found.located:
             if found.last_row == 0:  # nothing in the sheet holds a value or a formula
@@ -305,7 +323,6 @@ class BookValues:
                                        self.date1904)
             if found.tail > TAIL_LIMIT:
                 stop = found.last_row
-        del data
         with zf.open(member) as fh:
             cells = stream_sheet(fh, self._shared_strings(), stop)
         self.readers[name] = "stream"
