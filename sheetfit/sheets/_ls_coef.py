@@ -17,11 +17,11 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from ..a1 import absolute, col_letter
 from ..declare.model import Keys
 from ..fit.bootstrap import Bootstrap
+from ..fit.distributions import chi2_sf, f_sf, t_isf, t_sf
 from ..fit.inference import breusch_pagan, coef_table
 from ..fit.leastsq import LeastSquaresResult
 from ._ls_rows import RowColumns
@@ -208,7 +208,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
     dfr = fig.add("residual degrees of freedom", df, f"={nr}-{pr}", "int", "n − p")
     lvr = fig.add("confidence level", d.level, None, "pct",
                   "the level setting (default 0.95)")
-    tq = float(stats.t.isf((1 - d.level) / 2, df)) if df > 0 else "n/a"
+    tq = float(t_isf((1 - d.level) / 2, df)) if df > 0 else "n/a"
     tqr = fig.add("t multiplier", tq, f'=IF({dfr}>0,T.INV.2T(1-{lvr},{dfr}),"n/a")', "ratio",
                   "half-width of a range = t multiplier × standard error")
     exr_cell = fig.add("fit reproduces y exactly", "yes" if exact else "no",
@@ -265,7 +265,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
                  f'=IF(AND({pr}-{int(intercept)}>0,{dfr}>0,NOT({exr})),'
                  f'(({total_f}-SUMSQ({R}))/({pr}-{int(intercept)}))/(SUMSQ({R})/{dfr}),"n/a")',
                  "dec2", "explained against unexplained variation, per degree of freedom")
-    fp = float(stats.f.sf(fval, dfm, df)) if isinstance(fval, float) else "n/a"
+    fp = float(f_sf(fval, dfm, df)) if isinstance(fval, float) else "n/a"
     fig.add("p-value of F", fp, f'=IF(ISNUMBER({fr}),F.DIST.RT({fr},{dfm},{dfr}),"n/a")',
             "pvalue", "chance of an F this large if no term mattered")
     lm = breusch_pagan(res)[0] if df > 1 and not exact else math.nan
@@ -273,7 +273,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
                   "n·R² of the squared residuals on the terms (Koenker's form), computed "
                   "by sheetfit")
     k_bp = p - int(intercept)
-    bpp = float(stats.chi2.sf(lm, k_bp)) if math.isfinite(lm) else "n/a"
+    bpp = float(chi2_sf(lm, k_bp)) if math.isfinite(lm) else "n/a"
     bppr = fig.add("p-value of Breusch–Pagan", bpp,
                    f'=IF(ISNUMBER({bpr}),CHISQ.DIST.RT({bpr},{k_bp}),"n/a")', "pvalue",
                    "chance of a statistic this large if the spread did not change")
@@ -313,7 +313,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
         cs.put(r, C_HC3, _na(float(table.hc3_se[k])), style=coef_style(float(table.hc3_se[k]), 3))
         t = coef[k] / se if isinstance(se, float) and se != 0 and not exact else "n/a"
         cs.put(r, C_T, t, f'=IF(AND(ISNUMBER({F}),NOT({exr})),{B}/{F},"n/a")', "dec2")
-        pv = float(2 * stats.t.sf(abs(t), df)) if isinstance(t, float) else "n/a"
+        pv = float(2 * t_sf(abs(t), df)) if isinstance(t, float) else "n/a"
         cs.put(r, C_P, pv, f'=IF(ISNUMBER({H}),T.DIST.2T(ABS({H}),{dfr}),"n/a")', "pvalue")
         ok = isinstance(se, float) and isinstance(tq, float)
         lo = coef[k] - tq * se if ok else "n/a"  # type: ignore[operator]

@@ -9,11 +9,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
 
 from ..a1 import absolute, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.bootstrap import Bootstrap
+from ..fit.distributions import t_isf
 from ..fit.inference import Influence, influence, intervals
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
@@ -232,7 +232,7 @@ def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_co
     n, p = res.n_, res.p_
     df = res.df_resid_
     sd = float(res.resid_sd_) if df > 0 else None
-    tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else math.nan
+    tq = float(t_isf((1 - level) / 2, df)) if df > 0 else math.nan
     half = tq * sd * math.sqrt(1 + p / n) if sd is not None else math.nan
     rows = range(len(model.used))
     return plan_audit(
@@ -316,7 +316,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     tq_ref = cs.ref(lay.figure_row("t multiplier"), 1)
     sd_ref = cs.ref(lay.figure_row("sd used"), 1)
     df = res.df_resid_
-    tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
+    tq = float(t_isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
     x_styles = [decimal_style(new.X[:, j], fmt=model.xs[j].fmt)
