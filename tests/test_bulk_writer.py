@@ -39,6 +39,8 @@ def _cells(path: Path) -> dict[tuple[str, str], tuple[Any, ...]]:
                 if c.value is None and not c.has_style:
                     continue
                 cached = vs[c.coordinate].value
+                if type(cached) is int:  # a number is a double in the file: "-3" and "-3.0"
+                    cached = float(cached)  # are the same cell (openpyxl types them apart)
                 out[(ws.title, c.coordinate)] = (
                     c.value, cached, type(cached).__name__, c.number_format, c.font.b, c.font.i)
     return out

@@ -126,6 +126,14 @@ def _shifted(text: str, by: int) -> str:
     return "".join(out)
 
 
+def _results(values: Any) -> list[str]:
+    """Formulas' cached values with 17 significant digits (``%.17g``, which round-trips
+    every double), formatted by one ``%`` over the chunk: about twice as fast as ``repr``
+    per value. A spreadsheet recalculates these; plain values keep ``_reprs``."""
+    x = np.asarray(values, dtype=float).tolist()
+    return ("%.17g\x00" * len(x) % tuple(x)).split("\x00")[:-1]
+
+
 def _reprs(values: Any) -> list[str]:
     """Every float's repr, made in one C loop (a list's repr) rather than one call each."""
     x = np.asarray(values, dtype=float).tolist()
@@ -147,14 +155,14 @@ def _piece(run: Run, a: int, b: int, style: int | None,
         return f'<c r="{letter}{{0}}"{s}><v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
     follower = f'<f t="shared" si="{si}"/>'
     if si is not None and a > 0 and numeric:
-        return f'<c r="{letter}{{0}}"{s}>{follower}<v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
+        return f'<c r="{letter}{{0}}"{s}>{follower}<v>{{1}}</v></c>', [rows, _results(v[a:b])]
     if si is None and numeric and t is not None and all(
             x is None or (isinstance(x, np.ndarray) and x.dtype.kind in "fiu") for x in t.args):
         body = _shifted(_esc(with_prefixes(t.text[1:])), 1)
         cols: list[Any] = [rows] + [rows if x is None else np.asarray(x)[a:b].tolist()
                                     for x in t.args]
         frag = f'<c r="{letter}{{0}}"{s}><f>{body}</f><v>{{{len(t.args) + 1}}}</v></c>'
-        return frag, cols + [_reprs(v[a:b])]
+        return frag, cols + [_results(v[a:b])]
     refs = [f"{letter}{r}" for r in rows]
     values = run.scalars(a, b)
     if t is None:
