@@ -300,6 +300,7 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
 
     # --- the coefficient rows ---------------------------------------------------------
     table = coef_table(res, d.level)
+    sums = (fsum_sq(d.resid), fsum_sq(d.Y))  # the orthogonality checks' scale, once
     for k, term in enumerate(res.terms_):
         r = lay.first + k
         a = r + 1
@@ -324,12 +325,12 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
                                        lo if isinstance(lo, float) else math.nan,
                                        hi if isinstance(hi, float) else math.nan, d.level))
         if intercept and k == 0:
-            value = _cosine(d.resid, np.ones(n), d.Y)
+            value = _cosine(d.resid, np.ones(n), sums)
             f = _check_formula(R, None, Y)
         else:
             j = k - int(intercept)
             t_rng = d.term_rngs[j]
-            value = _cosine(d.resid, d.tvals[j], d.Y)
+            value = _cosine(d.resid, d.tvals[j], sums)
             f = _check_formula(R, t_rng, Y)
             tv = d.tvals[j]
             if intercept:
@@ -424,10 +425,11 @@ class _Figures:
         return ref
 
 
-def _cosine(r: np.ndarray, t: np.ndarray, y: np.ndarray) -> float:
-    """What the check formula evaluates to: 0 for an exact fit, else cos(r, t)."""
-    ssr = fsum_sq(r)
-    if ssr <= float(EXACT_FIT) * fsum_sq(y):
+def _cosine(r: np.ndarray, t: np.ndarray, sums: tuple[float, float]) -> float:
+    """What the check formula evaluates to: 0 for an exact fit, else cos(r, t); ``sums``
+    are fsum_sq of the residuals and of y (the same for every term)."""
+    ssr, ssy = sums
+    if ssr <= float(EXACT_FIT) * ssy:
         return 0.0
     prods = np.asarray(r, dtype=float) * np.asarray(t, dtype=float)  # rounded as a * b is
     return math.fsum(prods.tolist()) / math.sqrt(ssr * fsum_sq(t))
