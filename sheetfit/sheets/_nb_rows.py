@@ -333,10 +333,10 @@ def fitted_sheet(model: ModelData, res: _Result, trail: Trail, ns: SheetPlan, pr
     for a, b, inside in _segments(at > 0):
         if inside:
             fs.run(ob + 1, FIRST_ROW + a, fitted[a:b], template("=" + ref, at[a:b]), derived)
-            if not trail.full:
-                fs.run(mark, FIRST_ROW + a, at[a:b], style="row")
         else:
             fs.run(ob + 1, FIRST_ROW + a, fitted[a:b], style=derived)
+    if not trail.full:  # one run, blank (nothing written) where the row is not in the trail
+        fs.run(mark, FIRST_ROW, [int(v) if v > 0 else None for v in at.tolist()])
     if isinstance(res, NeighbourVoteResult):
         B, C = _letter(ob), _letter(ob + 1)
         fs.run(ob + 2, FIRST_ROW, np.asarray(res.correct_, dtype=np.int64),

@@ -76,10 +76,14 @@ class Located:
         self._values: dict[str, dict[tuple[int, int], Scalar]] = {}  # by sheet, on first use
 
     def _value(self, title: str, row: int, col: int) -> Scalar:
+        sheet = self._sheets.get(title)
+        if sheet is None:
+            return None
+        if sheet.runs:  # a run's value directly: sheet.cells would expand every run
+            return sheet.value_at(row, col)
         table = self._values.get(title)
         if table is None:
-            sheet = self._sheets.get(title)
-            table = {(c.row, c.col): c.value for c in sheet.cells} if sheet else {}
+            table = {(c.row, c.col): c.value for c in sheet.loose}
             self._values[title] = table
         return table.get((row, col))
 

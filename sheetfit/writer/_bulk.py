@@ -158,9 +158,14 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
             a, b = max(0, start - 1 - u.row0), min(u.n, stop - 1 - u.row0)
             if a < b:
                 parts.append((u.row0 + 1 + a, u.col + 1, _run_chunk(u, a, b, styles[u.style])))
+        at: list[list[tuple[int, str]]] = [[] for _ in range(stop - start)]
+        for r0, c, xml_ in parts:  # by column: each row's cells come out in column order
+            base = r0 - start
+            for i, x in enumerate(xml_):
+                at[base + i].append((c, x))
         out = []
         for r in range(start, stop):
-            cells = [(c, xml_[r - r0]) for r0, c, xml_ in parts if 0 <= r - r0 < len(xml_)]
+            cells = at[r - start]
             attrs = f' r="{r}"'
             if r in loose:
                 attrs, extra = loose[r]
