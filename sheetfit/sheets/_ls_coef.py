@@ -333,8 +333,9 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
             f = _check_formula(R, t_rng, Y)
             tv = d.tvals[j]
             if intercept:
-                m = math.fsum(float(v) for v in tv) / n
-                ss = math.fsum((float(v) - m) * (float(v) - m) for v in tv)
+                tv_ = np.asarray(tv, dtype=float)
+                m = math.fsum(tv_.tolist()) / n
+                ss = math.fsum(((tv_ - m) * (tv_ - m)).tolist())  # same products, exact sum
                 cs.put(r, C_VIF, inv_jj * ss, f"={inv_cell(k, k)}*DEVSQ({t_rng})", "dec1")
             else:
                 cs.put(r, C_VIF, inv_jj * fsum_sq(tv), f"={inv_cell(k, k)}*SUMSQ({t_rng})",
@@ -428,7 +429,8 @@ def _cosine(r: np.ndarray, t: np.ndarray, y: np.ndarray) -> float:
     ssr = fsum_sq(r)
     if ssr <= float(EXACT_FIT) * fsum_sq(y):
         return 0.0
-    return math.fsum(float(a) * float(b) for a, b in zip(r, t)) / math.sqrt(ssr * fsum_sq(t))
+    prods = np.asarray(r, dtype=float) * np.asarray(t, dtype=float)  # rounded as a * b is
+    return math.fsum(prods.tolist()) / math.sqrt(ssr * fsum_sq(t))
 
 
 def _check_formula(r: str, t: str | None, y: str) -> str:
@@ -612,9 +614,9 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
                 v, f = float(n), f"=COUNT({d.resid_rng})"
             elif a is None or b is None:
                 col, rng = (b, rb) if a is None else (a, ra)
-                v, f = math.fsum(float(x) for x in col), f"=SUM({rng})"  # type: ignore[union-attr]
+                v, f = math.fsum(np.asarray(col, dtype=float).tolist()), f"=SUM({rng})"
             else:
-                v = math.fsum(float(x) * float(z) for x, z in zip(a, b))
+                v = math.fsum((np.asarray(a, dtype=float) * np.asarray(b, dtype=float)).tolist())
                 f = f"=SUMPRODUCT({ra},{rb})"
             G[j, k] = v
             cs.put(g0 + 1 + j, 1 + k, v, f, "int" if v == round(v) and abs(v) < 1e15 else "check")

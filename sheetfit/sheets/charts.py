@@ -16,9 +16,11 @@ import math
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, overload
 
-from ..a1 import absolute, col_index, quote_sheet
+import numpy as np
+
+from ..a1 import absolute, col_index, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..owned import sheet_title
@@ -67,25 +69,36 @@ def _number(v: object) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
 
 
+class CellColumn(Sequence[tuple[str, Scalar]]):
+    """(absolute reference, cached value) of each cell of a column range, the reference
+    made when asked for; ``values`` are the cached values in order."""
+
+    def __init__(self, head: str, first_row: int, values: list[Scalar]) -> None:
+        self._head, self._first, self.values = head, first_row, values
+
+    def __len__(self) -> int:
+        return len(self.values)
+
+    @overload
+    def __getitem__(self, i: int) -> tuple[str, Scalar]: ...
+
+    @overload
+    def __getitem__(self, i: slice) -> list[tuple[str, Scalar]]: ...
+
+    def __getitem__(self, i: int | slice) -> tuple[str, Scalar] | list[tuple[str, Scalar]]:
+        if isinstance(i, slice):
+            return [self[k] for k in range(*i.indices(len(self)))]
+        if i < 0:
+            i += len(self)
+        return f"{self._head}{self._first + i}", self.values[i]
+
+
 class Located:
     """The cells behind a model's output names, with the cached values the plans give them."""
 
     def __init__(self, planned: Planned) -> None:
         self.names = {n.lower(): t for n, t in planned.names}
         self._sheets = {s.title: s for s in planned.sheets}
-        self._values: dict[str, dict[tuple[int, int], Scalar]] = {}  # by sheet, on first use
-
-    def _value(self, title: str, row: int, col: int) -> Scalar:
-        sheet = self._sheets.get(title)
-        if sheet is None:
-            return None
-        if sheet.runs:  # a run's value directly: sheet.cells would expand every run
-            return sheet.value_at(row, col)
-        table = self._values.get(title)
-        if table is None:
-            table = {(c.row, c.col): c.value for c in sheet.loose}
-            self._values[title] = table
-        return table.get((row, col))
 
     def has(self, name: str) -> bool:
         return name.lower() in self.names
@@ -103,12 +116,29 @@ class Located:
         c2 = col_index(m.group(5)) - 1 if m.group(5) else c1
         r2 = int(m.group(6)) - 1 if m.group(6) else r1
         q = quote_sheet(title)
-        return [[(f"{q}!{absolute(r, c)}", self._value(title, r, c))
-                 for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
+        sheet = self._sheets.get(title)
+        cols = [sheet.values_in(c, r1, r2) if sheet else [None] * (r2 - r1 + 1)
+                for c in range(c1, c2 + 1)]
+        heads = [f"{q}!${col_letter(c + 1)}$" for c in range(c1, c2 + 1)]
+        return [[(heads[j] + str(r + 1), cols[j][r - r1]) for j in range(c2 - c1 + 1)]
+                for r in range(r1, r2 + 1)]
 
-    def column(self, name: str, j: int = 0) -> list[tuple[str, Scalar]]:
-        """Column ``j`` of the range an output name holds."""
-        return [row[j] for row in self.block(name)]
+    def column(self, name: str, j: int = 0) -> CellColumn:
+        """Column ``j`` of the range an output name holds, as (reference, value) pairs made
+        on demand (a chart reads a sample of a 200,000-row column, and all its values)."""
+        text = self.names.get(name.lower())
+        if text is None:
+            raise KeyError(f"no output name {name}")
+        m = _REF.match(text)
+        if m is None:
+            raise ValueError(f"output name {name} holds {text!r}, not one range")
+        title = (m.group(1) or "").replace("''", "'") or m.group(2)
+        c, r1 = col_index(m.group(3)) - 1 + j, int(m.group(4)) - 1
+        r2 = int(m.group(6)) - 1 if m.group(6) else r1
+        sheet = self._sheets.get(title)
+        values: list[Scalar] = (sheet.values_in(c, r1, r2) if sheet
+                                else [None] * (r2 - r1 + 1))
+        return CellColumn(f"{quote_sheet(title)}!${col_letter(c + 1)}$", r1 + 1, values)
 
     def range_text(self, name: str) -> str:
         return self.names[name.lower()]
@@ -189,12 +219,20 @@ def data_cells(cells: Sequence[str], values: Sequence[float]) -> list[tuple[str 
     return [(f"={c}", float(v)) for c, v in zip(cells, values, strict=True)]
 
 
+def numbers(values: Sequence[Scalar]) -> np.ndarray:
+    """The finite numbers among ``values`` (not logicals), as an array."""
+    if all(type(v) is float for v in values):
+        x = np.array(values, dtype=float)
+        return x[np.isfinite(x)]
+    return np.array([float(v) for v in values if _number(v)], dtype=float)  # type: ignore[arg-type]
+
+
 def extreme(fn: str, spans: Sequence[str], values: Sequence[Scalar]) -> tuple[str, Scalar]:
     """A MIN or MAX formula over ranges (text and blanks ignored, as the engine does)."""
-    nums = [float(v) for v in values if _number(v)]  # type: ignore[arg-type]
-    if not nums:
+    nums = numbers(values)
+    if not nums.size:
         return f"={fn}({','.join(spans)})", 0.0
-    return f"={fn}({','.join(spans)})", (min(nums) if fn == "MIN" else max(nums))
+    return f"={fn}({','.join(spans)})", float(nums.min() if fn == "MIN" else nums.max())
 
 
 def suffix(n_rows: int) -> str:

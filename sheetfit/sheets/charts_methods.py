@@ -54,6 +54,8 @@ CURVE_POINTS = 41
 
 
 def _nums(values: Sequence[Scalar]) -> list[float]:
+    if all(type(v) is float for v in values):
+        return list(values)  # type: ignore[arg-type]
     return [float(v) for v in values
             if isinstance(v, (int, float)) and not isinstance(v, bool)]
 
@@ -82,7 +84,7 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     res = board.column("residual", copy_cells(_pick(res_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values = [v for _, v in fit_cells]
+    values = list(fit_cells.values)
     zx = board.column("zero line x", [extreme("MIN", [whole], values),
                                       extreme("MAX", [whole], values)])
     zy = board.column("zero line y", [(None, 0), (None, 0)])
@@ -122,7 +124,7 @@ def _diagonal(board: ChartSheet, model: ModelData, loc: Located, obs: Span,
     fit_cells = loc.column(f"sf_{tag}_fitted")
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values: list[Scalar] = [v for _, v in fit_cells] + list(obs_values)
+    values: list[Scalar] = list(fit_cells.values) + list(obs_values)
     ends = board.column("45° line", [extreme("MIN", [whole, obs.ref()], values),
                                      extreme("MAX", [whole, obs.ref()], values)])
     board.gap()
@@ -254,7 +256,7 @@ def strip_charts(model: ModelData, fitted: Fitted[StripMeanResult],
     board.gap()
     xv = [float(model.X[i, 0]) for i in rows]
     ys = [float(model.Y[i]) for i in rows] + _nums(
-        [v for _, v in loc.column(f"sf_{model.tag}_means")])
+        list(loc.column(f"sf_{model.tag}_means").values))
     board.chart("scatter", f"{model.y.name} against {model.xs[0].name}: data and strip means "
                 f"(width {res.width_:g})" + suffix(n), model.xs[0].name, model.y.name,
                 [Series("data", obs, xs[0], "markers"),

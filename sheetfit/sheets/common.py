@@ -68,7 +68,8 @@ HOLDS, FAILS = "holds", "FAILS"
 
 def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
-    return math.fsum(float(a) * float(a) for a in v)
+    x = np.asarray(v, dtype=float)
+    return math.fsum((x * x).tolist())  # the same rounded products, summed exactly
 
 
 # --- identifiers ------------------------------------------------------------------------
@@ -259,9 +260,9 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np
         rs.put(3, c, h, style="head")
     ob, fc, rc = 1 + kw, 2 + kw, 3 + kw
     B, C = _letter(ob), _letter(fc)
-    amount = (decimal_style(model.Y.tolist(), fmt=model.y.fmt) if model.Y.dtype != object
+    amount = (decimal_style(model.Y, fmt=model.y.fmt) if model.Y.dtype != object
               else "num")
-    derived = (decimal_style(model.Y.tolist(), least=2, fmt=model.y.fmt)
+    derived = (decimal_style(model.Y, least=2, fmt=model.y.fmt)
                if model.Y.dtype != object else "num")
     used = np.asarray(model.used, dtype=np.int64)
     n = len(used)

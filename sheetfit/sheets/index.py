@@ -49,7 +49,7 @@ def finish_model_sheets(sheets: list[SheetPlan], m: ModelSummary) -> None:
 
 def back_link(s: SheetPlan) -> None:
     """A link to the index in the title row, to the right of the title text."""
-    title = s.value_at(0, 0)  # not s.cells: that expands every column run
+    title = s.value_at(0, 0)
     need = (len(str(title)) * 1.2 + 2) if title is not None else 0
     col, x = 0, 0.0
     while x < need or not s.is_free(0, col):

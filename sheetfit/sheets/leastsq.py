@@ -125,8 +125,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     fs = SheetPlan(sheet_title(tag, "fitted"))
     lay = CoefLayout(p, 0 if model.new is None else model.new.n)
     coef_ref = [cs.ref(lay.first + k, C_COEF) for k in range(p)]
-    amount = decimal_style(model.Y.tolist(), fmt=y.fmt)
-    derived = decimal_style(model.Y.tolist(), least=2, fmt=y.fmt)
+    amount = decimal_style(model.Y, fmt=y.fmt)
+    derived = decimal_style(model.Y, least=2, fmt=y.fmt)
 
     # --- fitted-value sheet -------------------------------------------------------
     last = FIRST_ROW + n - 1
@@ -143,7 +143,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     obs_col = 1 + nk
     first_term = obs_col + 1
     fit_col = first_term + len(specs)
-    term_styles = [decimal_style(t.tolist(), fmt=model.xs[j].fmt if d == 1 else None)
+    term_styles = [decimal_style(t, fmt=model.xs[j].fmt if d == 1 else None)
                    for t, (j, d) in zip(tvals, specs, strict=True)]
     used = np.asarray(model.used, dtype=np.int64)
     fs.run(0, FIRST_ROW, used + y.first_row, style="row")
@@ -154,20 +154,15 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     for k, parts in enumerate(term_parts):
         fs.run(first_term + k, FIRST_ROW, term_vals[k],
                template("=", *parts), term_styles[k])
-    fit_parts: list[Part] = ["="]
-    for k, parts in enumerate(term_parts):
-        if k or intercept:
-            fit_parts.append("+")
-        fit_parts += [coef_ref[k + int(intercept)], "*", *parts]
-    if intercept:
-        fit_parts.insert(1, coef_ref[0])
-    fs.run(fit_col, FIRST_ROW, fitted, template(*fit_parts), derived)
+    fs.run(fit_col, FIRST_ROW, fitted, template(*_sum_parts(coef_ref, intercept, term_parts)),
+           derived)
     fs.widths = {0: 9, fit_col: 16}
     column_notes(fs, {obs_col: "your data cell", fit_col: "coefficients × terms, left to right"})
     fs.freeze = (FIRST_ROW, 1 + nk)
     rule_fit: RuleFit | None = None
     if model.rule is not None:
-        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived)
+        rule_fit = _plan_rule_column(fs, model, specs, intercept, fit_col + 1, last, derived,
+                                     term_vals)
     term_rngs = [fs.col_range(first_term + k, FIRST_ROW, last) for k in range(len(specs))]
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
@@ -209,7 +204,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
         rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
-        amount_style=derived, answer_style=decimal_style(model.Y.tolist(), least=2, fmt=y.fmt,
+        amount_style=derived, answer_style=decimal_style(model.Y, least=2, fmt=y.fmt,
                                                          answer=True))
     audit = _plan_audit(model, res, fs, obs_col, fit_col, fitted, cs, level, lay)
     coef_rng = plan_coef_sheet(cs, d_in)
@@ -255,21 +250,34 @@ def _col_abs(col: int, r1: int, r2: int) -> str:
 
 
 def _plan_rule_column(fs: SheetPlan, model: ModelData, specs: list[tuple[int, int]],
-                      intercept: bool, col: int, last: int, style: str) -> RuleFit:
+                      intercept: bool, col: int, last: int, style: str,
+                      term_vals: list[np.ndarray]) -> RuleFit:
     """The rule in use today, applied to every data row (its coefficients × the data)."""
     rule = model.rule
     if rule is None:
         raise ValueError("_plan_rule_column needs a declared rule")
     fs.put(3, col, "rule in use: fitted", style="head")
-    values = np.empty(len(model.used))
-    for i, idx in enumerate(model.used):
-        formula, value, _ = _prediction(rule.values, rule.cells, intercept, specs,
-                                        [c.value_ref(int(idx)) for c in model.xs], model.X[i])
-        values[i] = value
-        fs.put(FIRST_ROW + i, col, value, formula, style)
+    used = np.asarray(model.used, dtype=np.int64)
+    values, parts = _predictions(np.asarray(rule.values, dtype=float), list(rule.cells),
+                                 intercept, specs, [value_parts(c, used) for c in model.xs],
+                                 term_vals)
+    fs.run(col, FIRST_ROW, values, template(*_sum_parts(list(rule.cells), intercept, parts)),
+           style)
     fs.widths[col] = 16
     return RuleFit(rule.name, rule.cells, [float(v) for v in rule.values],
                    fs.col_range(col, FIRST_ROW, last), values)
+
+
+def _sum_parts(coef_ref: list[str], intercept: bool, term_parts: list[list[Part]]) -> list[Part]:
+    """Template parts of intercept + coefficient × term + …, as ``_prediction`` writes it."""
+    out: list[Part] = ["="]
+    if intercept:
+        out.append(coef_ref[0])
+    for k, parts in enumerate(term_parts):
+        if k or intercept:
+            out.append("+")
+        out += [coef_ref[k + int(intercept)], "*", *parts]
+    return out
 
 
 def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
@@ -311,7 +319,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     tq = float(stats.t.isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
     max_lev = float(np.max(infl.leverage))
-    x_styles = [decimal_style(new.X[:, j].tolist(), fmt=model.xs[j].fmt)
+    x_styles = [decimal_style(new.X[:, j], fmt=model.xs[j].fmt)
                 for j in range(new.X.shape[1])]
     for i in range(new.n):
         r = FIRST_ROW + i

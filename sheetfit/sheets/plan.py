@@ -72,22 +72,31 @@ for _d in range(10):
     STYLES[f"answer{_d}"] = {"bold": True, "num_format": STYLES[f"dec{_d}"]["num_format"]}
 
 
-def decimals_shown(values: Sequence[object], most: int = 4) -> int:
+def decimals_shown(values: Sequence[object] | np.ndarray, most: int = 4) -> int:
     """How many decimals the data show: the fewest (≤ ``most``) that write every value exactly.
 
     Stands in for the user's own number format, which the reader does not expose: cost
     data kept to the cent give 2, whole counts give 0.
     """
-    nums = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)
-            and math.isfinite(float(v))]
+    if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
+        x = values.astype(float)
+        x = x[np.isfinite(x)]
+    elif isinstance(values, np.ndarray):
+        return decimals_shown(values.tolist(), most)
+    elif all(type(v) is float for v in values):
+        x = np.array(values, dtype=float)
+        x = x[np.isfinite(x)]
+    else:
+        x = np.array([float(v) for v in values if isinstance(v, (int, float))
+                      and not isinstance(v, bool) and math.isfinite(float(v))], dtype=float)
     for d in range(most + 1):
-        if all(abs(v * 10 ** d - round(v * 10 ** d)) <= 1e-6 * max(1.0, abs(v) * 10 ** d)
-               for v in nums):
+        scaled = x * float(10 ** d)  # as v * 10 ** d, element by element
+        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-6 * np.maximum(1.0, np.abs(x) * float(10 ** d))):
             return d
     return most
 
 
-def decimal_style(values: Sequence[object], most: int = 4, answer: bool = False,
+def decimal_style(values: Sequence[object] | np.ndarray, most: int = 4, answer: bool = False,
                   least: int = 0, fmt: str | None = None) -> str:
     """The style for amounts like ``values``: the user's own number format ``fmt`` when
     their data cells have one (a plain-number format, see ``reader.formats``), else
@@ -160,6 +169,7 @@ class SheetPlan:
     #: add columns to a sheet another function laid out.
     columns: dict[str, int] = field(default_factory=dict)
     _taken: set[tuple[int, int]] = field(default_factory=set, repr=False)
+    _by_cell: dict[tuple[int, int], Cell] | None = field(default=None, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
     runs: list[Run] = field(default_factory=list)
     #: Per column: the runs' first rows and the runs, sorted (see ``_column_runs``).
@@ -273,12 +283,22 @@ class SheetPlan:
     def is_free(self, row: int, col: int) -> bool:
         return (row, col) not in self._taken and self._run_at(row, col) is None
 
+    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar]:
+        """Cached values planned in rows row1..row2 of a column (None where nothing is)."""
+        run = self._run_at(row1, col)
+        if run is not None and row2 <= run.last:
+            return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
+        return [self.value_at(r, col) for r in range(row1, row2 + 1)]
+
     def value_at(self, row: int, col: int) -> Scalar:
         """The cached value planned at a cell (None when nothing is planned there)."""
         run = self._run_at(row, col)
         if run is not None:
             return run.scalars(row - run.row0, row - run.row0 + 1)[0]
-        return next((c.value for c in self.loose if c.row == row and c.col == col), None)
+        if self._by_cell is None or len(self._by_cell) != len(self.loose):
+            self._by_cell = {(c.row, c.col): c for c in self.loose}
+        cell = self._by_cell.get((row, col))
+        return None if cell is None else cell.value
 
     def fit_columns(self) -> None:
         """Widen columns so header words never break mid-word and values fit.
@@ -294,16 +314,20 @@ class SheetPlan:
             vals = u.values
             if u.style in ("note", "title", "caution", "colnote", "flag") or not u.n:
                 continue
+            arr = isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu"
             if u.style in ("int", "row"):
-                nums = [abs(int(v)) for v in u.scalars(0, u.n)
-                        if isinstance(v, (int, float)) and not isinstance(v, bool)]
-                w = max(6, len(f"{max(nums, default=0):,}") + 3)
-            elif isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu":
+                nums = (np.abs(vals) if arr else np.array(  # type: ignore[arg-type]
+                    [abs(float(v)) for v in vals if isinstance(v, (int, float))
+                     and not isinstance(v, bool)], dtype=float))
+                w = max(6, len(f"{int(nums.max(initial=0)):,}") + 3)
+            elif arr:
                 w = 12
             else:
-                w = max((12 if isinstance(v, (int, float)) and not isinstance(v, bool)
-                         else min(40, len(str(v)) + 2) for v in vals if v is not None),
-                        default=0)
+                texts = [v for v in vals if type(v) is str]
+                w = max(12 if len(texts) < len(vals) and any(
+                            isinstance(v, (int, float)) and not isinstance(v, bool)
+                            for v in vals) else 0,
+                        min(40, max(map(len, texts), default=-2) + 2))
             need[u.col] = max(need.get(u.col, 0), w)
         taken = {(c.row, c.col) for c in self.loose if c.value not in (None, "")}
         for c in self.loose:

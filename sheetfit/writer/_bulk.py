@@ -12,7 +12,9 @@ value typed ``str``/``b``/``e`` like xlsxwriter does, every float with all its d
 from __future__ import annotations
 
 import re
+import string
 from collections.abc import Iterator, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -78,22 +80,74 @@ def _formula_cells(refs: list[str], forms: list[str], values: Sequence[object], 
     return out
 
 
-def _run_chunk(run: Run, a: int, b: int, style: int | None) -> list[str]:
-    """Cell XML of items a..b-1 of a run (empty strings for unstyled blanks)."""
+def _shifted(text: str, by: int) -> str:
+    """A format string with every positional field moved up by ``by`` (literals kept)."""
+    out = []
+    for literal, field, spec, conv in string.Formatter().parse(text):
+        out.append(literal.replace("{", "{{").replace("}", "}}"))
+        if field is not None:
+            out.append("{" + str(int(field) + by) + ("!" + conv if conv else "")
+                       + (":" + spec if spec else "") + "}")
+    return "".join(out)
+
+
+def _reprs(values: Any) -> list[str]:
+    """Every float's repr, made in one C loop (a list's repr) rather than one call each."""
+    x = np.asarray(values, dtype=float).tolist()
+    return repr(x)[1:-1].split(", ") if x else []
+
+
+def _piece(run: Run, a: int, b: int, style: int | None) -> tuple[str, list[Any]]:
+    """Items a..b-1 of a run as a format fragment (placeholders from 0) and the columns
+    that fill it, one entry per row: the cell's XML, or "" for an unstyled blank."""
     letter = col_letter(run.col + 1)
     first = run.row0 + 1
-    refs = [f"{letter}{first + i}" for i in range(a, b)]
     s = f' s="{style}"' if style else ""
+    rows = range(first + a, first + b)
+    v, t = run.values, run.formula
+    numeric = isinstance(v, np.ndarray) and v.dtype.kind in "fiu"
+    if numeric and t is None:
+        return f'<c r="{letter}{{0}}"{s}><v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
+    if numeric and t is not None and all(
+            x is None or (isinstance(x, np.ndarray) and x.dtype.kind in "fiu") for x in t.args):
+        body = _shifted(_esc(with_prefixes(t.text[1:])), 1)
+        cols: list[Any] = [rows] + [rows if x is None else np.asarray(x)[a:b].tolist()
+                                    for x in t.args]
+        frag = f'<c r="{letter}{{0}}"{s}><f>{body}</f><v>{{{len(t.args) + 1}}}</v></c>'
+        return frag, cols + [_reprs(v[a:b])]
+    refs = [f"{letter}{r}" for r in rows]
     values = run.scalars(a, b)
-    t = run.formula
     if t is None:
-        return _value_cells(refs, values, s)
-    if any(v is not None and not isinstance(v, np.ndarray) and any(isinstance(x, str) for x in v[a:b])
-           for v in t.args):  # text in the vectors: escape each formula
-        forms = [_esc(with_prefixes(f[1:])) for f in t.render(first, a, b)]
+        return "{0}", [_value_cells(refs, values, s)]
+    if any(x is not None and not isinstance(x, np.ndarray)
+           and any(isinstance(e, str) for e in x[a:b]) for x in t.args):
+        forms = [_esc(with_prefixes(f[1:])) for f in t.render(first, a, b)]  # text: escape each
     else:  # numbers only: prefix and escape the template once
         forms = Template(_esc(with_prefixes(t.text[1:])), t.args).render(first, a, b)
-    return _formula_cells(refs, forms, values, s)
+    return "{0}", [_formula_cells(refs, forms, values, s)]
+
+
+def _run_chunk(run: Run, a: int, b: int, style: int | None) -> list[str]:
+    """Cell XML of items a..b-1 of a run (empty strings for unstyled blanks)."""
+    frag, cols = _piece(run, a, b, style)
+    if frag == "{0}":
+        return list(cols[0])
+    fmt = frag.format
+    return [fmt(*c) for c in zip(*cols, strict=True)]
+
+
+def _uniform(runs: Sequence[Run], start: int, stop: int,
+             styles: dict[str, int | None]) -> str:
+    """Rows start … stop-1 when every run covers all of them and no loose cell is there:
+    one format call per row over the runs' fragments side by side."""
+    frags, cols = ['<row r="{0}">'], [range(start, stop)]
+    for u in runs:
+        a = start - 1 - u.row0
+        frag, more = _piece(u, a, a + stop - start, styles[u.style])
+        frags.append(_shifted(frag, len(cols)))
+        cols += more
+    fmt = ("".join(frags) + "</row>").format
+    return "".join([fmt(*c) for c in zip(*cols, strict=True)])
 
 
 def _loose_rows(data: str) -> dict[int, tuple[str, list[tuple[int, str]]]]:
@@ -153,26 +207,33 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
     ordered = sorted(runs, key=lambda u: u.col)
     for start in range(top, bottom + 1, CHUNK_ROWS):
         stop = min(bottom + 1, start + CHUNK_ROWS)  # sheet rows start … stop-1
-        parts: list[tuple[int, int, list[str]]] = []  # (first sheet row, column, cell XML)
+        size = stop - start
+        inside = [u for u in ordered if u.row0 + 1 <= stop - 1 and u.last + 1 >= start]
+        if inside and all(u.row0 + 1 <= start and u.last + 1 >= stop - 1 for u in inside) \
+                and not any(start <= r < stop for r in loose):
+            yield _uniform(inside, start, stop, styles).encode("utf-8")
+            continue
+        cols: list[list[str]] = []  # per run: cell XML of every row of the chunk ("" none)
+        by_col: list[int] = []
         for u in ordered:
             a, b = max(0, start - 1 - u.row0), min(u.n, stop - 1 - u.row0)
             if a < b:
-                parts.append((u.row0 + 1 + a, u.col + 1, _run_chunk(u, a, b, styles[u.style])))
-        at: list[list[tuple[int, str]]] = [[] for _ in range(stop - start)]
-        for r0, c, xml_ in parts:  # by column: each row's cells come out in column order
-            base = r0 - start
-            for i, x in enumerate(xml_):
-                at[base + i].append((c, x))
+                lead = u.row0 + 1 + a - start
+                cols.append([""] * lead + _run_chunk(u, a, b, styles[u.style])
+                            + [""] * (size - lead - (b - a)))
+                by_col.append(u.col + 1)
         out = []
-        for r in range(start, stop):
-            cells = at[r - start]
-            attrs = f' r="{r}"'
+        for r, *cells in zip(range(start, stop), *cols, strict=True):
             if r in loose:
                 attrs, extra = loose[r]
-                cells = sorted(cells + extra, key=lambda t: t[0])
-            body = "".join(x for _, x in cells)
-            if body or r in loose:
+                merged = sorted([(c, x) for c, x in zip(by_col, cells, strict=True) if x]
+                                + extra, key=lambda t: t[0])
+                body = "".join(x for _, x in merged)
                 out.append(f"<row{attrs}>{body}</row>" if body else f"<row{attrs}/>")
+                continue
+            body = "".join(cells)
+            if body:
+                out.append(f'<row r="{r}">{body}</row>')
         if out:
             yield "".join(out).encode("utf-8")
     yield ("</sheetData>" + text[m.end():]).encode("utf-8")

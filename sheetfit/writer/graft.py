@@ -13,11 +13,14 @@ from __future__ import annotations
 
 import contextlib
 import posixpath
+import queue
 import re
+import threading
 import zipfile
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import IO
 
 from sheetfit.errors import Context, DeclarationError, PackageError
 from sheetfit.owned import is_ours
@@ -385,6 +388,35 @@ def _copy_raw(src: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
     zout.NameToInfo[zi.filename] = zi
 
 
+def _write_beside(part: IO[bytes], chunks: Iterator[bytes]) -> None:
+    """Write ``chunks`` to ``part`` from a second thread, so that deflating one chunk
+    (zlib lets go of the interpreter lock) runs beside building the next on another core.
+    An error on either side stops both and is raised here."""
+    todo: queue.Queue[bytes | None] = queue.Queue(maxsize=3)
+    failed: list[BaseException] = []
+
+    def consume() -> None:
+        while (chunk := todo.get()) is not None:
+            if not failed:
+                try:
+                    part.write(chunk)
+                except BaseException as exc:  # noqa: BLE001 - handed to the producer
+                    failed.append(exc)
+
+    worker = threading.Thread(target=consume, name="sheetfit-deflate", daemon=True)
+    worker.start()
+    try:
+        for chunk in chunks:
+            if failed:
+                break
+            todo.put(chunk)
+    finally:
+        todo.put(None)
+        worker.join()
+    if failed:
+        raise failed[0]
+
+
 def _write_atomic(
     zs: zipfile.ZipFile,
     infos: list[zipfile.ZipInfo],
@@ -420,5 +452,4 @@ def _write_atomic(
                 zout.writestr(zi, entry)
                 continue
             with zout.open(zi, "w") as part:
-                for chunk in entry.chunks():
-                    part.write(chunk)
+                _write_beside(part, entry.chunks())
