@@ -53,9 +53,11 @@ def _letter(col: int) -> str:
 
 
 def _vals(a: np.ndarray) -> np.ndarray | list[Any]:
-    """Cached values of a run: numbers stay an array, labels become a list."""
+    """Cached values of a run: floats stay an array; whole numbers and labels become a
+    list (the bulk writer caches a formula's whole number as written, 7 not 7.0, only
+    from Python ints)."""
     a = np.asarray(a)
-    return a if a.dtype.kind in "fiu" else a.tolist()
+    return a if a.dtype.kind == "f" else a.tolist()
 
 
 @dataclass(frozen=True)
@@ -271,14 +273,14 @@ def neighbour_block(ns: SheetPlan, r0: int, b: Block, c: RowCells) -> None:
     if b.position_votes is None or b.votes is None or b.score is None or b.share is None:
         raise ValueError("a vote block needs its votes, scores and shares")
     for m in range(k):
-        ns.run(nb + 3 * k + m, r0, np.asarray(b.position_votes[:, m]),
+        ns.run(nb + 3 * k + m, r0, _vals(b.position_votes[:, m]),
                template("=SUMPRODUCT(--EXACT(", *block, ",", _letter(nb + 2 * k + m), r, "))"),
                "int")
     vb: tuple[Part, ...] = (_letter(nb + 3 * k), r, ":" + _letter(nb + 4 * k - 1), r)
     col = nb + 4 * k
     ns.run(col, r0, _vals(b.value),
            template("=INDEX(", *block, ",MATCH(MAX(", *vb, "),", *vb, ",0))"), "class")
-    ns.run(col + 1, r0, np.asarray(b.votes), template("=MAX(", *vb, ")"), "int")
+    ns.run(col + 1, r0, _vals(b.votes), template("=MAX(", *vb, ")"), "int")
     ns.run(col + 2, r0, np.asarray(b.score, dtype=float),
            template("=MAX(", *vb, f")/{c.k_cell}"), "pct")
     ns.run(col + 3, r0, np.asarray(b.share, dtype=float),
@@ -339,7 +341,7 @@ def fitted_sheet(model: ModelData, res: _Result, trail: Trail, ns: SheetPlan, pr
         fs.run(mark, FIRST_ROW, [int(v) if v > 0 else None for v in at.tolist()])
     if isinstance(res, NeighbourVoteResult):
         B, C = _letter(ob), _letter(ob + 1)
-        fs.run(ob + 2, FIRST_ROW, np.asarray(res.correct_, dtype=np.int64),
+        fs.run(ob + 2, FIRST_ROW, np.asarray(res.correct_, dtype=np.int64).tolist(),
                template(f"=IF(EXACT({B}", this_row, f",{C}", this_row, "),1,0)"), "int")
     plan_left_out(fs, model, len(heads) + 1)
     fs.widths.update({0: 9, ob: 16, ob + 1: 16})

@@ -170,13 +170,14 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
            ystyle)
     fs.run(xc, FIRST_ROW, np.asarray(res.x_, dtype=float),
            template("=", *ref_parts(model.xs[0], used)), xstyle)
-    fs.run(ob + 2, FIRST_ROW, rc + 1, _lookup_template(even, col["centre"], ss, lay, L["C"]),
-           "int")
-    fs.run(ob + 3, FIRST_ROW, np.asarray(res.count_)[rc],
+    # whole numbers as Python ints: the bulk writer caches them as written (7, not 7.0)
+    fs.run(ob + 2, FIRST_ROW, (rc + 1).tolist(),
+           _lookup_template(even, col["centre"], ss, lay, L["C"]), "int")
+    fs.run(ob + 3, FIRST_ROW, np.asarray(res.count_)[rc].tolist(),
            template(f"=INDEX({col['count']},{L['D']}", me, ")"), "int")
     fs.run(ob + 4, FIRST_ROW, np.asarray(res.sum_)[rc],
            template(f"=INDEX({col['sum']},{L['D']}", me, ")"), ystyle)
-    fs.run(ob + 5, FIRST_ROW, np.asarray(res.in_strip_, dtype=np.int64),
+    fs.run(ob + 5, FIRST_ROW, np.asarray(res.in_strip_, dtype=np.int64).tolist(),
            template(f"=IF(ABS({L['C']}", me, f"-INDEX({col['centre']},{L['D']}", me,
                     f"))<={w_full}*{EDGE},1,0)"), "int")
     fit = np.asarray(res.fitted_, dtype=float)
