@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from ..declare.model import ModelData
 from ..fit.neighbours import NeighbourMeanResult, NeighbourVoteResult
-from ..settings import Rule, k_value, yes_no
+from ..settings import Rule, choice, k_value, yes_no
+from ..sheets._nb_trail import TRAIL_WORDS
 
 __all__ = ["MEAN_STANDING", "RULES", "VOTE_STANDING", "cautions", "k_figure"]
 
@@ -13,6 +14,9 @@ RULES = (
          "how many nearest neighbours; auto picks the k with the smallest leave-one-out error"),
     Rule("standard_units", "yes or no", True, yes_no,
          "measure distances in standard units (z = (x - mean) / SD)"),
+    Rule("trail", TRAIL_WORDS, "auto", choice(("all", "auto", "new")),
+         "which data rows the neighbours sheet shows step by step (new rows always); the "
+         "others show sheetfit's fitted value as a value"),
 )
 
 

@@ -5,7 +5,9 @@ each listed neighbour, and the average (or the vote) of those neighbours' respon
 Every number comes from the fitted result (and its prediction for the new rows); the
 numeric core computes them the way the formulas do (correctly rounded sums, products
 for squares), so each cached value is what its formula gives.
-Formula cost grows as n·k: no formula scans all rows for one row.
+Formula cost grows as n·k: no formula scans all rows for one row; the setting ``trail``
+bounds how many data rows the neighbours sheet shows (``_nb_trail``). The row-by-row
+sheets are column runs (``_nb_rows``).
 """
 
 from __future__ import annotations
@@ -16,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from ..a1 import absolute, area, col_letter
+from ..a1 import absolute, area, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit._search import TIE_DIGITS
 from ..fit.neighbours import (
@@ -28,15 +30,25 @@ from ..fit.neighbours import (
 from ..fit.results import Fitted
 from ..labels import label_text, labels_equal
 from ..owned import sheet_title
+from ._nb_rows import (
+    Block,
+    RowCells,
+    fitted_sheet,
+    mean_blocks,
+    neighbour_block,
+    std_sheet,
+    vote_blocks,
+)
+from ._nb_trail import TRAIL_ALL_UP_TO, Trail, trail_of
 from .common import (
     FIRST_ROW,
     check_cell,
     check_words,
     column_notes,
     key_heads,
+    key_runs,
     key_styles,
     key_width,
-    plan_left_out,
     plan_methods,
     plan_residual_sheet,
     put_keys,
@@ -53,143 +65,15 @@ TIE_RULE = (
     "the nearest of them wins."
 )
 
-_STD_FIRST = 6  # first data row (0-based) on the standard-units sheet
-
 _Result = NeighbourMeanResult | NeighbourVoteResult
 _Prediction = MeanPrediction | VotePrediction
-
-
-@dataclass
-class _Rows:
-    """What one block of the neighbours sheet shows, taken from a result or a prediction."""
-
-    first_ref: list[int]  # sheet row of each row (data rows or new rows)
-    Z: np.ndarray  # the rows in the units the distances use
-    neighbours: np.ndarray
-    distances: np.ndarray
-    value: list[Any]  # the prediction of each row (mean or class)
-    spread: list[tuple[float, float, float]] | None = None  # mean: smallest, median, largest
-    position_votes: np.ndarray | None = None  # vote: votes for each neighbour's class
-    votes: list[int] | None = None  # vote: votes for the winning class
-    score: list[float] | None = None  # vote: votes / k
-    share: list[float] | None = None  # vote: share of the k in the focus class
-
-
-def _std_sheet(model: ModelData, res: _Result, new: _Prediction | None
-               ) -> tuple[SheetPlan, list[str], list[str]]:
-    """Standard-units sheet; returns it and the z-row references of data and new rows."""
-    tag = model.tag
-    ss = SheetPlan(sheet_title(tag, "std"))
-    m = len(model.xs)
-    n = res.n_
-    on = bool(res.scaling_.on)
-    o = key_width(model.keys)
-    ss.put(0, 0, f"Standard units — model {tag}", style="title")
-    ss.put(1, 0, "Each attribute measured in standard deviations from its mean, so that no "
-           "attribute outweighs another in the distances." if on else "Standard units are "
-           "off (setting standard_units = no): distances use the attribute values as they are.",
-           style="note")
-    last = _STD_FIRST + n - 1
-    ss.put(3, 0, "mean", style="label")
-    ss.put(4, 0, "SD (population)", style="label")
-    ss.put(5, 0, "data row", style="head")
-    for j, h in enumerate(key_heads(model.keys)):
-        ss.put(5, 1 + j, h, style="head")
-    xc = 1 + o  # first attribute column
-    zc = xc + m  # first z column
-    mean, sd = res.X_mean_.tolist(), res.X_sd_.tolist()
-    xstyle = [decimal_style(model.X[:, j].tolist(), fmt=model.xs[j].fmt) for j in range(m)]
-    for j, c in enumerate(model.xs):
-        xcol = xc + j
-        rng = f"{col_letter(xcol + 1)}{_STD_FIRST + 1}:{col_letter(xcol + 1)}{last + 1}"
-        ss.put(3, xcol, mean[j], f"=AVERAGE({rng})", "num")
-        ss.put(4, xcol, sd[j], f"=STDEV.P({rng})", "num")
-        ss.put(5, xcol, c.name, style="head")
-        ss.put(5, zc + j, f"z {c.name}" if on else f"{c.name} (as is)", style="head")
-    notes = {xc: "your data cell; mean and SD of the column above"}
-    if on:
-        notes[zc] = "(value − mean) / SD, with the mean and SD of its column"
-    column_notes(ss, notes)
-    zrefs: list[str] = []
-    X, Z = res.X_.tolist(), res.Z_.tolist()
-    kst = key_styles(model.keys)
-    for i, idx in enumerate(model.used):
-        r = _STD_FIRST + i
-        ss.put(r, 0, model.y.row_of(int(idx)), style="row")
-        put_keys(ss, r, 1, model.keys, int(idx), kst)
-        for j, c in enumerate(model.xs):
-            ss.put(r, xc + j, X[i][j], f"={c.cell(int(idx))}", xstyle[j])
-            ss.put(r, zc + j, Z[i][j], _z_formula(c.cell(int(idx)), xc + j, on), "z")
-        zrefs.append(ss.ref(r, zc) + ":" + absolute(r, zc + m - 1))
-    new_refs: list[str] = []
-    if model.new is not None and new is not None:
-        nk = model.new.keys
-        on_ = key_width(nk)
-        side = zc + m + 1
-        ss.put(5, side, "new row", style="head")
-        for j, h in enumerate(key_heads(nk)):
-            ss.put(5, side + 1 + j, h, style="head")
-        nx = side + 1 + on_
-        for j, c in enumerate(model.new.columns):
-            ss.put(5, nx + j, model.xs[j].name, style="head")
-            ss.put(5, nx + m + j, f"z {model.xs[j].name}" if on else model.xs[j].name,
-                   style="head")
-        Zn = new.Z.tolist()
-        nst = key_styles(nk)
-        for i in range(model.new.n):
-            r = _STD_FIRST + i
-            ss.put(r, side, model.new.columns[0].row_of(i), style="row")
-            put_keys(ss, r, side + 1, nk, i, nst)
-            for j, c in enumerate(model.new.columns):
-                ss.put(r, nx + j, float(model.new.X[i, j]), f"={c.cell(i)}", xstyle[j])
-                ss.put(r, nx + m + j, Zn[i][j], _z_formula(c.cell(i), xc + j, on), "z")
-            new_refs.append(ss.ref(r, nx + m) + ":" + absolute(r, nx + 2 * m - 1))
-    ss.widths = {0: 16}
-    ss.freeze = (_STD_FIRST, 1 + o)
-    return ss, zrefs, new_refs
-
-
-def _z_formula(data_cell: str, stat_col: int, on: bool) -> str:
-    """z of a data cell, from the mean (row 4) and SD (row 5) cells of its attribute."""
-    if not on:
-        return f"={data_cell}"
-    letter = col_letter(stat_col + 1)
-    return f"=({data_cell}-{letter}$4)/{letter}$5"
-
-
-def _mean_rows(model: ModelData, res: NeighbourMeanResult,
-               new: MeanPrediction | None) -> tuple[_Rows, _Rows | None]:
-    data = _Rows([model.y.row_of(int(i)) for i in model.used], res.Z_, res.neighbours_,
-                 res.distances_, res.fitted_.tolist(),
-                 spread=list(zip(res.nb_min_.tolist(), res.nb_median_.tolist(),
-                                 res.nb_max_.tolist())))
-    if new is None or model.new is None:
-        return data, None
-    return data, _Rows([model.new.columns[0].row_of(i) for i in range(model.new.n)], new.Z,
-                       new.neighbours, new.distances, new.value.tolist(),
-                       spread=list(zip(new.nb_min.tolist(), new.nb_median.tolist(),
-                                       new.nb_max.tolist())))
-
-
-def _vote_rows(model: ModelData, res: NeighbourVoteResult, new: VotePrediction | None,
-               focus: str | float) -> tuple[_Rows, _Rows | None]:
-    data = _Rows([model.y.row_of(int(i)) for i in model.used], res.Z_, res.neighbours_,
-                 res.distances_, res.fitted_.tolist(), position_votes=res.position_votes_,
-                 votes=res.votes_.tolist(), score=res.score_.tolist(),
-                 share=res.share(focus).tolist())
-    if new is None or model.new is None:
-        return data, None
-    return data, _Rows([model.new.columns[0].row_of(i) for i in range(model.new.n)], new.Z,
-                       new.neighbours, new.distances, new.value.tolist(),
-                       position_votes=new.position_votes, votes=new.votes.tolist(),
-                       score=new.score.tolist(), share=new.share(focus).tolist())
 
 
 def plan_neighbour_mean(model: ModelData, fitted: Fitted[NeighbourMeanResult],
                         version: str) -> Planned:
     """Plan the summary, standard-units, neighbours, fitted and residual sheets of a mean."""
     res = fitted.result
-    data, new = _mean_rows(model, res, fitted.new)
+    data, new = mean_blocks(model, res, fitted.new)
     return _plan(model, res, fitted.new, data, new, None, version, fitted.extrapolated)
 
 
@@ -198,7 +82,7 @@ def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
     """Plan the summary, standard-units, neighbours and fitted sheets of a vote."""
     res = fitted.result
     focus = _focus(model, res)
-    data, new = _vote_rows(model, res, fitted.new, focus)
+    data, new = vote_blocks(model, res, fitted.new, focus)
     return _plan(model, res, fitted.new, data, new, focus, version, fitted.extrapolated)
 
 
@@ -219,15 +103,16 @@ def _layout(n_new: int, vote: bool) -> _Layout:
     return _Layout(answer, figures, status, status + 2)
 
 
-def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: _Rows,
-          new: _Rows | None, focus: str | float | None, version: str,
+def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: Block,
+          new: Block | None, focus: str | float | None, version: str,
           extrapolated: list[int]) -> Planned:
     """The sheets both neighbour methods share; ``focus`` is None for a mean, a class for a vote."""
     vote = focus is not None
     tag, y = model.tag, model.y
     k = int(res.k_)
     o = key_width(model.keys, model.new.keys if model.new is not None else None)
-    ss, zrefs, new_zrefs = _std_sheet(model, res, prediction)
+    trail = trail_of(res.n_, str(model.settings.values.get("trail", "all")))
+    ss, zcells, z_range = std_sheet(model, res, prediction)
     ns = SheetPlan(sheet_title(tag, "nbrs"))
     summary = SheetPlan(sheet_title(tag, "summary"))
     lay = _layout(model.new.n if model.new is not None and new is not None else 0, vote)
@@ -236,8 +121,8 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
 
     ns.put(0, 0, f"Nearest neighbours — model {tag} (k = {k})", style="title")
     ns.put(1, 0, f"For each row: its {k} most similar rows of sheet '{y.sheet}', their "
-           f"distances and {y.name}, then the prediction from them. Ties: see the first sheet.",
-           style="note")
+           f"distances and {y.name}, then the prediction from them. Ties: see the first sheet."
+           + ("" if trail.full else " " + trail.words(ns.title)), style="note")
     nb = 1 + o  # first neighbour-row column
     heads = (["data row"] + key_heads(model.keys, o)
              + [f"neighbour {m + 1} row" for m in range(k)]
@@ -263,39 +148,38 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
                       pred_col + 1: "MIN, MEDIAN, MAX of the same values"})
     ystyle = "class" if vote else decimal_style(res.y_.tolist(), fmt=model.y.fmt)
     derived = "class" if vote else decimal_style(res.y_.tolist(), least=2, fmt=model.y.fmt)
-    ctx = _Cells(model, res.y_.tolist(), zrefs, k, k_cell, focus_cell, vote, o, ystyle, derived)
-    fitted_refs: list[str] = []
-    kst = key_styles(model.keys)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        _neighbour_row(ns, r, i, data, zrefs[i], ctx)
-        put_keys(ns, r, 1, model.keys, int(idx), kst)
-        fitted_refs.append(ns.ref(r, pred_col, fixed=False))
+    ctx = RowCells(model, np.asarray(res.y_), zcells, k, k_cell, focus_cell, vote, o, ystyle,
+                   derived)
+    shown = data if trail.full else data.take(trail.rows)
+    neighbour_block(ns, FIRST_ROW, shown, ctx)
+    key_runs(ns, FIRST_ROW, 1, model.keys, np.asarray(model.used, dtype=np.int64)[trail.rows],
+             key_styles(model.keys))
     names: list[tuple[str, str]] = []
-    new_start = FIRST_ROW + len(model.used) + 2
+    new_start = FIRST_ROW + len(trail.rows) + 2
     if new is not None and model.new is not None:
         ns.put(new_start - 1, 0, "new row", style="head")
         for c, h in enumerate(key_heads(model.new.keys, o) + heads[1 + o:], start=1):
             ns.put(new_start - 1, c, h, style="head")
-        nst = key_styles(model.new.keys)
-        for i in range(model.new.n):
-            _neighbour_row(ns, new_start + i, i, new, new_zrefs[i], ctx)
-            put_keys(ns, new_start + i, 1, model.new.keys, i, nst)
+        neighbour_block(ns, new_start, new, ctx)
+        key_runs(ns, new_start, 1, model.new.keys, np.arange(model.new.n),
+                 key_styles(model.new.keys))
         names.append((f"sf_{tag}_pred",
                        ns.col_range(pred_col, new_start, new_start + model.new.n - 1)))
     ns.widths = {0: 9}
     column_notes(ns, notes)
     ns.freeze = (FIRST_ROW, 1 + o)
 
-    fs, fit_rng = _fitted_sheet(model, res, fitted_refs, vote, ns.title, o, ystyle, derived)
+    fs, fit_col = fitted_sheet(model, res, trail, ns, pred_col, vote, o, ystyle, derived)
+    fit_rng = fs.col_range(fit_col, FIRST_ROW, FIRST_ROW + res.n_ - 1)
     sheets = [summary, ss, ns, fs]
-    at = _At(ns, new_start, pred_col, new, extrapolated, lay, o, derived)
+    at = _At(ns, new_start, pred_col, new, extrapolated, lay, o, derived, trail)
     if isinstance(res, NeighbourVoteResult) and focus is not None:
         names = [(f"sf_{tag}_fitted", fit_rng)] + names
         names += _vote_summary(summary, model, res, fs, at, focus, version, k)
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
-            model, (fitted_refs,), res.fitted_, res.resid_,
+            model, (f"{quote_sheet(fs.title)}!{col_letter(fit_col + 1)}",
+                    np.arange(res.n_) + FIRST_ROW + 1), res.fitted_, res.resid_,
             "residual = observed − fitted (the leave-one-out mean of the row's neighbours).",
             keys=model.keys)
         rc = 3 + key_width(model.keys)
@@ -306,25 +190,8 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
         names += _mean_summary(summary, model, res, fs, rs, rc, at, version, k)
     else:
         raise TypeError(f"a neighbour plan for {type(res).__name__} with focus {focus!r}")
-    # read by the charts: the standard units of the used rows
-    names.append((f"sf_{tag}_z", zrefs[0].split(":")[0] + ":" + zrefs[-1].split(":")[1]))
+    names.append((f"sf_{tag}_z", z_range))  # read by the charts: the used rows' standard units
     return Planned(sheets, names)
-
-
-@dataclass
-class _Cells:
-    """What every row of the neighbours sheet refers to."""
-
-    model: ModelData
-    y: list[Any]  # the training responses (numbers or class labels)
-    zrefs: list[str]
-    k: int
-    k_cell: str
-    focus_cell: str
-    vote: bool
-    o: int  # identifier columns between the row number and the neighbours
-    ystyle: str  # the responses' style
-    derived: str  # the predictions' style
 
 
 @dataclass
@@ -334,48 +201,12 @@ class _At:
     ns: SheetPlan
     start: int  # first new row on the neighbours sheet
     pred_col: int
-    new: _Rows | None
+    new: Block | None
     extrapolated: list[int]
     lay: _Layout
     o: int
     derived: str
-
-
-def _neighbour_row(ns: SheetPlan, r: int, i: int, rows: _Rows, zref: str, c: _Cells) -> None:
-    """Row ``i`` of a block of the neighbours sheet, at sheet row ``r``."""
-    model, k = c.model, c.k
-    nb = 1 + c.o
-    yc = model.y
-    nbrs, dists = rows.neighbours[i].tolist(), rows.distances[i].tolist()
-    for m, j in enumerate(nbrs):
-        ns.put(r, nb + m, yc.row_of(int(model.used[j])), style="row")
-        ns.put(r, nb + k + m, dists[m], f"=SQRT(SUMXMY2({zref},{c.zrefs[j]}))", "dist")
-        ns.put(r, nb + 2 * k + m, c.y[j], f"={yc.cell(int(model.used[j]))}", c.ystyle)
-    ns.put(r, 0, rows.first_ref[i], style="row")
-    a, b = nb + 2 * k, nb + 3 * k - 1
-    block = f"{col_letter(a + 1)}{r + 1}:{col_letter(b + 1)}{r + 1}"
-    if not c.vote:
-        lo, med, hi = rows.spread[i] if rows.spread else (math.nan,) * 3
-        col = nb + 3 * k
-        ns.put(r, col, rows.value[i], f"=AVERAGE({block})", c.derived)
-        ns.put(r, col + 1, lo, f"=MIN({block})", c.ystyle)
-        ns.put(r, col + 2, med, f"=MEDIAN({block})", c.derived)
-        ns.put(r, col + 3, hi, f"=MAX({block})", c.ystyle)
-        return
-    if rows.position_votes is None or rows.votes is None or rows.score is None \
-            or rows.share is None:
-        raise ValueError("a vote block needs its votes, scores and shares")
-    pv = rows.position_votes[i].tolist()
-    for m in range(k):
-        cell = f"{col_letter(a + 1 + m)}{r + 1}"
-        ns.put(r, nb + 3 * k + m, pv[m], f"=SUMPRODUCT(--EXACT({block},{cell}))", "int")
-    vb = f"{col_letter(nb + 3 * k + 1)}{r + 1}:{col_letter(nb + 4 * k)}{r + 1}"
-    col = nb + 4 * k
-    ns.put(r, col, rows.value[i], f"=INDEX({block},MATCH(MAX({vb}),{vb},0))", "class")
-    ns.put(r, col + 1, rows.votes[i], f"=MAX({vb})", "int")
-    ns.put(r, col + 2, rows.score[i], f"=MAX({vb})/{c.k_cell}", "pct")
-    ns.put(r, col + 3, rows.share[i], f"=SUMPRODUCT(--EXACT({block},{c.focus_cell}))/{c.k_cell}",
-           "pct")
+    trail: Trail
 
 
 def _focus(model: ModelData, res: NeighbourVoteResult) -> str | float:
@@ -385,44 +216,6 @@ def _focus(model: ModelData, res: NeighbourVoteResult) -> str | float:
     if given is not None:
         return next(c for c in classes if labels_equal(c, given))
     return classes[int(np.argmin(res.base_rate_))]
-
-
-def _fitted_sheet(model: ModelData, res: _Result, refs: list[str], vote: bool,
-                  nbrs_title: str, o: int, ystyle: str, derived: str) -> tuple[SheetPlan, str]:
-    y = model.y
-    fs = SheetPlan(sheet_title(model.tag, "fitted"))
-    fs.put(0, 0, f"Fitted values — model {model.tag}", style="title")
-    fs.put(1, 0, "Each row predicted from its neighbours, never from itself (leave-one-out), "
-           "so the errors here are honest estimates for new rows.", style="note")
-    ob = 1 + o
-    heads = (["data row"] + key_heads(model.keys, o)
-             + [f"{y.name} (observed)", f"predicted {y.name}" if vote else f"fitted {y.name}"])
-    if vote:
-        heads.append("right (1) / wrong (0)")
-    for c, h in enumerate(heads):
-        fs.put(3, c, h, style="head")
-    obs, fitted = res.y_.tolist(), res.fitted_.tolist()
-    right = res.correct_.tolist() if isinstance(res, NeighbourVoteResult) else []
-    kst = key_styles(model.keys)
-    B, C = col_letter(ob + 1), col_letter(ob + 2)
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        fs.put(r, 0, y.row_of(int(idx)), style="row")
-        put_keys(fs, r, 1, model.keys, int(idx), kst)
-        fs.put(r, ob, obs[i], f"={y.cell(int(idx))}", ystyle)
-        fs.put(r, ob + 1, fitted[i], f"={refs[i]}", derived)
-        if vote:
-            fs.put(r, ob + 2, int(right[i]), f"=IF(EXACT({B}{r + 1},{C}{r + 1}),1,0)", "int")
-    last = FIRST_ROW + len(model.used) - 1
-    plan_left_out(fs, model, len(heads) + 1)
-    fs.widths.update({0: 9, ob: 16, ob + 1: 16})
-    notes = {ob: "your data cell",
-             ob + 1: f"from sheet '{nbrs_title}', same row"}
-    if vote:
-        notes[ob + 2] = "1 when the two agree exactly (EXACT)"
-    column_notes(fs, notes)
-    fs.freeze = (FIRST_ROW, 1 + o)
-    return fs, fs.col_range(ob + 1, FIRST_ROW, last)
 
 
 def _head_row(s: SheetPlan, row: int, heads: list[str]) -> None:
@@ -449,12 +242,15 @@ def _mean_answer(s: SheetPlan, model: ModelData, at: _At) -> None:
                      p + 1: "the spread of those values: read the estimate with it"}, row - 1)
     nst = key_styles(model.new.keys)
     answer = at.derived.replace("dec", "answer")
+    first, value = at.new.sheet_rows.tolist(), np.asarray(at.new.value).tolist()
+    nan = [math.nan] * model.new.n
+    los, meds, his = (a.tolist() for a in at.new.spread) if at.new.spread else (nan,) * 3
     for i in range(model.new.n):
         r, src = row + 1 + i, at.start + i
-        s.put(r, 0, at.new.first_ref[i], f"={at.ns.ref(src, 0, fixed=False)}", "row")
+        s.put(r, 0, first[i], f"={at.ns.ref(src, 0, fixed=False)}", "row")
         put_keys(s, r, 1, model.new.keys, i, nst)
-        lo, med, hi = at.new.spread[i] if at.new.spread else (math.nan,) * 3
-        s.put(r, p, at.new.value[i], f"={at.ns.ref(src, at.pred_col, fixed=False)}", answer)
+        lo, med, hi = los[i], meds[i], his[i]
+        s.put(r, p, value[i], f"={at.ns.ref(src, at.pred_col, fixed=False)}", answer)
         for m, v in enumerate((lo, med, hi), start=1):
             s.put(r, p + m, v, f"={at.ns.ref(src, at.pred_col + m, fixed=False)}", at.derived)
         s.put(r, p + 4, _flag(i, at), style="flag")
@@ -489,6 +285,21 @@ def _settings_block(s: SheetPlan, model: ModelData, res: _Result, version: str, 
           else "chosen: smallest leave-one-out error in the k table below", style="note")
     s.put(row + 2, 0, "focus class" if vote else "standard units", style="label")
     return row + 4
+
+
+def _trail_setting(s: SheetPlan, row: int, trail: Trail) -> None:
+    """The settings line of the audit trail: its extent and what it shows."""
+    s.put(row, 0, "audit trail", style="label")
+    s.put(row, 1, trail.extent)
+    if trail.full:
+        how = (f"every data row (auto: every row up to {TRAIL_ALL_UP_TO:,})"
+               if trail.extent == "auto" else "every data row")
+    elif trail.seed is None:
+        how = "the new rows only; the data rows' fitted values are sheetfit's, as values"
+    else:
+        how = (f"an audit sample of {len(trail.rows):,} of {trail.n:,} data rows, seed "
+               f"{trail.seed} (see the neighbours sheet)")
+    s.put(row, 2, how, style="note")
 
 
 def _k_table(s: SheetPlan, row: int, res: _Result, k: int, label: str, err_cell: str,
@@ -539,6 +350,8 @@ def _mean_summary(s: SheetPlan, model: ModelData, res: NeighbourMeanResult, fs: 
     s.put(lay.settings + 2, 1, "yes" if on else "no")
     s.put(lay.settings + 2, 2, "distances in standard units" if on else "distances in the "
           "attributes' own units", style="note")
+    _trail_setting(s, lay.settings + 3, at.trail)
+    row += 1
     _mean_answer(s, model, at)
     n = res.n_
     last = FIRST_ROW + n - 1
@@ -572,7 +385,8 @@ def _vote_summary(s: SheetPlan, model: ModelData, res: NeighbourVoteResult, fs: 
           else "the rarest class (setting focus changes it)", style="note")
     s.put(st + 3, 0, "standard units", style="label")
     s.put(st + 3, 1, "yes" if res.scaling_.on else "no")
-    row += 1
+    _trail_setting(s, st + 4, at.trail)
+    row += 2
     n = res.n_
     last = FIRST_ROW + n - 1
     ob = 1 + at.o
@@ -661,7 +475,9 @@ def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResul
     if new is None or new.share is None or model.new is None:
         raise ValueError("a work list needs the new rows' shares")
     k = int(res.k_)
-    shares = new.share
+    shares = new.share.tolist()
+    first, value = new.sheet_rows.tolist(), np.asarray(new.value).tolist()
+    votes = None if new.votes is None else new.votes.tolist()
     n_new = len(shares)
     order = sorted(range(n_new), key=lambda i: (-shares[i], i))
     o = at.o
@@ -677,12 +493,12 @@ def _work_list(s: SheetPlan, top: int, model: ModelData, res: NeighbourVoteResul
         r = top + rank
         src = at.start + i
         s.put(r, 0, rank, style="row")
-        s.put(r, 1, new.first_ref[i], f"={ns.ref(src, 0, fixed=False)}", "row")
+        s.put(r, 1, first[i], f"={ns.ref(src, 0, fixed=False)}", "row")
         put_keys(s, r, 2, model.new.keys, i, nst)
         s.put(r, p, shares[i], f"={ns.ref(src, pred_col + 3, fixed=False)}", "pct")
-        s.put(r, p + 1, new.value[i], f"={ns.ref(src, pred_col, fixed=False)}", "class")
-        if new.votes is not None:
-            s.put(r, p + 2, new.votes[i], f"={ns.ref(src, pred_col + 1, fixed=False)}", "int")
+        s.put(r, p + 1, value[i], f"={ns.ref(src, pred_col, fixed=False)}", "class")
+        if votes is not None:
+            s.put(r, p + 2, votes[i], f"={ns.ref(src, pred_col + 1, fixed=False)}", "int")
         s.put(r, p + 3, _flag(i, at), style="flag")
     s.put(top + 1 + n_new, 0, "A ranked work list, not a verdict: choose the cut-off from "
           "the cost of a missed case against the cost of a needless follow-up.", style="note")

@@ -6,6 +6,7 @@ sheet parts. Rows and columns are 0-based here, as in the renderer.
 
 from __future__ import annotations
 
+import bisect
 import math
 import textwrap
 from collections.abc import Sequence
@@ -171,6 +172,9 @@ class SheetPlan:
     _by_cell: dict[tuple[int, int], Cell] | None = field(default=None, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
     runs: list[Run] = field(default_factory=list)
+    #: Per column: the runs' first rows and the runs, sorted (see ``_column_runs``).
+    _index: dict[int, tuple[list[int], list[Run]]] = field(default_factory=dict, repr=False)
+    _indexed: int = field(default=0, repr=False)
 
     @property
     def cells(self) -> list[Cell]:
@@ -180,8 +184,22 @@ class SheetPlan:
             out += [Cell(r, c, v, f, run.style) for r, c, v, f in run.cells()]
         return out
 
+    def _column_runs(self, col: int) -> tuple[list[int], list[Run]]:
+        """The runs of one column sorted by first row, with their first rows (for bisect);
+        rebuilt when ``runs`` changed other than through :meth:`run`."""
+        if self._indexed != len(self.runs):
+            index: dict[int, tuple[list[int], list[Run]]] = {}
+            for u in sorted((u for u in self.runs if u.n), key=lambda u: (u.col, u.row0)):
+                starts, runs = index.setdefault(u.col, ([], []))
+                starts.append(u.row0)
+                runs.append(u)
+            self._index, self._indexed = index, len(self.runs)
+        return self._index.get(col, ([], []))
+
     def _run_at(self, row: int, col: int) -> Run | None:
-        return next((u for u in self.runs if u.col == col and u.row0 <= row <= u.last), None)
+        starts, runs = self._column_runs(col)
+        k = bisect.bisect_right(starts, row) - 1
+        return runs[k] if k >= 0 and row <= runs[k].last else None
 
     def run(self, col: int, row0: int, values: Sequence[Scalar] | np.ndarray,
             formula: Template | None = None, style: str = "text") -> Run:
@@ -200,13 +218,19 @@ class SheetPlan:
         run = Run(col, row0, values, style, formula)
         if run.n == 0:
             return run
-        for u in self.runs:
-            if u.col == col and u.row0 <= run.last and row0 <= u.last:
-                raise ValueError(f"{self.title}: runs overlap in column {cell_ref(1, col + 1)}")
+        starts, runs = self._column_runs(col)
+        k = bisect.bisect_right(starts, run.last)  # runs[:k] start at or above run's last row
+        if k and runs[k - 1].last >= row0:
+            raise ValueError(f"{self.title}: runs overlap in column {cell_ref(1, col + 1)}")
         clash = next(((r, c) for r, c in self._taken if c == col and row0 <= r <= run.last), None)
         if clash is not None:
             raise ValueError(f"{self.title}: cell {cell_ref(clash[0] + 1, col + 1)} planned twice")
         self.runs.append(run)
+        starts.insert(k, row0)
+        runs.insert(k, run)
+        if not self._index.get(col):
+            self._index[col] = (starts, runs)
+        self._indexed += 1
         return run
 
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,

@@ -11,27 +11,31 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
 
-from ..a1 import absolute, col_letter
+from ..a1 import absolute, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..fit.strip import EDGE_ALLOWANCE, EVEN_CENTRES, StripMeanResult
 from ..owned import sheet_title
 from ..words import plural
+from .columns import Part, Template, template, this_row
 from .common import (
     FIRST_ROW,
     check_cell,
     check_words,
     column_notes,
     key_heads,
+    key_runs,
     key_styles,
     key_width,
     plan_left_out,
     plan_methods,
     plan_residual_sheet,
     put_keys,
+    ref_parts,
 )
 from .plan import Planned, SheetPlan, decimal_style
 
@@ -156,33 +160,35 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     for c, h in enumerate(fh):
         fs.put(3, c, h, style="head")
     L = {k: col_letter(ob + 1 + d) for d, k in enumerate("BCDEFGH")}  # shifted letters
-    f_idx = _lookup_formula(even, col["centre"], ss, lay)
-    row_centre, in_strip = res.row_centre_.tolist(), res.in_strip_.tolist()
-    fit_vals = res.fitted_.tolist()
-    refs = []
-    kst = key_styles(model.keys)
+    me = this_row  # the cell's own row
+    used = np.asarray(model.used, dtype=np.int64)
+    rc = np.asarray(res.row_centre_, dtype=np.int64)
     fit_col = ob + 6
-    for i, idx in enumerate(model.used):
-        r = FIRST_ROW + i
-        R = r + 1
-        j = row_centre[i]
-        fs.put(r, 0, y.row_of(int(idx)), style="row")
-        put_keys(fs, r, 1, model.keys, int(idx), kst)
-        fs.put(r, ob, yv[i], f"={y.cell(int(idx))}", ystyle)
-        fs.put(r, xc, x[i], f"={model.xs[0].cell(int(idx))}", xstyle)
-        fs.put(r, ob + 2, j + 1, f_idx.format(x=f"{L['C']}{R}"), "int")
-        fs.put(r, ob + 3, counts[j], f"=INDEX({col['count']},{L['D']}{R})", "int")
-        fs.put(r, ob + 4, sums[j], f"=INDEX({col['sum']},{L['D']}{R})", ystyle)
-        fs.put(r, ob + 5, int(in_strip[i]),
-               f"=IF(ABS({L['C']}{R}-INDEX({col['centre']},{L['D']}{R}))<={w_full}*{EDGE},1,0)",
-               "int")
-        blank = math.isnan(fit_vals[i])
-        B, E, F, G, H = (f"{L[k]}{R}" for k in "BEFGH")
-        fs.put(r, fit_col, _num(fit_vals[i]),
-               f'=IF({G}=1,IF({E}-1=0,"",({F}-{B})/({E}-1)),IF({E}=0,"",{F}/{E}))', derived)
-        fs.put(r, fit_col + 1, "no other row within ± width" if blank else "",
-               f'=IF({H}="","no other row within ± width","")', "note")
-        refs.append(fs.ref(r, fit_col, fixed=False))
+    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    key_runs(fs, FIRST_ROW, 1, model.keys, used, key_styles(model.keys))
+    fs.run(ob, FIRST_ROW, np.asarray(res.y_, dtype=float), template("=", *ref_parts(y, used)),
+           ystyle)
+    fs.run(xc, FIRST_ROW, np.asarray(res.x_, dtype=float),
+           template("=", *ref_parts(model.xs[0], used)), xstyle)
+    # whole numbers as Python ints: the bulk writer caches them as written (7, not 7.0)
+    fs.run(ob + 2, FIRST_ROW, (rc + 1).tolist(),
+           _lookup_template(even, col["centre"], ss, lay, L["C"]), "int")
+    fs.run(ob + 3, FIRST_ROW, np.asarray(res.count_)[rc].tolist(),
+           template(f"=INDEX({col['count']},{L['D']}", me, ")"), "int")
+    fs.run(ob + 4, FIRST_ROW, np.asarray(res.sum_)[rc],
+           template(f"=INDEX({col['sum']},{L['D']}", me, ")"), ystyle)
+    fs.run(ob + 5, FIRST_ROW, np.asarray(res.in_strip_, dtype=np.int64).tolist(),
+           template(f"=IF(ABS({L['C']}", me, f"-INDEX({col['centre']},{L['D']}", me,
+                    f"))<={w_full}*{EDGE},1,0)"), "int")
+    fit = np.asarray(res.fitted_, dtype=float)
+    blank = np.isnan(fit)
+    B, E, F, G, H = (cast(tuple[Part, ...], (L[k], me)) for k in "BEFGH")
+    fs.run(fit_col, FIRST_ROW, [_num(v) for v in fit.tolist()] if blank.any() else fit,
+           template("=IF(", *G, '=1,IF(', *E, '-1=0,"",(', *F, "-", *B, ")/(", *E, "-1)),IF(",
+                    *E, '=0,"",', *F, "/", *E, "))"), derived)
+    fs.run(fit_col + 1, FIRST_ROW,
+           ["no other row within ± width" if b else "" for b in blank.tolist()],
+           template("=IF(", *H, '="","no other row within ± width","")'), "note")
     fs.widths = {0: 9, fit_col: 16, fit_col + 1: 26}
     column_notes(fs, {ob: "your data cell", ob + 2: "the row's centre on the curve sheet",
                       ob + 3: "looked up on the curve sheet",
@@ -198,7 +204,8 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
                "show how well the curve predicts the data rows.", style="note")
     plan_left_out(fs, model, side)
 
-    rs = plan_residual_sheet(model, (refs,), res.fitted_, res.resid_,
+    refs = (f"{quote_sheet(fs.title)}!{col_letter(fit_col + 1)}", np.arange(n) + FIRST_ROW + 1)
+    rs = plan_residual_sheet(model, refs, res.fitted_, res.resid_,
                              "residual = observed − fitted (leave-one-out strip mean); "
                              "blank where the row's strip holds no other row.",
                              keys=model.keys)
@@ -255,6 +262,13 @@ def _lookup_formula(even: bool, centre_rng: str, ss: SheetPlan, lay: _Layout) ->
     st = lay.settings
     return (f"=MIN({EVEN_CENTRES},MAX(1,ROUND(({{x}}-{ss.ref(st + 2, 1)})/{ss.ref(st + 3, 1)}"
             ",0)+1))")
+
+
+def _lookup_template(even: bool, centre_rng: str, ss: SheetPlan, lay: _Layout,
+                     x_col: str) -> Template:
+    """:func:`_lookup_formula` for every data row: ``x_col`` is the x cells' column."""
+    head, tail = _lookup_formula(even, centre_rng, ss, lay).split("{x}")
+    return template(head, x_col, this_row, tail)
 
 
 def _new_rows(fs: SheetPlan, model: ModelData, fitted: Fitted[StripMeanResult], side: int,

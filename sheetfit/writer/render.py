@@ -156,8 +156,11 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False,
             _charts(wb, ws, sheet)
     wb.close()
     used = {u.style for rs in runs.values() for u in rs}
+    # _get_xf_index, not xf_index: a style whose properties equal another's (int and dec0)
+    # shares that one's index, and xlsxwriter leaves its own xf_index unset
     return Rendition(Path(path), runs,
-                     {k: None if formats[k] is None else formats[k].xf_index for k in used})
+                     {k: None if formats[k] is None else formats[k]._get_xf_index()
+                      for k in used})
 
 
 #: Series colours: a blue and an orange that read apart in colour and in grey, then more.
