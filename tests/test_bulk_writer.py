@@ -146,3 +146,36 @@ def test_only_formulas_that_move_down_with_the_row_are_shared() -> None:
     assert not _bulk.shareable(run("=Data!B", rows[[0, 1, 2, 4, 3]], pad))  # not contiguous
     assert not _bulk.shareable(run("=Data!B", rows))  # short: written in full
     assert not _bulk.shareable(run("=Data!B", rows, "*Data!$B$2+LOG10(", this_row, ")", pad))
+
+
+def test_libreoffice_recalculates_bulk_chunks_as_cached(tmp_path: Path, engine: Any,
+                                                        monkeypatch: pytest.MonkeyPatch) -> None:
+    """Chunks of 64 rows: the row-wise chunks, shared formulas and loose rows merged into
+    run rows all occur in a 300-row book; LibreOffice's recalculation equals every cached
+    value (least squares with a text attribute and identifiers, neighbour mean, strip)."""
+    from engine.compare import assert_cached_values_hold
+
+    from tests.books import jobs
+
+    monkeypatch.setattr(_bulk, "CHUNK_ROWS", 64)
+    rows = jobs(300, seed=5)
+    rows[0] += ["job", "region"]
+    for i, r in enumerate(rows[1:]):
+        r += [f"J{i:04d}", ("north", "south", "east")[i % 3]]
+    rows[40][1] = None  # a left-out row: the data rows are not contiguous
+    book = make_book(tmp_path / "jobs.xlsx", {"Jobs": rows}, {
+        "sf_cost_y": "Jobs!$A$2:$A$301", "sf_cost_x": "Jobs!$B$2:$C$301",
+        "sf_cost_key": "Jobs!$D$2:$D$301",
+        "sf_area_y": "Jobs!$A$2:$A$301", "sf_area_x": "Jobs!$B$2:$B$301,Jobs!$E$2:$E$301",
+        "sf_near_y": "Jobs!$A$2:$A$301", "sf_near_x": "Jobs!$B$2:$C$301",
+        "sf_near_opts": "Jobs!$G$1:$H$2",
+    })
+    wb = openpyxl.load_workbook(book)
+    wb["Jobs"]["G1"], wb["Jobs"]["H1"] = "method", "neighbour mean"
+    wb["Jobs"]["G2"], wb["Jobs"]["H2"] = "k", 5
+    wb.save(book)
+    refresh_mod.refresh(book, now=NOW)
+    with zipfile.ZipFile(book) as z:
+        xml = b"".join(z.read(n) for n in z.namelist() if "worksheets/" in n)
+    assert b't="shared"' in xml
+    assert assert_cached_values_hold(book, engine, min_checked=3000) >= 3000
