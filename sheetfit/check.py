@@ -22,9 +22,12 @@ from __future__ import annotations
 import json
 import math
 import re
+from collections.abc import Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
+
+import numpy as np
 
 from . import __version__
 from .a1 import cell_ref, col_index, quote_sheet
@@ -40,7 +43,8 @@ from .owned import INDEX_SHEET, INPUTS_SHEET
 from .reader.formulas import CellKind, CellKinds, read_cell_kinds
 from .reader.package import Package, open_package
 from .reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, BookValues, Value
-from .sheets.plan import Cell, SheetPlan
+from .sheets.columns import Run
+from .sheets.plan import SheetPlan
 
 __all__ = ["CURRENT", "EDITED", "MISSING", "STALE", "BookCheck", "ModelCheck", "check"]
 
@@ -241,12 +245,46 @@ class _BookPlans:
         for t, s in self._sheets.items():
             if not t.startswith(prefix):
                 continue
-            own = {(c.row, c.col): (c.value, c.formula) for c in alone[t].cells} \
-                if t in alone else {}
-            shared = {(c.row + 1, c.col + 1) for c in s.cells
-                      if own.get((c.row, c.col)) != (c.value, c.formula)}
-            out.append((s, set() if self.all_current else shared))
+            shared = set() if self.all_current else _differing(s, alone.get(t))
+            out.append((s, shared))
         return out
+
+
+def _same_run(a: Run, b: Run) -> bool:
+    """Whether two runs plan the same cells (values, formula template and vectors)."""
+    if (a.col, a.row0, a.n, a.style) != (b.col, b.row0, b.n, b.style):
+        return False
+    if (a.formula is None) != (b.formula is None):
+        return False
+    pairs: list[tuple[Any, Any]] = [(a.values, b.values)]
+    if a.formula is not None and b.formula is not None:
+        if a.formula.text != b.formula.text or len(a.formula.args) != len(b.formula.args):
+            return False
+        pairs += list(zip(a.formula.args, b.formula.args, strict=True))
+    for x, y in pairs:
+        if x is None or y is None:
+            if x is not y:
+                return False
+        elif not np.array_equal(np.asarray(x, dtype=object), np.asarray(y, dtype=object)):
+            return False
+    return True
+
+
+def _differing(whole: SheetPlan, alone: SheetPlan | None) -> set[tuple[int, int]]:
+    """Cells (1-based) the plan of every model gives differently from the plan of this model
+    alone: those depend on the other models. Runs equal in both are skipped whole."""
+    theirs = {(u.col, u.row0): u for u in alone.runs} if alone is not None else {}
+    same = {(u.col, u.row0) for u in whole.runs
+            if (o := theirs.get((u.col, u.row0))) is not None and _same_run(u, o)}
+    mine = SheetPlan(whole.title, loose=whole.loose,
+                     runs=[u for u in whole.runs if (u.col, u.row0) not in same])
+    own: dict[tuple[int, int], tuple[Any, str | None]] = {}
+    if alone is not None:
+        other = SheetPlan(alone.title, loose=alone.loose,
+                          runs=[u for u in alone.runs if (u.col, u.row0) not in same])
+        own = {(c.row, c.col): (c.value, c.formula) for c in other.cells}
+    return {(c.row + 1, c.col + 1) for c in mine.cells
+            if own.get((c.row, c.col)) != (c.value, c.formula)}
 
 
 def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
@@ -380,15 +418,23 @@ def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
     sv = values.sheet(title)
     edits = []
     seen: set[tuple[int, int]] = set(skip)
-    for c in plan.cells:
-        pos = (c.row + 1, c.col + 1)
+
+    def planned() -> Iterator[tuple[int, int, Any, str | None]]:
+        """(row, col, value, formula) of every planned cell, runs without Cell objects."""
+        for c in plan.loose:
+            yield c.row, c.col, c.value, c.formula
+        for run in plan.runs:
+            yield from run.cells()
+
+    for row, col, value, formula in planned():
+        pos = (row + 1, col + 1)
         if pos in skip:
             continue
         seen.add(pos)
         v = sv.get(*pos)
-        what = _cell_edit(c, kinds.get(pos), v)
+        what = _cell_edit(value, formula, kinds.get(pos), v)
         if what:
-            edits.append(Edit(title, c.address, what))
+            edits.append(Edit(title, cell_ref(*pos), what))
     for pos in sorted(set(kinds) - seen):
         v = sv.get(*pos)
         if v.kind != BLANK or kinds[pos].formula is not None:
@@ -397,22 +443,22 @@ def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
     return edits
 
 
-def _cell_edit(c: Cell, kind: CellKind | None, v: Value) -> str:
+def _cell_edit(value: Any, formula: str | None, kind: CellKind | None, v: Value) -> str:
     """What is wrong with one planned cell in the book ('' when nothing is)."""
-    if c.formula is not None:
+    if formula is not None:
         if kind is None:
             return "its formula was cleared"
         if kind.formula is None:
-            return f"its formula {c.formula[:40]} was replaced by {_shown(v)}"
+            return f"its formula {formula[:40]} was replaced by {_shown(v)}"
         if v.kind == UNSAVED or not kind.result:
             return ""  # counted by the data-side pass, once per sheet
-        if not _same(c.value, v):
-            return f"shows {_shown(v)} where its formula gave {c.value!r:.30}"
+        if not _same(value, v):
+            return f"shows {_shown(v)} where its formula gave {value!r:.30}"
         return ""
     if kind is not None and kind.formula is not None:
-        return f"a formula was typed where sheetfit wrote {c.value!r:.30}"
-    if not _same(c.value, v):
-        return f"holds {_shown(v)} where sheetfit wrote {c.value!r:.30}"
+        return f"a formula was typed where sheetfit wrote {value!r:.30}"
+    if not _same(value, v):
+        return f"holds {_shown(v)} where sheetfit wrote {value!r:.30}"
     return ""
 
 
@@ -427,12 +473,15 @@ def _data_side(sheets: dict[str, str], kinds: dict[str, CellKinds],
         for (r, c), (formula, result) in kinds[title].items():
             if formula is None:
                 continue
-            v = sv.get(r, c)
-            if v.kind == UNSAVED or not result:
+            if not result:
                 unsaved += 1
                 continue
-            m = _PLAIN_REF.match(formula.strip())
-            if m is None:
+            m = _PLAIN_REF.match(formula.strip()) if formula else None
+            if m is None:  # not a plain reference (or a shared formula's follower)
+                continue
+            v = sv.get(r, c)
+            if v.kind == UNSAVED:
+                unsaved += 1
                 continue
             sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
             if sheet.casefold() in owned:

@@ -57,18 +57,33 @@ def read_cell_kinds(path: Path, part: str) -> CellKinds:
 def _scan(data: bytes) -> CellKinds | None:
     """The cells of a UTF-8 part by byte scan; None when a cell has no reference."""
     out: CellKinds = {}
+    cols: dict[bytes, int] = {}  # column letters seen, by their number
+    kinds: dict[tuple[str | None, bool], CellKind] = {}  # one object per distinct kind
     for m in _CELL.finditer(data):
         head, body = m.group(1), m.group(2) or b""
         ref = _REF.search(head)
         if ref is None:
             return None
         f = _FORMULA.search(body)
-        formula = None if f is None else unescape((f.group(1) or b"").decode(), _ENTITIES)
+        if f is None:
+            formula = None
+        else:
+            raw = f.group(1) or b""
+            formula = unescape(raw.decode(), _ENTITIES) if b"&" in raw else raw.decode()
         v = _VALUE.search(body)
         result = v is not None and (v.group(1) is None or bool(v.group(1))
                                     or _TYPE_STR.search(head) is not None)
         if formula is not None or result:
-            out[(int(ref.group(2)), col_index(ref.group(1)))] = CellKind(formula, result)
+            letters = ref.group(1)
+            col = cols.get(letters)
+            if col is None:
+                col = cols[letters] = col_index(letters)
+            kind = kinds.get((formula, result)) if not formula else None
+            if kind is None:
+                kind = CellKind(formula, result)
+                if not formula:  # values and shared formulas' followers: a handful of kinds
+                    kinds[(formula, result)] = kind
+            out[(int(ref.group(2)), col)] = kind
     return out
 
 
