@@ -22,8 +22,8 @@ from __future__ import annotations
 import json
 import math
 import re
-from collections.abc import Iterator
 from dataclasses import asdict, dataclass, field
+from itertools import repeat
 from pathlib import Path
 from typing import Any
 
@@ -40,6 +40,7 @@ from .history._grid import read_rows
 from .history.inputs import read_inputs
 from .methods import REGISTRY
 from .owned import INDEX_SHEET, INPUTS_SHEET
+from .reader.columns import CODE
 from .reader.formulas import CellKind, CellKinds, read_cell_kinds
 from .reader.package import Package, open_package
 from .reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, BookValues, Value
@@ -419,28 +420,70 @@ def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
     edits = []
     seen: set[tuple[int, int]] = set(skip)
 
-    def planned() -> Iterator[tuple[int, int, Any, str | None]]:
-        """(row, col, value, formula) of every planned cell, runs without Cell objects."""
-        for c in plan.loose:
-            yield c.row, c.col, c.value, c.formula
-        for run in plan.runs:
-            yield from run.cells()
-
-    for row, col, value, formula in planned():
+    def compare(row: int, col: int, value: Any, formula: str | None) -> None:
         pos = (row + 1, col + 1)
         if pos in skip:
-            continue
+            return
         seen.add(pos)
-        v = sv.get(*pos)
-        what = _cell_edit(value, formula, kinds.get(pos), v)
+        what = _cell_edit(value, formula, kinds.get(pos), sv.get(*pos))
         if what:
             edits.append(Edit(title, cell_ref(*pos), what))
-    for pos in sorted(set(kinds) - seen):
+
+    for c in plan.loose:
+        compare(c.row, c.col, c.value, c.formula)
+    spans: dict[int, list[tuple[int, int]]] = {}  # column -> 1-based row spans of the runs
+    for run in plan.runs:
+        if not run.n:
+            continue
+        spans.setdefault(run.col + 1, []).append((run.row0 + 1, run.last + 1))
+        suspects = _run_suspects(run, kinds, sv, skip)
+        if suspects is None:  # not a numeric run: cell by cell
+            for row, col, value, formula in run.cells():
+                compare(row, col, value, formula)
+            continue
+        for i in suspects:
+            f = run.formulas(i, i + 1)
+            compare(run.row0 + i, run.col, run.scalars(i, i + 1)[0], f[0] if f else None)
+
+    def covered(pos: tuple[int, int]) -> bool:
+        return pos in seen or any(a <= pos[0] <= b for a, b in spans.get(pos[1], ()))
+
+    for pos in sorted(p for p in kinds if not covered(p)):
         v = sv.get(*pos)
         if v.kind != BLANK or kinds[pos].formula is not None:
             edits.append(Edit(title, cell_ref(*pos), f"holds {_shown(v)}, which sheetfit did "
                               "not write (the next refresh replaces this sheet)"))
     return edits
+
+
+def _run_suspects(run: Run, kinds: CellKinds, sv: Any,
+                  skip: set[tuple[int, int]]) -> list[int] | None:
+    """Items of a run of numbers whose cell may differ from the plan (the rest certainly
+    agree: a number within REL/ABS and, for a formula run, a formula with its result), found
+    with arrays; ``_cell_edit`` then words each suspect. None for runs of other values."""
+    v = run.values
+    if not (isinstance(v, np.ndarray) and v.dtype.kind in "fiu"):
+        return None
+    col = run.col + 1
+    r1 = run.row0 + 1
+    book = sv.column(col, r1, run.last + 1)
+    planned = v.astype(float)
+    got = book.number
+    is_num = book.kind == CODE[NUMBER]
+    with np.errstate(invalid="ignore"):
+        close = is_num & (np.abs(planned - got) <= np.maximum(
+            ABS, REL * np.maximum(np.abs(planned), np.abs(got))))
+    bad = (~close).tolist()
+    has_formula = run.formula is not None
+    out = []
+    for i, k in enumerate(map(kinds.get, zip(range(r1, r1 + run.n), repeat(col)))):
+        if has_formula:
+            fine = k is not None and k.formula is not None and (not k.result or not bad[i])
+        else:
+            fine = (k is None or k.formula is None) and not bad[i]
+        if not fine and (r1 + i, col) not in skip:
+            out.append(i)
+    return out
 
 
 def _cell_edit(value: Any, formula: str | None, kind: CellKind | None, v: Value) -> str:
