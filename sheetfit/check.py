@@ -510,6 +510,7 @@ def _data_side(sheets: dict[str, str], kinds: dict[str, CellKinds],
     """Owned references to a user's cell whose cached value differs from that cell."""
     edits: list[Edit] = []
     owned = {t.casefold() for t in kinds}
+    user: dict[str, Any] = {}  # the user's sheets the references name, read once
     for title in sheets:
         sv = values.sheet(title)
         unsaved = 0
@@ -522,17 +523,22 @@ def _data_side(sheets: dict[str, str], kinds: dict[str, CellKinds],
             m = _PLAIN_REF.match(formula.strip()) if formula else None
             if m is None:  # not a plain reference (or a shared formula's follower)
                 continue
+            sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
+            if sheet.casefold() in owned:
+                continue
             v = sv.get(r, c)
             if v.kind == UNSAVED:
                 unsaved += 1
                 continue
-            sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
-            if sheet.casefold() in owned:
+            if sheet not in user:
+                try:
+                    user[sheet] = values.sheet(sheet)
+                except KeyError:
+                    user[sheet] = None
+            target_sheet = user[sheet]
+            if target_sheet is None:
                 continue
-            try:
-                target = values.sheet(sheet).get(int(m.group("r")), col_index(m.group("c")))
-            except KeyError:
-                continue
+            target = target_sheet.get(int(m.group("r")), col_index(m.group("c")))
             if not _same_value(v, target):
                 edits.append(Edit(title, cell_ref(r, c), (
                     f"shows {_shown(v)} but {formula.lstrip('=')} holds {_shown(target)} "
