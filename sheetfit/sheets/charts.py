@@ -103,8 +103,9 @@ class Located:
     def has(self, name: str) -> bool:
         return name.lower() in self.names
 
-    def block(self, name: str) -> list[list[tuple[str, Scalar]]]:
-        """Rows of (absolute reference, cached value) of the range an output name holds."""
+    def _area(self, name: str) -> tuple[str, int, int, int, int]:
+        """(sheet title, first column, first row, last column, last row; 0-based) of the
+        range an output name holds."""
         text = self.names.get(name.lower())
         if text is None:
             raise KeyError(f"no output name {name}")
@@ -115,30 +116,23 @@ class Located:
         c1, r1 = col_index(m.group(3)) - 1, int(m.group(4)) - 1
         c2 = col_index(m.group(5)) - 1 if m.group(5) else c1
         r2 = int(m.group(6)) - 1 if m.group(6) else r1
-        q = quote_sheet(title)
-        sheet = self._sheets.get(title)
-        cols = [sheet.values_in(c, r1, r2) if sheet else [None] * (r2 - r1 + 1)
-                for c in range(c1, c2 + 1)]
-        heads = [f"{q}!${col_letter(c + 1)}$" for c in range(c1, c2 + 1)]
-        return [[(heads[j] + str(r + 1), cols[j][r - r1]) for j in range(c2 - c1 + 1)]
-                for r in range(r1, r2 + 1)]
+        return title, c1, r1, c2, r2
 
     def column(self, name: str, j: int = 0) -> CellColumn:
         """Column ``j`` of the range an output name holds, as (reference, value) pairs made
         on demand (a chart reads a sample of a 200,000-row column, and all its values)."""
-        text = self.names.get(name.lower())
-        if text is None:
-            raise KeyError(f"no output name {name}")
-        m = _REF.match(text)
-        if m is None:
-            raise ValueError(f"output name {name} holds {text!r}, not one range")
-        title = (m.group(1) or "").replace("''", "'") or m.group(2)
-        c, r1 = col_index(m.group(3)) - 1 + j, int(m.group(4)) - 1
-        r2 = int(m.group(6)) - 1 if m.group(6) else r1
+        title, c1, r1, _, r2 = self._area(name)
         sheet = self._sheets.get(title)
+        c = c1 + j
         values: list[Scalar] = (sheet.values_in(c, r1, r2) if sheet
                                 else [None] * (r2 - r1 + 1))
         return CellColumn(f"{quote_sheet(title)}!${col_letter(c + 1)}$", r1 + 1, values)
+
+    def block(self, name: str) -> list[list[tuple[str, Scalar]]]:
+        """Rows of (absolute reference, cached value) of the range an output name holds."""
+        _, c1, _, c2, _ = self._area(name)
+        cols = [self.column(name, j) for j in range(c2 - c1 + 1)]
+        return [list(row) for row in zip(*cols, strict=True)]
 
     def range_text(self, name: str) -> str:
         return self.names[name.lower()]
