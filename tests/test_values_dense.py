@@ -6,6 +6,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 import random
+import zipfile
 from pathlib import Path
 from typing import Any
 
@@ -14,7 +15,7 @@ import pytest
 import python_calamine
 import xlsxwriter
 
-from sheetfit.reader import _dense
+from sheetfit.reader import _dense, values
 from sheetfit.reader._dense import Dense, dense_from_rows
 from sheetfit.reader.columns import column_values
 from sheetfit.reader.values import _dense_sheet
@@ -146,3 +147,18 @@ def test_a_real_sheet_matches_calamine_rows(tmp_path: Path,
     for r in range(len(rows) + 2):
         for c in range(len(rows[0]) + 2):
             assert _same(store.raw(r, c), _ref_raw(rows, r, c)), (r, c)
+
+
+def test_a_sheet_part_is_read_whole_into_one_buffer(tmp_path: Path,
+                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+    """The part buffer filled a chunk at a time holds exactly the part's bytes."""
+    monkeypatch.setattr(values, "_READ_CHUNK", 1000)  # many chunks, the last one short
+    path = tmp_path / "b.xlsx"
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("S")
+    for i in range(500):
+        ws.write_number(i, 0, i / 7)
+    wb.close()
+    with zipfile.ZipFile(path) as zf:
+        for member in zf.namelist():
+            assert bytes(values._part_bytes(zf, member)) == zf.read(member), member
