@@ -57,7 +57,7 @@ def _ref(text: str | bytes | None) -> tuple[int, int] | None:
     return int(m.group(2)), col_index(m.group(1))
 
 
-def utf8(data: bytes) -> bool:
+def utf8(data: bytes | bytearray) -> bool:
     """Whether an XML part is UTF-8 (no BOM of another encoding, no other declaration)."""
     if data[:2] in (b"\xff\xfe", b"\xfe\xff") or data[:4] in (b"\x00\x00\xfe\xff", b"<\x00?\x00"):
         return False
@@ -93,7 +93,7 @@ class Scan:
         return (self.last_row - self.first_row + 1) * max(self.n_cols, 1)
 
 
-def _cell_at(data: bytes, pos: int) -> tuple[int, int] | None:
+def _cell_at(data: bytes | bytearray, pos: int) -> tuple[int, int] | None:
     """The (row, col) of the cell element that encloses byte offset ``pos``."""
     start = data.rfind(b"<c ", 0, pos)
     if start < 0:
@@ -102,7 +102,7 @@ def _cell_at(data: bytes, pos: int) -> tuple[int, int] | None:
     return None if m is None else (int(m.group(2)), col_index(m.group(1)))
 
 
-def scan(data: bytes) -> Scan:
+def scan(data: bytes | bytearray) -> Scan:
     """Error cells, formula cells without a result, and the extent of the content."""
     errors: dict[tuple[int, int], str] = {}
     if b't="e"' in data:

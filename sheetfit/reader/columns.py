@@ -75,17 +75,21 @@ class ColumnValues:
         return out
 
 
-def column_values(sheet: str, col: int, row1: int, raws: list[Any],
+def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray,
                   errors: dict[tuple[int, int], str], unsaved: set[tuple[int, int]],
                   date1904: bool) -> ColumnValues:
     """Classify one column's raw values (row ``row1`` onwards) in bulk.
 
     ``errors`` and ``unsaved`` are the sheet's error cells and formula cells without a
-    saved result, which override the raw value as ``SheetValues.get`` does.
+    saved result, which override the raw value as ``SheetValues.get`` does. A float64
+    array of ``raws`` is a run of plain numbers (the fast reader's column store).
     """
     n = len(raws)
     kind = np.zeros(n, dtype=np.uint8)
     text: dict[int, str] = {}
+    if isinstance(raws, np.ndarray):
+        return _overrides(sheet, col, row1, np.full(n, _NUMBER, dtype=np.uint8),
+                          np.array(raws, dtype=np.float64), text, errors, unsaved)
     codes = np.fromiter(map(_TYPE_CODE.get, map(type, raws), repeat(_ANY)), dtype=np.uint8,
                         count=n)
     if n and not codes.any():  # the common case: a column of plain numbers
@@ -107,7 +111,14 @@ def column_values(sheet: str, col: int, row1: int, raws: list[Any],
                 number[i] = v.number
             elif v.kind != BLANK:
                 text[i] = v.text
-    row2 = row1 + n - 1
+    return _overrides(sheet, col, row1, kind, number, text, errors, unsaved)
+
+
+def _overrides(sheet: str, col: int, row1: int, kind: np.ndarray, number: np.ndarray,
+               text: dict[int, str], errors: dict[tuple[int, int], str],
+               unsaved: set[tuple[int, int]]) -> ColumnValues:
+    """Error cells and formula cells without a saved result over the raw values."""
+    row2 = row1 + len(kind) - 1
     for r, c in unsaved:
         if c == col and row1 <= r <= row2:
             i = r - row1

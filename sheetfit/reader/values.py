@@ -23,16 +23,18 @@ from __future__ import annotations
 
 import zipfile
 from dataclasses import dataclass, field
-from operator import itemgetter
+from io import BufferedIOBase
 from pathlib import Path
 from types import TracebackType
-from typing import Any, Protocol, Self
+from typing import Any, Protocol, Self, cast
 
+import numpy as np
 import python_calamine
 from defusedxml import DefusedXmlException
 from defusedxml.ElementTree import ParseError
 
 from ..errors import Context, PackageError
+from ._dense import Dense, dense_from_rows
 from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
 from .columns import ColumnValues, column_values
@@ -63,40 +65,9 @@ TAIL_LIMIT = 16 << 20
 class _Cells(Protocol):
     def raw(self, row: int, col: int) -> Any: ...
 
-    def column(self, col: int, row1: int, row2: int) -> list[Any]: ...
+    def column(self, col: int, row1: int, row2: int) -> list[Any] | np.ndarray: ...
 
     def last_row(self, col1: int, col2: int) -> int: ...
-
-
-@dataclass
-class _Dense:
-    """The fast reader's rectangle from A1: rows of raw values ("" = empty)."""
-
-    rows: list[list[Any]]
-
-    def raw(self, row: int, col: int) -> Any:
-        try:
-            return self.rows[row - 1][col - 1] if row > 0 and col > 0 else ""
-        except IndexError:
-            return ""
-
-    def column(self, col: int, row1: int, row2: int) -> list[Any]:
-        """Raw values of rows row1..row2 of one column ("" beyond the rectangle)."""
-        n = row2 - row1 + 1
-        if col < 1 or row1 < 1:
-            return [self.raw(r, col) for r in range(row1, row2 + 1)]
-        seg = self.rows[row1 - 1:row2]
-        try:
-            out = list(map(itemgetter(col - 1), seg))
-        except IndexError:  # a short row: the slow way
-            out = [row[col - 1] if len(row) >= col else "" for row in seg]
-        return out + [""] * (n - len(out))
-
-    def last_row(self, col1: int, col2: int) -> int:
-        for i in range(len(self.rows) - 1, -1, -1):
-            if any(v != "" for v in self.rows[i][col1 - 1 : col2]):
-                return i + 1
-        return 0
 
 
 @dataclass
@@ -178,6 +149,53 @@ def _fast_reader_failed(exc: BaseException) -> bool:
     A Rust panic in the fast reader arrives as pyo3's PanicException, a BaseException.
     """
     return isinstance(exc, Exception) or type(exc).__name__ == "PanicException"
+
+
+#: Bytes of a part read at a time into its buffer.
+_READ_CHUNK = 1 << 20
+
+
+def _part_bytes(zf: zipfile.ZipFile, member: str) -> bytearray:
+    """One part's bytes in a single buffer of its stated size, filled a chunk at a time.
+
+    ``ZipFile.read`` joins the chunks as it goes and so holds a large part about twice
+    at its peak (a 285 MB sheet part: about 570 MB); a size that turns out wrong only
+    costs a resize.
+    """
+    size = zf.getinfo(member).file_size
+    buf = bytearray(size)
+    pos = 0
+    with zf.open(member) as part, memoryview(buf) as view:
+        fh = cast(BufferedIOBase, part)  # a ZipExtFile
+        while pos < size:
+            got = fh.readinto(view[pos:pos + _READ_CHUNK])
+            if not got:
+                break
+            pos += got
+        rest = fh.read() if pos == size else b""
+    if pos < size:
+        del buf[pos:]
+    buf += rest
+    return buf
+
+
+def _dense_sheet(sheet: Any) -> Dense:
+    """A calamine sheet as a column store, converted a block of rows at a time.
+
+    Its row iterator (python-calamine 0.9) starts at row 1 but at the first column
+    holding a value; a version whose rows start elsewhere is converted from the whole
+    list of rows instead (which holds the sheet once more while converting).
+    """
+    end = sheet.end
+    if end is None:
+        return Dense(0, [], [])
+    height, width = end[0] + 1, end[1] + 1
+    if hasattr(sheet, "iter_rows"):
+        try:
+            return dense_from_rows(sheet.iter_rows(), height, width)
+        except ValueError:
+            pass
+    return dense_from_rows(sheet.to_python(skip_empty_area=False), height, width)
 
 
 @dataclass
@@ -306,20 +324,20 @@ class BookValues:
     def _read(self, name: str) -> SheetValues:
         member = self._member(self.sheet_parts[name])
         zf = self._archive()
-        data = zf.read(member)
+        data = _part_bytes(zf, member)
         found = scan(data) if utf8(data) else None
         del data  # the sheet's XML is not held while the fast reader parses the same part
         stop: int | None = None
         if found is not None and found.located:
             if found.last_row == 0:  # nothing in the sheet holds a value or a formula
                 self.readers[name] = "fast"
-                return SheetValues(name, _Dense([]), found.errors, found.unsaved, self.date1904)
+                return SheetValues(name, Dense(0, [], []), found.errors, found.unsaved, self.date1904)
             dense = found.rectangle() <= 4 * found.n_values + DENSE_SLACK
             if dense and found.tail <= TAIL_LIMIT:
-                rows = self._fast(name)
-                if rows is not None:
+                store = self._fast(name)
+                if store is not None:
                     self.readers[name] = "fast"
-                    return SheetValues(name, _Dense(rows), found.errors, found.unsaved,
+                    return SheetValues(name, store, found.errors, found.unsaved,
                                        self.date1904)
             if found.tail > TAIL_LIMIT:
                 stop = found.last_row
@@ -328,16 +346,14 @@ class BookValues:
         self.readers[name] = "stream"
         return SheetValues(name, _Sparse(cells.rows), cells.errors, cells.unsaved, self.date1904)
 
-    def _fast(self, name: str) -> list[list[Any]] | None:
-        """The fast reader's rows of one sheet, or None when it cannot read them."""
+    def _fast(self, name: str) -> Dense | None:
+        """The fast reader's rectangle of one sheet, or None when it cannot read it."""
         if self._book_failed:
             return None
         try:
             if self._book is None:
                 self._book = python_calamine.load_workbook(str(self.path))
-            rows: list[list[Any]] = self._book.get_sheet_by_name(name).to_python(
-                skip_empty_area=False)
-            return rows
+            return _dense_sheet(self._book.get_sheet_by_name(name))
         except BaseException as exc:
             if not _fast_reader_failed(exc):
                 raise
