@@ -15,8 +15,9 @@ import pytest
 import python_calamine
 import xlsxwriter
 
-from sheetfit.reader import _dense, values
+from sheetfit.reader import _dense, _sheetxml
 from sheetfit.reader._dense import Dense, dense_from_rows
+from sheetfit.reader._sheetxml import part_bytes
 from sheetfit.reader.columns import column_values
 from sheetfit.reader.values import _dense_sheet
 
@@ -152,7 +153,7 @@ def test_a_real_sheet_matches_calamine_rows(tmp_path: Path,
 def test_a_sheet_part_is_read_whole_into_one_buffer(tmp_path: Path,
                                                     monkeypatch: pytest.MonkeyPatch) -> None:
     """The part buffer filled a chunk at a time holds exactly the part's bytes."""
-    monkeypatch.setattr(values, "_READ_CHUNK", 1000)  # many chunks, the last one short
+    monkeypatch.setattr(_sheetxml, "_READ_CHUNK", 1000)  # many chunks, the last one short
     path = tmp_path / "b.xlsx"
     wb = xlsxwriter.Workbook(str(path))
     ws = wb.add_worksheet("S")
@@ -161,4 +162,4 @@ def test_a_sheet_part_is_read_whole_into_one_buffer(tmp_path: Path,
     wb.close()
     with zipfile.ZipFile(path) as zf:
         for member in zf.namelist():
-            assert bytes(values._part_bytes(zf, member)) == zf.read(member), member
+            assert bytes(part_bytes(zf, member)) == zf.read(member), member

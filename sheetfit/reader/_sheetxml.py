@@ -18,9 +18,11 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+import zipfile
 from collections.abc import Iterator
 from dataclasses import dataclass, field
-from typing import IO, Any
+from io import BufferedIOBase
+from typing import IO, Any, cast
 
 from defusedxml.ElementTree import iterparse
 
@@ -265,3 +267,31 @@ def stream_sheet(fh: IO[bytes], strings: list[str], stop_row: int | None = None)
         if raw != "":
             out.rows.setdefault(row, {})[col] = raw
     return out
+
+
+#: Bytes of a part read at a time into its buffer.
+_READ_CHUNK = 1 << 20
+
+
+def part_bytes(zf: zipfile.ZipFile, member: str) -> bytearray:
+    """One part's bytes in a single buffer of its stated size, filled a chunk at a time.
+
+    ``ZipFile.read`` joins the chunks as it goes and so holds a large part about twice
+    at its peak (a 285 MB sheet part: about 570 MB); a size that turns out wrong only
+    costs a resize.
+    """
+    size = zf.getinfo(member).file_size
+    buf = bytearray(size)
+    pos = 0
+    with zf.open(member) as part, memoryview(buf) as view:
+        fh = cast(BufferedIOBase, part)  # a ZipExtFile
+        while pos < size:
+            got = fh.readinto(view[pos:pos + _READ_CHUNK])
+            if not got:
+                break
+            pos += got
+        rest = fh.read() if pos == size else b""
+    if pos < size:
+        del buf[pos:]
+    buf += rest
+    return buf

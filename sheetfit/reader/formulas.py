@@ -17,7 +17,7 @@ from typing import NamedTuple
 from xml.sax.saxutils import unescape
 
 from ..a1 import col_index
-from ._sheetxml import _cells, _local, utf8
+from ._sheetxml import _cells, _local, part_bytes, utf8
 
 __all__ = ["CellKind", "CellKinds", "read_cell_kinds"]
 
@@ -45,7 +45,7 @@ def read_cell_kinds(path: Path, part: str) -> CellKinds:
     """Every cell of the worksheet ``part`` that holds a value or a formula."""
     with zipfile.ZipFile(path) as zf:
         member = {n.lower(): n for n in zf.namelist()}[part.lower()]
-        data = zf.read(member)
+        data = part_bytes(zf, member)  # one buffer: zf.read holds a big part twice
         if utf8(data):
             found = _scan(data)
             if found is not None:
@@ -54,7 +54,7 @@ def read_cell_kinds(path: Path, part: str) -> CellKinds:
             return _parse(fh)
 
 
-def _scan(data: bytes) -> CellKinds | None:
+def _scan(data: bytes | bytearray) -> CellKinds | None:
     """The cells of a UTF-8 part by byte scan; None when a cell has no reference."""
     out: CellKinds = {}
     cols: dict[bytes, int] = {}  # column letters seen, by their number

@@ -23,10 +23,9 @@ from __future__ import annotations
 
 import zipfile
 from dataclasses import dataclass, field
-from io import BufferedIOBase
 from pathlib import Path
 from types import TracebackType
-from typing import Any, Protocol, Self, cast
+from typing import Any, Protocol, Self
 
 import numpy as np
 import python_calamine
@@ -35,7 +34,7 @@ from defusedxml.ElementTree import ParseError
 
 from ..errors import Context, PackageError
 from ._dense import Dense, dense_from_rows
-from ._sheetxml import TEXT_CAP, read_shared_strings, scan, stream_sheet, utf8
+from ._sheetxml import TEXT_CAP, part_bytes, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
 from .columns import ColumnValues, column_values
 from .formats import StyleTable, row_style_indices
@@ -149,34 +148,6 @@ def _fast_reader_failed(exc: BaseException) -> bool:
     A Rust panic in the fast reader arrives as pyo3's PanicException, a BaseException.
     """
     return isinstance(exc, Exception) or type(exc).__name__ == "PanicException"
-
-
-#: Bytes of a part read at a time into its buffer.
-_READ_CHUNK = 1 << 20
-
-
-def _part_bytes(zf: zipfile.ZipFile, member: str) -> bytearray:
-    """One part's bytes in a single buffer of its stated size, filled a chunk at a time.
-
-    ``ZipFile.read`` joins the chunks as it goes and so holds a large part about twice
-    at its peak (a 285 MB sheet part: about 570 MB); a size that turns out wrong only
-    costs a resize.
-    """
-    size = zf.getinfo(member).file_size
-    buf = bytearray(size)
-    pos = 0
-    with zf.open(member) as part, memoryview(buf) as view:
-        fh = cast(BufferedIOBase, part)  # a ZipExtFile
-        while pos < size:
-            got = fh.readinto(view[pos:pos + _READ_CHUNK])
-            if not got:
-                break
-            pos += got
-        rest = fh.read() if pos == size else b""
-    if pos < size:
-        del buf[pos:]
-    buf += rest
-    return buf
 
 
 def _dense_sheet(sheet: Any) -> Dense:
@@ -324,7 +295,7 @@ class BookValues:
     def _read(self, name: str) -> SheetValues:
         member = self._member(self.sheet_parts[name])
         zf = self._archive()
-        data = _part_bytes(zf, member)
+        data = part_bytes(zf, member)
         found = scan(data) if utf8(data) else None
         del data  # the sheet's XML is not held while the fast reader parses the same part
         stop: int | None = None
