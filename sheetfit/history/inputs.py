@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from ..declare.fingerprint import DIGEST_HEX, InputRecord, RangeRecord
 from ..owned import INPUTS_SHEET
 from ..reader.values import BookValues
+from ..sheets.columns import Pieces
 from ..sheets.plan import SheetPlan
 from ._grid import read_rows
 
@@ -47,9 +48,8 @@ def plan_inputs(records: Sequence[InputRecord]) -> SheetPlan:
             s.put(r, 4, rr.n_cells, style="int")
             s.put(r, 5, rr.digest)
             s.put(r, 6, fp)
-            step = CHUNK * DIGEST_HEX
-            for k in range(0, len(rr.cells), step):
-                s.put(r, 7 + k // step, rr.cells[k:k + step])
+            if rr.cells:  # cut into cells only as the sheet is written
+                s.span(r, 7, Pieces(rr.cells, CHUNK * DIGEST_HEX))
             r += 1
         s.put(r, 0, rec.tag, style="label")
         s.put(r, 1, _SETTINGS)

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["Part", "Run", "Template", "template", "this_row"]
+__all__ = ["Part", "Pieces", "Run", "Span", "Template", "template", "this_row"]
 
 Scalar = float | int | str | bool | None
 Vector = Sequence[Any] | np.ndarray
@@ -109,3 +109,50 @@ class Run:
         forms = self.formulas(0, self.n)
         for i, v in enumerate(self.scalars(0, self.n)):
             yield self.row0 + i, self.col, v, None if forms is None else forms[i]
+
+
+@dataclass(frozen=True)
+class Span:
+    """Cells col0 … col0+n-1 of one row, each holding a text, all in one style.
+
+    For a few very long rows (the cell digests of ``sf inputs``: 8 characters a data
+    cell, tens of megabytes on a million-row book). ``values`` is any sequence of texts
+    and is read one cell at a time as the sheet is written, so a :class:`Pieces` of a
+    long text never exists a second time as cells.
+    """
+
+    row: int
+    col0: int
+    values: Sequence[str]
+    style: str = "text"
+
+    @property
+    def n(self) -> int:
+        return len(self.values)
+
+    def cells(self) -> Iterator[tuple[int, int, Scalar, None]]:
+        """(row, col, value, None) of every cell, left to right."""
+        for k in range(self.n):
+            yield self.row, self.col0 + k, self.values[k], None
+
+
+class Pieces(Sequence[str]):
+    """A text cut into consecutive pieces of ``size`` characters (the last may be
+    shorter), each made only when asked for."""
+
+    def __init__(self, text: str, size: int) -> None:
+        if size < 1:
+            raise ValueError("pieces of at least one character")
+        self.text, self.size = text, size
+
+    def __len__(self) -> int:
+        return (len(self.text) + self.size - 1) // self.size
+
+    def __getitem__(self, k: Any) -> Any:
+        if isinstance(k, slice):
+            return [self[i] for i in range(*k.indices(len(self)))]
+        n = len(self)
+        if not -n <= k < n:
+            raise IndexError(k)
+        k %= n
+        return self.text[k * self.size:(k + 1) * self.size]

@@ -16,7 +16,7 @@ import numpy as np
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
 from .chartplan import ChartPlan
-from .columns import Run, Template
+from .columns import Run, Span, Template
 
 __all__ = [
     "FIT_WIDTH",
@@ -27,6 +27,7 @@ __all__ = [
     "Planned",
     "Run",
     "SheetPlan",
+    "Span",
     "coef_style",
     "decimal_style",
     "decimals_shown",
@@ -172,16 +173,20 @@ class SheetPlan:
     _by_cell: dict[tuple[int, int], Cell] | None = field(default=None, repr=False)
     charts: list[ChartPlan] = field(default_factory=list)  # native charts on this sheet
     runs: list[Run] = field(default_factory=list)
+    #: Rows of long texts written a cell at a time (see :class:`Span`).
+    spans: list[Span] = field(default_factory=list)
     #: Per column: the runs' first rows and the runs, sorted (see ``_column_runs``).
     _index: dict[int, tuple[list[int], list[Run]]] = field(default_factory=dict, repr=False)
     _indexed: int = field(default=0, repr=False)
 
     @property
     def cells(self) -> list[Cell]:
-        """Every cell: the loose ones, then each run's cells (built on each call)."""
+        """Every cell: the loose ones, then each run's and span's cells (built on each call)."""
         out = list(self.loose)
         for run in self.runs:
             out += [Cell(r, c, v, f, run.style) for r, c, v, f in run.cells()]
+        for sp in self.spans:
+            out += [Cell(r, c, v, None, sp.style) for r, c, v, _ in sp.cells()]
         return out
 
     def _column_runs(self, col: int) -> tuple[list[int], list[Run]]:
@@ -233,6 +238,18 @@ class SheetPlan:
         self._indexed += 1
         return run
 
+    def span(self, row: int, col0: int, values: Sequence[str], style: str = "text") -> Span:
+        """Add a row of texts: columns col0 … col0+len(values)-1 of ``row`` (0-based)."""
+        if style not in STYLES:
+            raise KeyError(style)
+        sp = Span(row, col0, values, style)
+        cols = range(col0, col0 + sp.n)
+        if any((row, c) in self._taken or self._run_at(row, c) is not None for c in cols):
+            raise ValueError(f"{self.title}: a cell of row {row + 1} planned twice")
+        self._taken.update((row, c) for c in cols)
+        self.spans.append(sp)
+        return sp
+
     def put(self, row: int, col: int, value: Scalar, formula: str | None = None,
             style: str = "text", link: str | None = None) -> Cell:
         """Add a cell (a formula must start with '=') and return it."""
@@ -272,13 +289,13 @@ class SheetPlan:
 
     def last_row(self) -> int:
         """The last row holding a cell (-1 for an empty sheet)."""
-        return max([c.row for c in self.loose] + [u.last for u in self.runs if u.n],
-                   default=-1)
+        return max([c.row for c in self.loose] + [u.last for u in self.runs if u.n]
+                   + [sp.row for sp in self.spans if sp.n], default=-1)
 
     def last_col(self) -> int:
         """The last column holding a cell (-1 for an empty sheet)."""
-        return max([c.col for c in self.loose] + [u.col for u in self.runs if u.n],
-                   default=-1)
+        return max([c.col for c in self.loose] + [u.col for u in self.runs if u.n]
+                   + [sp.col0 + sp.n - 1 for sp in self.spans if sp.n], default=-1)
 
     def is_free(self, row: int, col: int) -> bool:
         return (row, col) not in self._taken and self._run_at(row, col) is None
@@ -298,7 +315,11 @@ class SheetPlan:
         if self._by_cell is None or len(self._by_cell) != len(self.loose):
             self._by_cell = {(c.row, c.col): c for c in self.loose}
         cell = self._by_cell.get((row, col))
-        return None if cell is None else cell.value
+        if cell is None:
+            sp = next((sp for sp in self.spans
+                       if sp.row == row and sp.col0 <= col < sp.col0 + sp.n), None)
+            return None if sp is None else sp.values[col - sp.col0]
+        return cell.value
 
     def fit_columns(self) -> None:
         """Widen columns so header words never break mid-word and values fit.
@@ -349,8 +370,9 @@ class SheetPlan:
 
     def total_width(self) -> float:
         """Characters of width of the used columns (default width 8.43)."""
-        cols = {c.col for c in self.loose} | {u.col for u in self.runs}
-        return sum(self.widths.get(c, 8.43) for c in range(max(cols, default=-1) + 1))
+        last = max([c.col for c in self.loose] + [u.col for u in self.runs]
+                   + [sp.col0 + sp.n - 1 for sp in self.spans], default=-1)
+        return sum(self.widths.get(c, 8.43) for c in range(last + 1))
 
 
 #: A sheet wider than this many characters of columns prints landscape.

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from ..a1 import cell_ref, col_index, col_letter
-from ..sheets.columns import Run, Template
+from ..sheets.columns import Run, Span, Template
 from .dotted import with_prefixes
 
 __all__ = ["CHUNK_ROWS", "stream_sheet"]
@@ -227,10 +227,10 @@ def _loose_rows(data: str) -> dict[int, tuple[str, list[tuple[int, str]]]]:
     return rows
 
 
-def _dimension(head: str, runs: Sequence[Run]) -> str:
-    """The ``<dimension>`` element widened to take in the runs."""
+def _dimension(head: str, runs: Sequence[Run], wide: dict[int, list[Span]]) -> str:
+    """The ``<dimension>`` element widened to take in the runs and spans."""
     m = _DIM.search(head)
-    if m is None or not runs:
+    if m is None or not (runs or wide):
         return head
     r1, c1, r2, c2 = 1 << 30, 1 << 30, 0, 0
     for part in m.group(1).split(":"):
@@ -241,25 +241,64 @@ def _dimension(head: str, runs: Sequence[Run]) -> str:
     for u in runs:
         r1, r2 = min(r1, u.row0 + 1), max(r2, u.last + 1)
         c1, c2 = min(c1, u.col + 1), max(c2, u.col + 1)
+    for r, sps in wide.items():
+        for sp in sps:
+            r1, r2 = min(r1, r), max(r2, r)
+            c1, c2 = min(c1, sp.col0 + 1), max(c2, sp.col0 + sp.n)
     ref = cell_ref(r1, c1) if (r1, c1) == (r2, c2) else f"{cell_ref(r1, c1)}:{cell_ref(r2, c2)}"
     return head[:m.start()] + f'<dimension ref="{ref}"/>' + head[m.end():]
 
 
-def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None]) -> Iterator[bytes]:
-    """The converted worksheet part ``xml`` with ``runs`` merged into its sheetData, as
-    UTF-8 chunks. ``styles`` gives each run style's final ``s`` index (None: default)."""
+#: Cell XML of a span built and handed on this many characters at a time.
+_SPAN_BYTES = 1 << 20
+
+
+def _span_row(r: int, attrs: str, cells: list[tuple[int, str]], spans: Sequence[Span],
+              styles: dict[str, int | None]) -> Iterator[bytes]:
+    """Row ``r`` holding ``spans``, merged with its other ``cells`` (column, XML) in column
+    order, in pieces of about ``_SPAN_BYTES``: a span's cells are made one at a time."""
+    pending = sorted(cells, key=lambda t: t[0])
+    out: list[str] = [f"<row{attrs}>"]
+    size = 0
+    for sp in sorted(spans, key=lambda sp: sp.col0):
+        s = f' s="{styles[sp.style]}"' if styles[sp.style] else ""
+        while pending and pending[0][0] < sp.col0 + 1:
+            out.append(pending.pop(0)[1])
+        for k in range(sp.n):
+            ref = f"{col_letter(sp.col0 + k + 1)}{r}"
+            cell = _value_cells([ref], [sp.values[k]], s)[0]
+            out.append(cell)
+            size += len(cell)
+            if size >= _SPAN_BYTES:
+                yield "".join(out).encode("utf-8")
+                out, size = [], 0
+    out += [x for _, x in pending]
+    out.append("</row>")
+    yield "".join(out).encode("utf-8")
+
+
+def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None],
+                 spans: Sequence[Span] = ()) -> Iterator[bytes]:
+    """The converted worksheet part ``xml`` with ``runs`` and ``spans`` merged into its
+    sheetData, as UTF-8 chunks. ``styles`` gives each run and span style's final ``s``
+    index (None: default)."""
     text = xml.decode("utf-8")
     runs = [u for u in runs if u.n]
     m = re.search(r"<sheetData\s*/>|<sheetData>(.*?)</sheetData>", text, re.DOTALL)
     if m is None:
         raise ValueError("rendered worksheet without sheetData")
     loose = _loose_rows(m.group(1) or "")
-    yield (_dimension(text[:m.start()], runs) + "<sheetData>").encode("utf-8")
+    wide: dict[int, list[Span]] = {}  # 1-based row -> its spans
+    for sp in spans:
+        if sp.n:
+            wide.setdefault(sp.row + 1, []).append(sp)
+    yield (_dimension(text[:m.start()], runs, wide) + "<sheetData>").encode("utf-8")
+    lines = [*loose, *wide]
     if runs:
-        top = min(min(u.row0 + 1 for u in runs), min(loose, default=1 << 30))
-        bottom = max(max(u.last + 1 for u in runs), max(loose, default=0))
+        top = min(min(u.row0 + 1 for u in runs), min(lines, default=1 << 30))
+        bottom = max(max(u.last + 1 for u in runs), max(lines, default=0))
     else:
-        top, bottom = min(loose, default=1), max(loose, default=0)
+        top, bottom = min(lines, default=1), max(lines, default=0)
     ordered = sorted(runs, key=lambda u: u.col)
     shared = {id(u): k for k, u in enumerate(u for u in ordered if shareable(u))}
     for start in range(top, bottom + 1, CHUNK_ROWS):
@@ -267,7 +306,7 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
         size = stop - start
         inside = [u for u in ordered if u.row0 + 1 <= stop - 1 and u.last + 1 >= start]
         if inside and all(u.row0 + 1 <= start and u.last + 1 >= stop - 1 for u in inside) \
-                and not any(start <= r < stop for r in loose):
+                and not any(start <= r < stop for r in lines):
             yield _uniform(inside, start, stop, styles, shared).encode("utf-8")
             continue
         cols: list[list[str]] = []  # per run: cell XML of every row of the chunk ("" none)
@@ -279,8 +318,16 @@ def stream_sheet(xml: bytes, runs: Sequence[Run], styles: dict[str, int | None])
                 cols.append([""] * lead + _run_chunk(u, a, b, styles[u.style], shared.get(id(u)))
                             + [""] * (size - lead - (b - a)))
                 by_col.append(u.col + 1)
-        out = []
+        out: list[str] = []
         for r, *cells in zip(range(start, stop), *cols, strict=True):
+            if r in wide:
+                if out:
+                    yield "".join(out).encode("utf-8")
+                    out = []
+                attrs, extra = loose.get(r, (f' r="{r}"', []))
+                yield from _span_row(r, attrs, [(c, x) for c, x in zip(by_col, cells, strict=True)
+                                                if x] + extra, wide[r], styles)
+                continue
             if r in loose:
                 attrs, extra = loose[r]
                 merged = sorted([(c, x) for c, x in zip(by_col, cells, strict=True) if x]

@@ -25,7 +25,7 @@ from typing import IO
 from sheetfit.errors import Context, DeclarationError, PackageError
 from sheetfit.owned import is_ours
 from sheetfit.reader.package import Package, SheetEntry, open_package, parse_rels, rels_part_of
-from sheetfit.sheets.columns import Run
+from sheetfit.sheets.columns import Run, Span
 from sheetfit.writer._bulk import stream_sheet
 from sheetfit.writer._graft_app import update_app
 from sheetfit.writer._graft_parts import Attached, attached_of, place, taken_names
@@ -68,14 +68,15 @@ class OutputName:
 
 @dataclass(frozen=True)
 class _Streamed:
-    """A sheet part written at the last moment: the converted part with its runs."""
+    """A sheet part written at the last moment: the converted part with its runs and spans."""
 
     xml: bytes
     runs: list[Run]
     styles: dict[str, int | None]
+    spans: list[Span]
 
     def chunks(self) -> Iterator[bytes]:
-        return stream_sheet(self.xml, self.runs, self.styles)
+        return stream_sheet(self.xml, self.runs, self.styles, self.spans)
 
 
 Entry = bytes | _Streamed
@@ -303,7 +304,9 @@ def graft(
         for p, r in zip(parts, rb.sheets, strict=True):
             xml = convert_sheet(r.xml, rb.strings, smap)
             runs = rendition.runs.get(r.title)
-            new_entries.append((p, xml if not runs else _Streamed(xml, runs, final)))
+            spans = rendition.spans.get(r.title, [])
+            new_entries.append((p, xml if not (runs or spans)
+                                else _Streamed(xml, runs or [], final, spans)))
         new_entries += attached_entries
         if added_styles is not None and sty_data is not None:
             new_entries.append((added_styles, sty_data))

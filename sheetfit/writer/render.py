@@ -9,13 +9,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
 from ..sheets.chartplan import ChartPlan
-from ..sheets.columns import Run
+from ..sheets.columns import Run, Span
 from ..sheets.plan import FIT_WIDTH, PORTRAIT_WIDTH, STYLES, BookPlan, SheetPlan, style_format
 from .dotted import with_prefixes
 
@@ -25,12 +25,22 @@ __all__ = ["Rendition", "render"]
 @dataclass(frozen=True)
 class Rendition:
     """The rendered package and what the graft streams into it: each sheet's column runs
-    (by title) and each run style's cell-format index in the rendered styles part
-    (None: the default format)."""
+    and rows of long texts (by title) and each of their styles' cell-format index in the
+    rendered styles part (None: the default format)."""
 
     path: Path
     runs: dict[str, list[Run]] = field(default_factory=dict)
     styles: dict[str, int | None] = field(default_factory=dict)
+    spans: dict[str, list[Span]] = field(default_factory=dict)
+
+
+class _RowsAsWritten(dict[int, dict[int, Any]]):
+    """A cell table that reads a row never written as empty instead of adding it."""
+
+    _NONE: ClassVar[dict[int, Any]] = {}
+
+    def __missing__(self, row: int) -> dict[int, Any]:
+        return self._NONE
 
 
 class _ExactWorksheet(Worksheet):  # type: ignore[misc]
@@ -61,6 +71,18 @@ class _ExactWorksheet(Worksheet):  # type: ignore[misc]
         # engines plot it, not the 0 xlsxwriter would cache for text.
         data = super()._get_range_data(row_start, col_start, row_end, col_end)
         return [None if d == "#N/A" else d for d in data]
+
+    def _write_rows(self) -> None:
+        # xlsxwriter's cell table is a defaultdict, and its row loop reads table[row] for
+        # every row from the first to the last: on a sheet whose runs are streamed later
+        # (a loose note below a million-row run) that made an empty dict per row, about
+        # 100 bytes each. Missing rows now read as empty without being stored.
+        table: Any = self.__dict__["table"]
+        self.table = _RowsAsWritten(table)
+        try:
+            super()._write_rows()
+        finally:
+            self.table = table
 
     def _xml_number_element(self, number: float, attributes: Any = ()) -> None:
         attr = "".join(f' {k}="{self._escape_attributes(v)}"' for k, v in attributes)
@@ -117,6 +139,7 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False,
         return formats[style]
 
     runs: dict[str, list[Run]] = {}
+    spans: dict[str, list[Span]] = {}
     for sheet in plan.sheets:
         ws = wb.add_worksheet(sheet.title, worksheet_class=_ExactWorksheet)
         _print_setup(ws, sheet)
@@ -126,11 +149,12 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False,
             ws.set_row(row, height)
         if sheet.freeze:
             ws.freeze_panes(*sheet.freeze)
-        streamed = bulk and not sheet.charts and bool(sheet.runs)
+        streamed = bulk and not sheet.charts and bool(sheet.runs or sheet.spans)
         if streamed:
             runs[sheet.title] = sheet.runs
-            for u in sheet.runs:
-                fmt = fmt_of(u.style)
+            spans[sheet.title] = sheet.spans
+            for style in [u.style for u in sheet.runs] + [sp.style for sp in sheet.spans]:
+                fmt = fmt_of(style)
                 if fmt is not None:
                     fmt._get_xf_index()  # into the styles part although no cell here uses it
         for c in (sheet.loose if streamed else sheet.cells):
@@ -155,12 +179,13 @@ def render(plan: BookPlan, path: str | Path, date1904: bool = False,
         if sheet.charts:
             _charts(wb, ws, sheet)
     wb.close()
-    used = {u.style for rs in runs.values() for u in rs}
+    used = {u.style for rs in runs.values() for u in rs} | {
+        sp.style for ss in spans.values() for sp in ss}
     # _get_xf_index, not xf_index: a style whose properties equal another's (int and dec0)
     # shares that one's index, and xlsxwriter leaves its own xf_index unset
     return Rendition(Path(path), runs,
                      {k: None if formats[k] is None else formats[k]._get_xf_index()
-                      for k in used})
+                      for k in used}, spans)
 
 
 #: Series colours: a blue and an orange that read apart in colour and in grey, then more.
