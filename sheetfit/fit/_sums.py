@@ -9,6 +9,7 @@ practice on these sizes) and Python agree on every cached value.
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Sequence
 
@@ -16,9 +17,30 @@ import numpy as np
 
 from sheetfit.fit._dd import two_sum
 
-__all__ = ["fsum_rows", "prefix_fsums"]
+__all__ = ["exact_dot", "exact_sum", "fsum_rows", "prefix_fsums"]
 
 _EPS = float(np.finfo(np.float64).eps)
+#: Elements turned into Python floats at a time by :func:`exact_sum` and :func:`exact_dot`.
+_BLOCK = 1 << 16
+
+
+def exact_sum(x: np.ndarray | Sequence[float]) -> float:
+    """``math.fsum`` of an array's elements (the exactly rounded sum), fed a block at a
+    time: the same result without a list of the whole array (32 bytes an element)."""
+    v = np.asarray(x, dtype=float).ravel()
+    return math.fsum(itertools.chain.from_iterable(
+        v[a:a + _BLOCK].tolist() for a in range(0, v.size, _BLOCK)))
+
+
+def exact_dot(a: np.ndarray | Sequence[float], b: np.ndarray | Sequence[float]) -> float:
+    """The exactly rounded sum of the rounded products ``a[i] * b[i]`` (``math.fsum`` of
+    ``(a * b).tolist()``), a block at a time."""
+    u = np.asarray(a, dtype=float).ravel()
+    w = np.asarray(b, dtype=float).ravel()
+    if u.size != w.size:
+        raise ValueError("exact_dot of arrays of different lengths")
+    return math.fsum(itertools.chain.from_iterable(
+        (u[k:k + _BLOCK] * w[k:k + _BLOCK]).tolist() for k in range(0, u.size, _BLOCK)))
 
 
 def _finish(

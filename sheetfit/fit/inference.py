@@ -14,6 +14,7 @@ Numeric code only: arrays in, arrays out, no workbook knowledge.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -119,19 +120,35 @@ def coef_table(res: LeastSquaresResult, level: float = 0.95) -> CoefTable:
                      readonly(coef - q * se), readonly(coef + q * se), readonly(_hc3(res)))
 
 
+#: Rows of the model's basis factored at a time (``_blocks``): the QR of a million-row
+#: design in one piece held ~230 MiB of copies.
+_QR_ROWS = 1 << 16
+
+
+def _blocks(n: int) -> list[tuple[int, int]]:
+    """Row ranges of about ``_QR_ROWS`` rows (nearly equal, so none is shorter than the
+    basis is wide); one range when n fits in one."""
+    k = max(1, -(-n // _QR_ROWS))
+    cuts = [n * i // k for i in range(k + 1)]
+    return list(itertools.pairwise(cuts))
+
+
 def _hc3(res: LeastSquaresResult) -> np.ndarray:
     """HC3: (XᵀX)⁻¹ Xᵀ diag(eᵢ² / (1 − hᵢ)²) X (XᵀX)⁻¹ (MacKinnon and White 1985)."""
     h = _leverage(res)
     e = np.asarray(res.resid_)
-    m = np.asarray(res.design_) @ np.asarray(res.xtx_inv_)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        w = np.where(h < LEVERAGE_ONE, (e / (1 - h)) ** 2, math.nan)
-    cov_diag = np.einsum("ij,i,ij->j", m, w, m)
+    design, inv = np.asarray(res.design_), np.asarray(res.xtx_inv_)
+    cov_diag = np.zeros(res.p_)
+    for a, b in _blocks(res.n_):
+        m = design[a:b] @ inv
+        with np.errstate(divide="ignore", invalid="ignore"):
+            w = np.where(h[a:b] < LEVERAGE_ONE, (e[a:b] / (1 - h[a:b])) ** 2, math.nan)
+        cov_diag += np.einsum("ij,i,ij->j", m, w, m)
     return np.sqrt(cov_diag)
 
 
-def _basis(res: LeastSquaresResult, X: np.ndarray | None = None) -> np.ndarray:
-    """Rows of a well-conditioned basis of the model's column space (fitted rows, or ``X``).
+class _Basis:
+    """Rows of a well-conditioned basis of the model's column space (fitted rows, or new).
 
     With an intercept the space of 1, x, …, xᵈ (or 1, x₁, …, xₘ) is also spanned by the
     attributes centred and scaled by the fitted rows' mean and SD (for a polynomial: the
@@ -139,36 +156,78 @@ def _basis(res: LeastSquaresResult, X: np.ndarray | None = None) -> np.ndarray:
     of an x far from 0. Without an intercept centring would change the space, so the
     columns are only scaled to unit length.
     """
-    d = np.asarray(res.design_)
-    first = int(res.intercept_)
-    if not res.intercept_:
-        norms = np.linalg.norm(d, axis=0)
-        norms = np.where(norms > 0, norms, 1.0)
-        rows = d if X is None else _design(X, False, res.degree_)
-        return rows / norms
-    attrs = d[:, first:first + (1 if res.degree_ > 1 else len(res.names_))]
-    mean, sd = attrs.mean(axis=0), attrs.std(axis=0)
-    sd = np.where(sd > 0, sd, 1.0)
-    z = ((attrs if X is None else np.asarray(X, dtype=float)) - mean) / sd
-    cols = [z[:, 0] ** k for k in range(1, res.degree_ + 1)] if res.degree_ > 1 else list(z.T)
-    return np.column_stack([np.ones(z.shape[0]), *cols])
+
+    def __init__(self, res: LeastSquaresResult) -> None:
+        self.res = res
+        d = np.asarray(res.design_)
+        self.first = int(res.intercept_)
+        self.m = 1 if res.degree_ > 1 else len(res.names_)
+        if not res.intercept_:
+            norms = np.array([np.linalg.norm(d[:, j]) for j in range(d.shape[1])])
+            self.norms = np.where(norms > 0, norms, 1.0)
+            return
+        cols = [d[:, self.first + j] for j in range(self.m)]
+        self.mean = np.array([c.mean() for c in cols])
+        sd = np.array([c.std() for c in cols])
+        self.sd = np.where(sd > 0, sd, 1.0)
+
+    def rows(self, a: int, b: int) -> np.ndarray:
+        """Basis rows of fitted rows a … b − 1."""
+        return self._of(np.asarray(self.res.design_)[a:b])
+
+    def new(self, X: np.ndarray) -> np.ndarray:
+        """Basis rows of new attribute rows ``X``."""
+        res = self.res
+        return self._of(_design(X, res.intercept_, res.degree_))
+
+    def _of(self, d: np.ndarray) -> np.ndarray:
+        if not self.res.intercept_:
+            return d / self.norms
+        z = (d[:, self.first:self.first + self.m] - self.mean) / self.sd
+        cols = ([z[:, 0] ** k for k in range(1, self.res.degree_ + 1)] if self.res.degree_ > 1
+                else list(z.T))
+        return np.column_stack([np.ones(z.shape[0]), *cols])
+
+
+def _factor(res: LeastSquaresResult) -> tuple[_Basis, list[tuple[int, int]], list[np.ndarray],
+                                                np.ndarray | None, np.ndarray]:
+    """The Householder QR of the basis, a block of rows at a time (TSQR: each block's R,
+    then the QR of those R stacked): the basis, the blocks, their R, the Q of the stacked
+    R (None for one block) and the final R."""
+    basis = _Basis(res)
+    blocks = _blocks(res.n_)
+    rs = [np.asarray(np.linalg.qr(basis.rows(a, b), mode="r")) for a, b in blocks]
+    if len(rs) == 1:
+        return basis, blocks, rs, None, rs[0]
+    top, r = np.linalg.qr(np.vstack(rs))
+    return basis, blocks, rs, top, r
 
 
 def _leverage(res: LeastSquaresResult) -> np.ndarray:
-    """Diagonal of the hat matrix, Σⱼ Qᵢⱼ² from the Householder QR of a well-conditioned
-    basis of the same column space (``_basis``)."""
-    q, _ = np.linalg.qr(_basis(res))
-    return np.einsum("ij,ij->i", q, q)
+    """Diagonal of the hat matrix, Σⱼ Qᵢⱼ² with Q from the Householder QR of a
+    well-conditioned basis of the same column space (``_Basis``). Above ``_QR_ROWS`` rows
+    Q is put together block by block (each block's own Q times its rows of the stacked
+    R's Q): the same backward-stable factorisation without Q held whole."""
+    basis, blocks, rs, top, _ = _factor(res)
+    h = np.empty(res.n_)
+    off = 0
+    for (a, b), r in zip(blocks, rs, strict=True):
+        q, _ = np.linalg.qr(basis.rows(a, b))  # the block's factorisation again
+        if top is not None:
+            q = q @ top[off:off + r.shape[0]]
+            off += r.shape[0]
+        h[a:b] = np.einsum("ij,ij->i", q, q)
+    return h
 
 
 def _new_leverage(res: LeastSquaresResult, X_new: np.ndarray) -> np.ndarray:
-    """x₀ᵀ(XᵀX)⁻¹x₀ for new rows, as ‖R⁻ᵀb₀‖² with B = QR the basis of ``_basis``.
+    """x₀ᵀ(XᵀX)⁻¹x₀ for new rows, as ‖R⁻ᵀb₀‖² with B = QR the basis of ``_Basis``.
 
     Evaluating the quadratic form with (XᵀX)⁻¹ directly cancels catastrophically on
     collinear designs (a cubic in x ≈ 1000: 83 % off; StRD Filip: 17-fold).
     """
-    _, r = np.linalg.qr(_basis(res))
-    u = _lower_solve(r.T, _basis(res, X_new).T)
+    basis, *_, r = _factor(res)
+    u = _lower_solve(r.T, basis.new(X_new).T)
     return np.einsum("ij,ij->j", u, u)
 
 
@@ -199,6 +258,10 @@ def overall(res: LeastSquaresResult) -> Overall:
     return Overall(adj, f, float(f_sf(f, df_model, df)), df_model, df)
 
 
+#: Rows of the auxiliary design factored at a time by :func:`breusch_pagan`.
+_BP_ROWS = 1 << 16
+
+
 def breusch_pagan(res: LeastSquaresResult) -> tuple[float, float]:
     """Koenker's studentized Breusch–Pagan test: LM = n·R² of e² on the terms, χ²(p − 1).
 
@@ -207,26 +270,51 @@ def breusch_pagan(res: LeastSquaresResult) -> tuple[float, float]:
 
     Only the column space of the auxiliary design matters, so it is built from the
     attributes centred and scaled to unit SD (for a polynomial: the powers of the
-    standardized x), with a constant column, and projected out by Householder QR. The
-    raw powers of an x far from 0 are so collinear (condition number 5e16 for a cubic
-    in x ≈ 1000) that a least-squares solve on them loses the 4th digit of LM.
+    standardized x), with a constant column, each column scaled to unit length. The raw
+    powers of an x far from 0 are so collinear (condition number 5e16 for a cubic in
+    x ≈ 1000) that a least-squares solve on them loses the 4th digit of LM. The
+    residual of e² − mean(e²) off that space is the last diagonal entry of R in the
+    Householder QR of the design with that column appended; R is found block by block
+    (the R of earlier rows stacked on the next ``_BP_ROWS`` rows, factored again), so
+    no copy of the whole design is made: on a million rows the one-piece QR held
+    ~330 MiB of copies.
     """
     n = res.n_
     first = int(res.intercept_)
-    attrs = np.asarray(res.design_)[:, first:first + (1 if res.degree_ > 1 else len(res.names_))]
-    sd = attrs.std(axis=0)
-    z = (attrs - attrs.mean(axis=0)) / np.where(sd > 0, sd, 1.0)
-    cols = [z[:, 0] ** k for k in range(1, res.degree_ + 1)] if res.degree_ > 1 else list(z.T)
-    d = np.column_stack([np.ones(n), *cols])
-    k = d.shape[1] - 1
-    e2 = np.asarray(res.resid_) ** 2
-    dev = e2 - e2.mean()
-    tss = float(dev @ dev)
+    design = np.asarray(res.design_)
+    m = 1 if res.degree_ > 1 else len(res.names_)
+    k = m * res.degree_ if res.degree_ > 1 else m  # auxiliary terms besides the constant
+    e = np.asarray(res.resid_)
+    e2_mean = float(np.mean(e * e))
+    tss = 0.0
+    for a in range(0, n, _BP_ROWS):
+        dev = e[a:a + _BP_ROWS] ** 2 - e2_mean
+        tss += float(dev @ dev)
     if k == 0 or tss == 0:
         return math.nan, math.nan
-    q, _ = np.linalg.qr(d / np.linalg.norm(d, axis=0))
-    r = dev - q @ (q.T @ dev)
-    lm = n * (1 - float(r @ r) / tss)
+    centre = [float(np.mean(design[:, first + j])) for j in range(m)]
+    spread = [float(np.std(design[:, first + j])) for j in range(m)]
+
+    def block(a: int, b: int) -> np.ndarray:
+        z = [(design[a:b, first + j] - centre[j]) / (spread[j] if spread[j] > 0 else 1.0)
+             for j in range(m)]
+        cols = [z[0] ** p for p in range(1, res.degree_ + 1)] if res.degree_ > 1 else z
+        dev = e[a:b] ** 2 - e2_mean
+        return np.column_stack([np.ones(b - a), *cols, dev])
+
+    sq = np.zeros(k + 2)  # each column's sum of squares, for the unit-length scaling
+    for a in range(0, n, _BP_ROWS):
+        sq += np.sum(block(a, min(n, a + _BP_ROWS)) ** 2, axis=0)
+    scale = 1.0 / np.sqrt(np.where(sq > 0, sq, 1.0))
+    r: np.ndarray | None = None
+    for a in range(0, n, _BP_ROWS):
+        piece = block(a, min(n, a + _BP_ROWS)) * scale
+        r = np.asarray(np.linalg.qr(piece if r is None else np.vstack([r, piece]), mode="r"))
+    assert r is not None
+    left = float(r[k + 1, k + 1]) ** 2 if r.shape[0] > k + 1 else 0.0  # Σ residual², scaled
+    # the dev column was scaled to unit length (tss is 1); R² lies in [0, 1], rounding
+    # aside (a model with no sign of fanning out can give 1 − left = −1e-16)
+    lm = n * min(1.0, max(0.0, 1 - left))
     return lm, float(chi2_sf(lm, k))
 
 

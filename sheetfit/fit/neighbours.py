@@ -39,7 +39,7 @@ from sheetfit.fit import checks
 from sheetfit.fit._arrays import divide, readonly
 from sheetfit.fit._classes import class_index, label_repr, parse_labels, position_votes, vote
 from sheetfit.fit._search import TIE_DIGITS, search
-from sheetfit.fit._sums import fsum_rows, prefix_fsums
+from sheetfit.fit._sums import exact_dot, exact_sum, fsum_rows, prefix_fsums
 from sheetfit.fit.scaling import Scaling, attribute_stats, standard_units
 
 __all__ = [
@@ -204,7 +204,7 @@ class NeighbourMean:
         table = []
         for k in ks:
             res = y - sums[k] / k
-            table.append((k, math.sqrt(math.fsum((res * res).tolist()) / n)))
+            table.append((k, math.sqrt(exact_dot(res, res) / n)))
         k_ = int(self.k) if self.k is not None else _best_k(table)
         return NeighbourMeanResult(
             X=X, names=names_, scaling=scaling, Z=Z, tree=tree, k=k_,
@@ -237,7 +237,7 @@ class NeighbourMeanResult(_Base):
     @cached_property
     def rmse_(self) -> float:
         """Leave-one-out root mean squared residual, sqrt(fsum(resid²) / n)."""
-        return math.sqrt(math.fsum((self.resid_ * self.resid_).tolist()) / self.n_)
+        return math.sqrt(exact_dot(self.resid_, self.resid_) / self.n_)
 
     @cached_property
     def y_sd_(self) -> float:
@@ -308,7 +308,7 @@ class NeighbourVote:
             v[:, : k - 1] += C[:, : k - 1] == new
             v[:, k - 1] = np.sum(C[:, :k] == new, axis=1)
             pos = np.argmax(v[:, :k], axis=1)
-            table.append((k, math.fsum((C[rows, pos] != codes).tolist()) / n))
+            table.append((k, exact_sum(C[rows, pos] != codes) / n))
         k_ = int(self.k) if self.k is not None else _best_k(table)
         pred, votes = vote(C[:, :k_], len(classes))
         return NeighbourVoteResult(
@@ -367,7 +367,7 @@ class NeighbourVoteResult(_Base):
     @cached_property
     def error_rate_(self) -> float:
         """Share of rows whose leave-one-out class is wrong."""
-        return math.fsum((~self.correct_).tolist()) / self.n_
+        return exact_sum(~self.correct_) / self.n_
 
     @cached_property
     def confusion_(self) -> np.ndarray:

@@ -15,6 +15,7 @@ import numpy as np
 from sheetfit.errors import DataError
 from sheetfit.fit import checks
 from sheetfit.fit._arrays import readonly
+from sheetfit.fit._sums import exact_dot, exact_sum
 
 __all__ = ["Scaling", "attribute_stats", "standard_units"]
 
@@ -41,9 +42,9 @@ def attribute_stats(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     sd = np.empty(m)
     for j in range(m):
         col = X[:, j]
-        mean[j] = math.fsum(col.tolist()) / n
+        mean[j] = exact_sum(col) / n
         dev = col - mean[j]
-        sd[j] = math.sqrt(math.fsum((dev * dev).tolist()) / n)
+        sd[j] = math.sqrt(exact_dot(dev, dev) / n)
     return mean, sd
 
 

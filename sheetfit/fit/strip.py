@@ -22,6 +22,7 @@ import numpy as np
 from sheetfit.errors import DataError, SettingError
 from sheetfit.fit import checks
 from sheetfit.fit._arrays import divide, readonly
+from sheetfit.fit._sums import exact_dot
 
 __all__ = ["EDGE_ALLOWANCE", "EVEN_CENTRES", "MAX_DISTINCT", "StripMean", "StripMeanResult"]
 
@@ -188,7 +189,7 @@ class StripMeanResult:
     def rmse_(self) -> float:
         """Root mean squared residual over the rows with a fitted value (nan if none)."""
         r = self.resid_[np.isfinite(self.resid_)]
-        return math.sqrt(math.fsum((r * r).tolist()) / r.size) if r.size else math.nan
+        return math.sqrt(exact_dot(r, r) / r.size) if r.size else math.nan
 
     def centre_index(self, x_new: np.ndarray) -> np.ndarray:
         """Lookup centre of each x: on the even grid floor((x − lo) / step + 0.5) within

@@ -20,6 +20,7 @@ import numpy as np
 
 from ..a1 import absolute, col_letter
 from ..declare.model import Keys
+from ..fit._sums import exact_dot, exact_sum
 from ..fit.bootstrap import Bootstrap
 from ..fit.distributions import chi2_sf, f_sf, t_isf, t_sf
 from ..fit.inference import breusch_pagan, coef_table
@@ -144,7 +145,7 @@ class CoefInputs:
     version: str
     left_out: int
     range_lines: list[tuple[str, float, float, str]] = field(default_factory=list)
-    data_rows: list[int] = field(default_factory=list)
+    data_rows: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
     rule: RuleFit | None = None
     lay: CoefLayout | None = None
     answer: list[AnswerRow] = field(default_factory=list)
@@ -335,8 +336,9 @@ def plan_coef_sheet(cs: SheetPlan, d: CoefInputs) -> str:
             tv = d.tvals[j]
             if intercept:
                 tv_ = np.asarray(tv, dtype=float)
-                m = math.fsum(tv_.tolist()) / n
-                ss = math.fsum(((tv_ - m) * (tv_ - m)).tolist())  # same products, exact sum
+                m = exact_sum(tv_) / n
+                off = tv_ - m
+                ss = exact_dot(off, off)  # same products, exact sum
                 cs.put(r, C_VIF, inv_jj * ss, f"={inv_cell(k, k)}*DEVSQ({t_rng})", "dec1")
             else:
                 cs.put(r, C_VIF, inv_jj * fsum_sq(tv), f"={inv_cell(k, k)}*SUMSQ({t_rng})",
@@ -431,8 +433,8 @@ def _cosine(r: np.ndarray, t: np.ndarray, sums: tuple[float, float]) -> float:
     ssr, ssy = sums
     if ssr <= float(EXACT_FIT) * ssy:
         return 0.0
-    prods = np.asarray(r, dtype=float) * np.asarray(t, dtype=float)  # rounded as a * b is
-    return math.fsum(prods.tolist()) / math.sqrt(ssr * fsum_sq(t))
+    # the products rounded as a * b is, summed exactly
+    return exact_dot(r, t) / math.sqrt(ssr * fsum_sq(t))
 
 
 def _check_formula(r: str, t: str | None, y: str) -> str:
@@ -467,7 +469,7 @@ def _plan_high_low(cs: SheetPlan, row: int, d: CoefInputs, coef: list[float]) ->
     cs.put(row, 1, "value", style="head")
     cs.put(row, 2, "what it is", style="head")
     flags = d.rows.flags
-    hi_row, lo_row = d.data_rows[i_hi], d.data_rows[i_lo]
+    hi_row, lo_row = int(d.data_rows[i_hi]), int(d.data_rows[i_lo])
     r0 = row + 1
     xh, yh, xl, yl = float(x[i_hi]), float(y[i_hi]), float(x[i_lo]), float(y[i_lo])
     rate = (yh - yl) / (xh - xl)
@@ -616,9 +618,9 @@ def _plan_matrices(cs: SheetPlan, row: int, d: CoefInputs):  # type: ignore[no-u
                 v, f = float(n), f"=COUNT({d.resid_rng})"
             elif a is None or b is None:
                 col, rng = (b, rb) if a is None else (a, ra)
-                v, f = math.fsum(np.asarray(col, dtype=float).tolist()), f"=SUM({rng})"
+                v, f = exact_sum(col if col is not None else []), f"=SUM({rng})"
             else:
-                v = math.fsum((np.asarray(a, dtype=float) * np.asarray(b, dtype=float)).tolist())
+                v = exact_dot(a, b)
                 f = f"=SUMPRODUCT({ra},{rb})"
             G[j, k] = v
             cs.put(g0 + 1 + j, 1 + k, v, f, "int" if v == round(v) and abs(v) < 1e15 else "check")

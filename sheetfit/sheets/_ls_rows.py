@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..a1 import col_letter
+from ..fit._sums import exact_dot, exact_sum
 from ..fit.inference import LEVERAGE_ONE, Influence
 from .columns import template, this_row
 from .common import FIRST_ROW
@@ -36,7 +37,7 @@ class RowColumns:
     cooks_col: int
     press_col: int
     flag_col: int
-    press: list[float | None]
+    press: np.ndarray  # nan where the cell is blank
     flags: list[str]
     loo_rmse: float | str
 
@@ -102,11 +103,10 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         "&IF(", *big_c, ",IF(", *big_s, ',", ","")&"influential","")',
         f"&IF({L}", r, f">2*{p}/{n},IF(OR(", *big_s, ",", *big_c, '),", ","")&"high leverage","")'),
         "flag")
-    press: list[float | None] = [v if isinstance(v, float) else None
-                                 for v in (pr.tolist() if isinstance(pr, np.ndarray) else pr)]
+    press = np.where(ok, pr_num, np.nan)  # nan where the cell is blank
     last = FIRST_ROW + n
     rs.put(last + 1, lev_c - 1, "sum of leverages (= p)", style="label")
-    lev_sum = math.fsum(h.tolist())
+    lev_sum = exact_sum(h)
     rs.put(last + 1, lev_c, lev_sum, f"=SUM({L}{FIRST_ROW + 1}:{L}{last})", "z")
     rs.put(last + 2, lev_c - 1, "check (|sum − p| < 1e-9)", style="label")
     rs.put(last + 2, lev_c, "holds" if abs(lev_sum - p) < 1e-9 else "FAILS",
@@ -120,7 +120,7 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         "is what the row's prediction would miss by if the row were left out of the fit."),
         width=90)
     loo: float | str = "n/a"
-    if all(v is not None for v in press):
-        loo = math.sqrt(math.fsum(v * v for v in press if v is not None) / n)
+    if ok.all():
+        loo = math.sqrt(exact_dot(pr_num, pr_num) / n)
     rs.widths.update({lev_c: 11, st_c: 13, ck_c: 12, pr_c: 16, fl_c: 30})
     return RowColumns(lev_c, st_c, ck_c, pr_c, fl_c, press, flags, loo)

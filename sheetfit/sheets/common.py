@@ -13,14 +13,15 @@ Helpers for planners (the least-squares planner included):
 
 from __future__ import annotations
 
-import math
 import textwrap
+import weakref
 from collections.abc import Sequence
 
 import numpy as np
 
 from ..a1 import col_letter, quote_sheet
 from ..declare.model import Column, Keys, ModelData
+from ..fit._sums import exact_dot
 from ..owned import sheet_title
 from .columns import Part, template, this_row
 from .plan import Scalar, SheetPlan, decimal_style
@@ -68,8 +69,7 @@ HOLDS, FAILS = "holds", "FAILS"
 
 def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
-    x = np.asarray(v, dtype=float)
-    return math.fsum((x * x).tolist())  # the same rounded products, summed exactly
+    return exact_dot(v, v)  # the same rounded products, summed exactly
 
 
 # --- identifiers ------------------------------------------------------------------------
@@ -91,10 +91,29 @@ def key_formula(cell: str) -> str:
     return f'=IF(ISBLANK({cell}),"",{cell})'
 
 
+#: The last sheet-row vector made by ``_sheet_rows``: (its rows ``idx``, first row, the
+#: vector), all weak, so that columns starting on the same row share one vector.
+_last_rows: list[tuple[weakref.ref[np.ndarray], int, weakref.ref[np.ndarray]] | None] = [None]
+
+
+def _sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
+    """``idx + first_row`` as int64; the same array again for the same ``idx`` array and
+    first row while the earlier one is still in use (one vector for every attribute of
+    a million-row model instead of one each). Planners never change ``idx`` in place."""
+    memo = _last_rows[0]
+    if memo is not None and isinstance(idx, np.ndarray) and memo[0]() is idx \
+            and memo[1] == first_row and (rows := memo[2]()) is not None:
+        return rows
+    rows = np.asarray(idx, dtype=np.int64) + first_row
+    if isinstance(idx, np.ndarray):
+        _last_rows[0] = (weakref.ref(idx), first_row, weakref.ref(rows))
+    return rows
+
+
 def ref_parts(column: Column, idx: np.ndarray | Sequence[int]) -> tuple[Part, ...]:
     """Template parts (``sheets.columns.template``) of ``column``'s cells in the model's
     rows ``idx``: ``Data!C`` and the sheet rows, i.e. what ``Column.cell(i)`` writes."""
-    rows = np.asarray(idx, dtype=np.int64) + column.first_row
+    rows = _sheet_rows(idx, column.first_row)
     return (f"{quote_sheet(column.sheet)}!{col_letter(column.col)}", rows)
 
 
@@ -268,7 +287,7 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np
     n = len(used)
     rs.run(0, FIRST_ROW, used + y.first_row, style="row")
     key_runs(rs, FIRST_ROW, 1, keys, used, key_styles(keys))
-    rs.run(ob, FIRST_ROW, model.Y.astype(float), template("=", *ref_parts(y, used)), amount)
+    rs.run(ob, FIRST_ROW, np.asarray(model.Y, dtype=float), template("=", *ref_parts(y, used)), amount)
     f = np.asarray(fitted, dtype=float)
     blank = np.isnan(f)
     if blank.any():

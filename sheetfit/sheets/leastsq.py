@@ -119,7 +119,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     # the fitted sheet's term cells: a power as Python's float ** int computes it, row by
     # row (numpy's x ** 2 is x * x, which can differ in the last bit)
     term_vals = [np.array([v ** d for v in model.X[:, j].tolist()]) if d > 1
-                 else model.X[:, j].astype(float) for j, d in specs]
+                 else np.asarray(model.X[:, j], dtype=float) for j, d in specs]
 
     cs = SheetPlan(sheet_title(tag, "coef"))
     fs = SheetPlan(sheet_title(tag, "fitted"))
@@ -148,7 +148,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     used = np.asarray(model.used, dtype=np.int64)
     fs.run(0, FIRST_ROW, used + y.first_row, style="row")
     key_runs(fs, FIRST_ROW, 1, keys, used, kstyles)
-    fs.run(obs_col, FIRST_ROW, model.Y.astype(float), template("=", *ref_parts(y, used)), amount)
+    fs.run(obs_col, FIRST_ROW, np.asarray(model.Y, dtype=float), template("=", *ref_parts(y, used)), amount)
     fitted, term_parts = _predictions(coef, coef_ref, intercept, specs,
                                       [value_parts(c, used) for c in model.xs], term_vals)
     for k, parts in enumerate(term_parts):
@@ -201,7 +201,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         term_rngs=term_rngs, press_rng=rs.col_range(rows.press_col, FIRST_ROW, last),
         rows=rows, method_note=res.method_note_, version=version,
         left_out=len(model.left_out),
-        range_lines=range_lines, data_rows=[int(y.row_of(int(i))) for i in model.used],
+        range_lines=range_lines, data_rows=np.asarray(model.used, dtype=np.int64) + y.first_row,
         rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
         amount_style=derived, answer_style=decimal_style(model.Y, least=2, fmt=y.fmt,
