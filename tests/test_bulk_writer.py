@@ -16,7 +16,7 @@ import pytest
 
 import sheetfit.refresh as refresh_mod
 from sheetfit.reader.package import open_package
-from sheetfit.sheets.columns import Run, template, this_row
+from sheetfit.sheets.columns import Pieces, Run, template, this_row
 from sheetfit.sheets.plan import BookPlan, SheetPlan
 from sheetfit.writer import _bulk
 from sheetfit.writer.graft import OutputName, graft
@@ -69,6 +69,10 @@ def _synthetic(n: int) -> BookPlan:
     s.run(7, 4, [float(i) if i % 3 else "" for i in range(n)],
           template('=IF(ISNUMBER(Data!A', rows, '),Data!A', rows, '*3,0)&""&"padding"'), "num")
     s.put(4 + n + 1, 1, float(vals.sum()), f"=SUM(B5:B{4 + n})", "num")
+    # a row of long texts written a piece at a time, between two loose cells of its row
+    s.put(2, 8, "before the span", style="label")
+    s.span(2, 9, Pieces("0123456789abcdef&<" * 7, 30))  # 126 characters: 5 cells
+    s.put(2, 15, "after the span", style="note")
     s.heights[3] = 30.0
     s.freeze = (4, 1)
     t = SheetPlan("sf syn small")  # no runs: both paths identical by construction
@@ -79,7 +83,9 @@ def _synthetic(n: int) -> BookPlan:
 # 3 chunks + 3 rows: the middle chunk has no loose cell (one format call per row), the
 # first and last merge loose cells into the runs' rows
 @pytest.mark.parametrize("n", [1, 7, 3 * _bulk.CHUNK_ROWS + 3])
-def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int) -> None:
+def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int,
+                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(_bulk, "_SPAN_BYTES", 40)  # the span's row handed on in pieces
     src = make_book(tmp_path / "src.xlsx", {"Data": [[1.0], [2.0], [3.0]]})
     outs = []
     for bulk in (True, False):
@@ -96,7 +102,10 @@ def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int) -> 
     assert a[("sf syn rows", f"F{5 + min(n - 1, 10)}")][0] == "loose beside a run"
     with zipfile.ZipFile(outs[0]) as z:
         xml = next(z.read(i) for i in z.infolist() if i.filename.endswith("sheet2.xml"))
-    assert f'<dimension ref="A1:H{6 + n}"/>'.encode() in xml
+    assert f'<dimension ref="A1:P{6 + n}"/>'.encode() in xml
+    assert [a[("sf syn rows", f"{c}3")][0] for c in "IJKLMNP"] == [
+        "before the span", *[("0123456789abcdef&<" * 7)[k:k + 30] for k in range(0, 126, 30)],
+        "after the span"]
     assert b"_xlfn.T.DIST.2T(" in xml and b"spans=" not in xml
     if n > 1:  # openpyxl translated the shared formulas into the full ones compared above
         assert xml.count(b't="shared" ref=') == 2
