@@ -371,8 +371,7 @@ def _copy_raw(src: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
     if head[:4] != b"PK\x03\x04":
         raise zipfile.BadZipFile(f"bad local header for {info.filename}")
     skip = int.from_bytes(head[26:28], "little") + int.from_bytes(head[28:30], "little")
-    fp.seek(info.header_offset + 30 + skip)
-    raw = fp.read(info.compress_size)
+    start = info.header_offset + 30 + skip
     zi = zipfile.ZipInfo(info.filename, info.date_time)
     zi.compress_type = info.compress_type
     zi.external_attr = info.external_attr
@@ -385,7 +384,14 @@ def _copy_raw(src: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
     zi.header_offset = out.tell()
     zip64 = info.file_size > zipfile.ZIP64_LIMIT or info.compress_size > zipfile.ZIP64_LIMIT
     out.write(zi.FileHeader(zip64))
-    out.write(raw)
+    fp.seek(start)
+    left = info.compress_size
+    while left > 0:  # a megabyte at a time: a million-row data part is ~30 MB compressed
+        block = fp.read(min(left, 1 << 20))
+        if not block:
+            raise zipfile.BadZipFile(f"{info.filename} is cut short")
+        out.write(block)
+        left -= len(block)
     zout.start_dir = out.tell()
     zout.filelist.append(zi)
     zout.NameToInfo[zi.filename] = zi
