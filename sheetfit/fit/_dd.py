@@ -79,18 +79,48 @@ def dd_sum(x: np.ndarray) -> float:
     return hi + lo
 
 
+#: Rows handled at a time by the whole-column functions below: arrays of this length stay
+#: in the processor's cache through the dozen element-wise steps of a two_prod, where
+#: million-element arrays go to memory and back at every step (and are held at once).
+_ROWS = 1 << 16
+
+
+def _blocks(n: int) -> range:
+    return range(0, n, _ROWS)
+
+
+def _prod_err(a: tuple[np.ndarray, np.ndarray], b: tuple[np.ndarray, np.ndarray],
+              p: np.ndarray) -> np.ndarray:
+    """The error of ``p = fl(a · b)`` from the split halves of a and b (as ``two_prod``)."""
+    (ah, al), (bh, bl) = a, b
+    return ((ah * bh - p) + ah * bl + al * bh) + al * bl
+
+
 def dd_gram(X: np.ndarray, X_lo: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """(X + X_lo)ᵀ(X + X_lo) as double-double matrices (hi, lo), entries good to ~eps²."""
-    p = X.shape[1]
+    """(X + X_lo)ᵀ(X + X_lo) as double-double matrices (hi, lo), entries good to ~eps².
+
+    Taken ``_ROWS`` rows at a time, each column split once per block; each block's sums
+    are added into a double-double total (for one block the same operations as before)."""
+    n, p = X.shape
     hi = np.zeros((p, p))
     lo = np.zeros((p, p))
+    for a in _blocks(n):
+        B = X[a:a + _ROWS]
+        L = None if X_lo is None else X_lo[a:a + _ROWS]
+        parts = [_split(np.ascontiguousarray(B[:, j])) for j in range(p)]
+        for j in range(p):
+            for k in range(j, p):
+                prod = B[:, j] * B[:, k]
+                err = _prod_err(parts[j], parts[k], prod)
+                h, low = dd_sum_pair(prod)
+                if L is not None:
+                    err = err + B[:, j] * L[:, k] + L[:, j] * B[:, k]
+                s, e = two_sum(np.float64(hi[j, k]), np.float64(h))
+                hi[j, k] = s
+                lo[j, k] += e + (low + float(np.sum(err)))
     for j in range(p):
         for k in range(j, p):
-            prod, err = two_prod(X[:, j], X[:, k])
-            h, low = dd_sum_pair(prod)
-            if X_lo is not None:
-                err = err + X[:, j] * X_lo[:, k] + X_lo[:, j] * X[:, k]
-            s, t = two_sum(np.float64(h), np.float64(low + float(np.sum(err))))
+            s, t = two_sum(np.float64(hi[j, k]), np.float64(lo[j, k]))
             hi[j, k] = hi[k, j] = s
             lo[j, k] = lo[k, j] = t
     return hi, lo
@@ -110,24 +140,39 @@ def dd_powers(x: np.ndarray, degree: int) -> tuple[np.ndarray, np.ndarray]:
 def dd_residual(
     y: np.ndarray, X: np.ndarray, beta: np.ndarray, X_lo: np.ndarray | None = None
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Residual ``y − (X + X_lo)β`` as a double-double pair (hi, lo)."""
-    hi = np.array(y, dtype=np.float64)
-    lo = np.zeros_like(hi)
-    for j in range(X.shape[1]):
-        p, e = two_prod(X[:, j], np.float64(beta[j]))
-        hi, t = two_sum(hi, -p)
-        lo += t - e
-        if X_lo is not None:
-            lo -= X_lo[:, j] * beta[j]
-    s = hi + lo
-    return s, lo - (s - hi)
+    """Residual ``y − (X + X_lo)β`` as a double-double pair (hi, lo); element-wise, so
+    taking ``_ROWS`` rows at a time changes no bit."""
+    n = len(y)
+    out_hi = np.empty(n)
+    out_lo = np.empty(n)
+    for a in _blocks(n):
+        hi = np.array(y[a:a + _ROWS], dtype=np.float64)
+        lo = np.zeros_like(hi)
+        for j in range(X.shape[1]):
+            p, e = two_prod(X[a:a + _ROWS, j], np.float64(beta[j]))
+            hi, t = two_sum(hi, -p)
+            lo += t - e
+            if X_lo is not None:
+                lo -= X_lo[a:a + _ROWS, j] * beta[j]
+        s = hi + lo
+        out_hi[a:a + _ROWS] = s
+        out_lo[a:a + _ROWS] = lo - (s - hi)
+    return out_hi, out_lo
 
 
 def dd_dot(a: np.ndarray, hi: np.ndarray, lo: np.ndarray, a_lo: np.ndarray | None = None) -> float:
-    """Dot product of two double-double vectors (a + a_lo)·(hi + lo), accurately rounded."""
-    p, e = two_prod(a, hi)
-    small = e + a * lo if a_lo is None else e + a * lo + a_lo * hi
-    return dd_sum(p) + float(np.sum(small))
+    """Dot product of two double-double vectors (a + a_lo)·(hi + lo), accurately rounded
+    (``_ROWS`` rows at a time; for one block the same operations as in one piece)."""
+    acc, acc_lo, small_sum = np.float64(0.0), 0.0, 0.0
+    for k in _blocks(len(a)):
+        ab, hb, lb = a[k:k + _ROWS], hi[k:k + _ROWS], lo[k:k + _ROWS]
+        p, e = two_prod(ab, hb)
+        small = e + ab * lb if a_lo is None else e + ab * lb + a_lo[k:k + _ROWS] * hb
+        h, low = dd_sum_pair(p)
+        acc, err = two_sum(acc, np.float64(h))
+        acc_lo += float(err) + low
+        small_sum += float(np.sum(small))
+    return (float(acc) + acc_lo) + small_sum
 
 
 def dd_sum_squares(hi: np.ndarray, lo: np.ndarray) -> float:
