@@ -307,7 +307,6 @@ def test_blockwise_factorisation_agrees_with_one_piece(case_name, monkeypatch) -
     from sheetfit.fit import inference as inf_mod
 
     monkeypatch.setattr(inf_mod, "_QR_ROWS", 7)
-    monkeypatch.setattr(inf_mod, "_BP_ROWS", 7)
     assert len(inf_mod._blocks(rows)) > 4  # the block path is the one taken
     blocked = (influence(res), coef_table(res), breusch_pagan(res), intervals(res, X_new))
     tol = {"rtol": 1e-12, "atol": 1e-15}

@@ -154,15 +154,17 @@ class _Basis:
     attributes centred and scaled by the fitted rows' mean and SD (for a polynomial: the
     powers of the standardized x), whose columns are far less collinear than raw powers
     of an x far from 0. Without an intercept centring would change the space, so the
-    columns are only scaled to unit length.
+    columns are only scaled to unit length. ``centred`` forces the first kind (the space
+    with a constant added), as Breusch–Pagan's auxiliary regression needs.
     """
 
-    def __init__(self, res: LeastSquaresResult) -> None:
+    def __init__(self, res: LeastSquaresResult, centred: bool | None = None) -> None:
         self.res = res
+        self.centred = res.intercept_ if centred is None else centred
         d = np.asarray(res.design_)
         self.first = int(res.intercept_)
         self.m = 1 if res.degree_ > 1 else len(res.names_)
-        if not res.intercept_:
+        if not self.centred:
             norms = np.array([np.linalg.norm(d[:, j]) for j in range(d.shape[1])])
             self.norms = np.where(norms > 0, norms, 1.0)
             return
@@ -181,7 +183,7 @@ class _Basis:
         return self._of(_design(X, res.intercept_, res.degree_))
 
     def _of(self, d: np.ndarray) -> np.ndarray:
-        if not self.res.intercept_:
+        if not self.centred:
             return d / self.norms
         z = (d[:, self.first:self.first + self.m] - self.mean) / self.sd
         cols = ([z[:, 0] ** k for k in range(1, self.res.degree_ + 1)] if self.res.degree_ > 1
@@ -258,10 +260,6 @@ def overall(res: LeastSquaresResult) -> Overall:
     return Overall(adj, f, float(f_sf(f, df_model, df)), df_model, df)
 
 
-#: Rows of the auxiliary design factored at a time by :func:`breusch_pagan`.
-_BP_ROWS = 1 << 16
-
-
 def breusch_pagan(res: LeastSquaresResult) -> tuple[float, float]:
     """Koenker's studentized Breusch–Pagan test: LM = n·R² of e² on the terms, χ²(p − 1).
 
@@ -275,40 +273,33 @@ def breusch_pagan(res: LeastSquaresResult) -> tuple[float, float]:
     x ≈ 1000) that a least-squares solve on them loses the 4th digit of LM. The
     residual of e² − mean(e²) off that space is the last diagonal entry of R in the
     Householder QR of the design with that column appended; R is found block by block
-    (the R of earlier rows stacked on the next ``_BP_ROWS`` rows, factored again), so
+    (the R of earlier rows stacked on the next block of ``_blocks``, factored again), so
     no copy of the whole design is made: on a million rows the one-piece QR held
     ~330 MiB of copies.
     """
     n = res.n_
-    first = int(res.intercept_)
-    design = np.asarray(res.design_)
-    m = 1 if res.degree_ > 1 else len(res.names_)
-    k = m * res.degree_ if res.degree_ > 1 else m  # auxiliary terms besides the constant
+    k = res.degree_ if res.degree_ > 1 else len(res.names_)  # auxiliary terms besides 1
     e = np.asarray(res.resid_)
     e2_mean = float(np.mean(e * e))
+    blocks = _blocks(n)
     tss = 0.0
-    for a in range(0, n, _BP_ROWS):
-        dev = e[a:a + _BP_ROWS] ** 2 - e2_mean
+    for a, b in blocks:
+        dev = e[a:b] ** 2 - e2_mean
         tss += float(dev @ dev)
     if k == 0 or tss == 0:
         return math.nan, math.nan
-    centre = [float(np.mean(design[:, first + j])) for j in range(m)]
-    spread = [float(np.std(design[:, first + j])) for j in range(m)]
+    basis = _Basis(res, centred=True)
 
     def block(a: int, b: int) -> np.ndarray:
-        z = [(design[a:b, first + j] - centre[j]) / (spread[j] if spread[j] > 0 else 1.0)
-             for j in range(m)]
-        cols = [z[0] ** p for p in range(1, res.degree_ + 1)] if res.degree_ > 1 else z
-        dev = e[a:b] ** 2 - e2_mean
-        return np.column_stack([np.ones(b - a), *cols, dev])
+        return np.column_stack([basis.rows(a, b), e[a:b] ** 2 - e2_mean])
 
     sq = np.zeros(k + 2)  # each column's sum of squares, for the unit-length scaling
-    for a in range(0, n, _BP_ROWS):
-        sq += np.sum(block(a, min(n, a + _BP_ROWS)) ** 2, axis=0)
+    for a, b in blocks:
+        sq += np.sum(block(a, b) ** 2, axis=0)
     scale = 1.0 / np.sqrt(np.where(sq > 0, sq, 1.0))
     r: np.ndarray | None = None
-    for a in range(0, n, _BP_ROWS):
-        piece = block(a, min(n, a + _BP_ROWS)) * scale
+    for a, b in blocks:
+        piece = block(a, b) * scale
         r = np.asarray(np.linalg.qr(piece if r is None else np.vstack([r, piece]), mode="r"))
     assert r is not None
     left = float(r[k + 1, k + 1]) ** 2 if r.shape[0] > k + 1 else 0.0  # Σ residual², scaled
