@@ -175,3 +175,18 @@ def die_in_child(book: str | Path, **options: Any) -> Outcome:
     if Path(book).name == DIES and multiprocessing.parent_process() is not None:
         os._exit(70)
     return refresh_one(book, **options)
+
+
+#: The three value readers (``reader/values.py``), in the order a refresh tries them.
+READERS = ("columnar", "fast", "stream")
+
+
+def only_reader(monkeypatch: Any, which: str) -> None:
+    """Make ``BookValues`` read every sheet with one reader: our column reader, the fast
+    reader (python-calamine) or the streaming parse (each earlier one switched off)."""
+    from sheetfit.reader.values import BookValues
+
+    if which in ("fast", "stream"):
+        monkeypatch.setattr(BookValues, "_columnar", lambda self, member: None)
+    if which == "stream":
+        monkeypatch.setattr(BookValues, "_fast", lambda self, name: None)

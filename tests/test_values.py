@@ -14,13 +14,13 @@ from pathlib import Path
 
 import pytest
 import xlsxwriter
-from books import line_rows, make_book
+from books import READERS, line_rows, make_book, only_reader
 
 from sheetfit.cli import main
 from sheetfit.errors import DataError
 from sheetfit.reader import values as values_mod
 from sheetfit.reader.package import open_package
-from sheetfit.reader.values import TEXT_CAP, BookValues
+from sheetfit.reader.values import TEXT_CAP
 from sheetfit.refresh import _values, refresh
 
 EXAMPLES = sorted((Path(__file__).parents[1] / "example_books").glob("*.xlsx"))
@@ -45,17 +45,16 @@ def _digest(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
-def _all_values(path: Path, stream: bool, monkeypatch: pytest.MonkeyPatch) -> dict:
+def _all_values(path: Path, reader: str, monkeypatch: pytest.MonkeyPatch) -> dict:
     """Every cell of every worksheet (one row and column beyond the used area), one reader."""
     pkg = open_package(path)
     with monkeypatch.context() as m:
-        if stream:
-            m.setattr(BookValues, "_fast", lambda self, name: None)
+        only_reader(m, reader)
         out = {}
         with _values(pkg, path) as values:
             for name in values.sheet_parts:
                 sv = values.sheet(name)
-                assert values.readers[name] == ("stream" if stream else "fast")
+                assert values.readers[name] == reader
                 rows = max(sv.last_used_row(1, 60), 1)
                 for r in range(1, rows + 2):
                     for c in range(1, 40):
@@ -92,18 +91,20 @@ def _every_kind(path: Path) -> Path:
 
 
 @pytest.mark.parametrize("book", EXAMPLES + ["every_kind"], ids=lambda b: getattr(b, "stem", b))
-def test_fast_and_streaming_readers_agree(book, tmp_path: Path, monkeypatch) -> None:
-    """Both readers give the same Value for every cell; date-formatted cells (which the fast
-    reader turns into datetimes, to the microsecond) agree within 1e-10 days (9 µs), every
-    other cell exactly."""
+def test_the_three_readers_agree(book, tmp_path: Path, monkeypatch) -> None:
+    """The column, fast and streaming readers give the same Value for every cell; the
+    column and streaming readers (both read the stored number) exactly; date-formatted
+    cells, which the fast reader turns into datetimes to the microsecond, within 1e-10 days
+    (9 µs) of them, every other cell exactly."""
     path = _every_kind(tmp_path / "kinds.xlsx") if book == "every_kind" else book
-    fast, stream = _all_values(path, False, monkeypatch), _all_values(path, True, monkeypatch)
-    assert fast.keys() == stream.keys()
+    columnar, fast, stream = (_all_values(path, r, monkeypatch) for r in READERS)
+    assert columnar.keys() == fast.keys() == stream.keys()
     kinds = set()
     for key, a in fast.items():
-        b = stream[key]
+        b, c = stream[key], columnar[key]
         kinds.add(a.kind)
-        assert (a.kind, a.text) == (b.kind, b.text), key
+        assert (a.kind, a.text) == (b.kind, b.text) == (c.kind, c.text), key
+        assert _same_value(c, b), key
         if a.kind == "number":
             assert a.number == pytest.approx(b.number, rel=0, abs=1e-10), key
     if book == "every_kind":
@@ -118,10 +119,10 @@ def _same_value(a, b) -> bool:
         a.number == b.number or (math.isnan(a.number) and math.isnan(b.number)))
 
 
-@pytest.mark.parametrize("stream", [False, True], ids=["fast", "stream"])
+@pytest.mark.parametrize("reader", READERS)
 @pytest.mark.parametrize("book", EXAMPLES + ["every_kind", "unsaved"],
                          ids=lambda b: getattr(b, "stem", b))
-def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, stream: bool, tmp_path: Path,
+def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, reader: str, tmp_path: Path,
                                                           monkeypatch) -> None:
     """``BookValues.column`` (arrays, the declarations' path) gives for every cell exactly
     the Value ``SheetValues.get`` gives, in both readers: every kind, errors, formula cells
@@ -131,11 +132,11 @@ def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, stream: bool, tm
     pkg = open_package(path)
     seen = set()
     with monkeypatch.context() as m:
-        if stream:
-            m.setattr(BookValues, "_fast", lambda self, name: None)
+        only_reader(m, reader)
         with _values(pkg, path) as values:
             for name in values.sheet_parts:
                 sv = values.sheet(name)
+                assert values.readers[name] == reader
                 rows = max(sv.last_used_row(1, 60), 1) + 2
                 for c in range(1, 40):
                     for row1 in (1, 2):
@@ -319,9 +320,9 @@ def test_megabyte_header_and_setting_give_a_short_one_line_refusal(tmp_path: Pat
     assert "\n" not in err and len(err) < 500 and "setting 'method' must be" in err
 
 
-def test_stream_reader_caps_text_and_reads_inline_strings(tmp_path: Path, monkeypatch) -> None:
-    """Inline strings (with runs) and a 40,000-character inline text through the streaming
-    reader: runs joined, text capped at TEXT_CAP."""
+def test_readers_cap_text_and_read_inline_strings(tmp_path: Path, monkeypatch) -> None:
+    """Inline strings (with runs) and a 40,000-character inline text through each reader:
+    runs joined, text capped at TEXT_CAP."""
     src = make_book(tmp_path / "b.xlsx", {"Data": line_rows(12)}, LINE_NAMES)
     long = "x" * 40_000
     def edit(name: str, data: bytes) -> bytes:
@@ -331,13 +332,13 @@ def test_stream_reader_caps_text_and_reads_inline_strings(tmp_path: Path, monkey
                  f'</is></c><c r="B20" t="inlineStr"><is><t>{long}</t></is></c></row>')
         return data.replace(b"</sheetData>", cells.encode() + b"</sheetData>")
     book = rewrite(src, tmp_path / "inline.xlsx", edit)
-    for stream in (False, True):
+    for reader in READERS:
         with monkeypatch.context() as m:
-            if stream:
-                m.setattr(BookValues, "_fast", lambda self, name: None)
+            only_reader(m, reader)
             pkg = open_package(book)
             with _values(pkg, book) as values:
                 sv = values.sheet("Data")
+                assert values.readers["Data"] == reader
                 assert sv.get(20, 1).text == "inline"
                 assert len(sv.get(20, 2).text) == TEXT_CAP
     assert values_mod.TEXT_CAP == 32_767

@@ -87,9 +87,9 @@ def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray,
     n = len(raws)
     kind = np.zeros(n, dtype=np.uint8)
     text: dict[int, str] = {}
-    if isinstance(raws, np.ndarray):
+    if isinstance(raws, np.ndarray):  # the store's own read-only array: no copy
         return _overrides(sheet, col, row1, np.full(n, _NUMBER, dtype=np.uint8),
-                          np.array(raws, dtype=np.float64), text, errors, unsaved)
+                          np.asarray(raws, dtype=np.float64), text, errors, unsaved)
     codes = np.fromiter(map(_TYPE_CODE.get, map(type, raws), repeat(_ANY)), dtype=np.uint8,
                         count=n)
     if n and not codes.any():  # the common case: a column of plain numbers
@@ -119,6 +119,9 @@ def _overrides(sheet: str, col: int, row1: int, kind: np.ndarray, number: np.nda
                unsaved: set[tuple[int, int]]) -> ColumnValues:
     """Error cells and formula cells without a saved result over the raw values."""
     row2 = row1 + len(kind) - 1
+    if not number.flags.writeable and any(
+            c == col and row1 <= r <= row2 for r, c in (*unsaved, *errors)):
+        number = number.copy()  # a view of the reader's store: written only as a copy
     for r, c in unsaved:
         if c == col and row1 <= r <= row2:
             i = r - row1

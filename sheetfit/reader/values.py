@@ -1,8 +1,15 @@
 """Read cell values of a user's workbook: only the sheets asked for, never refusing a sheet
 our own parser can read.
 
-Two readers give the same values (tests/test_values.py compares them cell by cell):
+Three readers give the same values (tests/test_values.py compares them cell by cell),
+tried in this order:
 
+- **columnar** — our own column reader (``_columnar``): the sheet's XML a couple of
+  megabytes at a time, cells located with numpy, numbers parsed in bulk into one array
+  per column, other values in small maps; nothing per cell and never the whole part in
+  memory (a 1,000,000 x 6 sheet: ~50 MB of arrays where the fast reader held ~410 MB).
+  Takes UTF-8 parts in the plain shape every common writer produces; anything else
+  (``_columnar.Irregular``) goes to the next reader.
 - **fast** — python-calamine (about 8x faster than openpyxl on 1M cells,
   docs/engine-facts.md R1). It shows error cells as empty strings and formula cells
   without a saved result as blanks, so one byte scan of the sheet's XML
@@ -33,6 +40,7 @@ from defusedxml import DefusedXmlException
 from defusedxml.ElementTree import ParseError
 
 from ..errors import Context, PackageError
+from ._columnar import Irregular, Read, read_columns
 from ._dense import Dense, dense_from_rows
 from ._sheetxml import TEXT_CAP, part_bytes, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
@@ -183,7 +191,7 @@ class BookValues:
     sheet_parts: dict[str, str]
     date1904: bool = False
     workbook_part: str = "xl/workbook.xml"
-    #: Which reader read each sheet ("fast" or "stream"), by sheet name.
+    #: Which reader read each sheet ("columnar", "fast" or "stream"), by sheet name.
     readers: dict[str, str] = field(default_factory=dict)
     _cache: dict[str, SheetValues] = field(default_factory=dict)
     _columns: dict[tuple[str, int, int, int], ColumnValues] = field(
@@ -295,6 +303,11 @@ class BookValues:
     def _read(self, name: str) -> SheetValues:
         member = self._member(self.sheet_parts[name])
         zf = self._archive()
+        columns = self._columnar(member)
+        if columns is not None:
+            self.readers[name] = "columnar"
+            return SheetValues(name, columns.cells, columns.errors, columns.unsaved,
+                               self.date1904)
         data = part_bytes(zf, member)
         found = scan(data) if utf8(data) else None
         del data  # the sheet's XML is not held while the fast reader parses the same part
@@ -316,6 +329,19 @@ class BookValues:
             cells = stream_sheet(fh, self._shared_strings(), stop)
         self.readers[name] = "stream"
         return SheetValues(name, _Sparse(cells.rows), cells.errors, cells.unsaved, self.date1904)
+
+    def _columnar(self, member: str) -> Read | None:
+        """Our own column reader's values of one part, or None when the part is not UTF-8
+        or not in the plain shape it takes (``_columnar.Irregular``)."""
+        zf = self._archive()
+        with zf.open(member) as fh:
+            if not utf8(fh.read(256)):
+                return None
+        try:
+            with zf.open(member) as fh:
+                return read_columns(fh, self._shared_strings)
+        except (Irregular, UnicodeDecodeError, ValueError, OverflowError):
+            return None
 
     def _fast(self, name: str) -> Dense | None:
         """The fast reader's rectangle of one sheet, or None when it cannot read it."""
