@@ -15,6 +15,7 @@ import numpy as np
 
 __all__ = [
     "dd_dot",
+    "dd_fitted",
     "dd_gram",
     "dd_powers",
     "dd_residual",
@@ -175,7 +176,32 @@ def dd_dot(a: np.ndarray, hi: np.ndarray, lo: np.ndarray, a_lo: np.ndarray | Non
     return (float(acc) + acc_lo) + small_sum
 
 
-def dd_sum_squares(hi: np.ndarray, lo: np.ndarray) -> float:
-    """Σ (hi + lo)² for a double-double vector, accurately rounded."""
-    p, e = two_prod(hi, hi)
-    return dd_sum(p) + float(np.sum(e + 2.0 * hi * lo))
+def dd_sum_squares(hi: np.ndarray, lo: np.ndarray | None = None,
+                   shift: float | None = None) -> float:
+    """Σ (hi + lo)² for a double-double vector, accurately rounded; with ``shift`` (and no
+    ``lo``) Σ (hi − shift)², each difference carried as a double-double. ``_ROWS`` rows at
+    a time, each block's sum added into a double-double total (for one block the same
+    operations as in one piece)."""
+    acc, acc_lo, small_sum = np.float64(0.0), 0.0, 0.0
+    for a in _blocks(len(hi)):
+        h = hi[a:a + _ROWS]
+        if shift is not None:
+            h, low = two_sum(h, -np.float64(shift))
+        else:
+            low = np.zeros_like(h) if lo is None else lo[a:a + _ROWS]
+        p, e = two_prod(h, h)
+        s_hi, s_lo = dd_sum_pair(p)
+        acc, err = two_sum(acc, np.float64(s_hi))
+        acc_lo += float(err) + s_lo
+        small_sum += float(np.sum(e + 2.0 * h * low))
+    return (float(acc) + acc_lo) + small_sum
+
+
+def dd_fitted(y: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
+    """``y − (hi + lo)`` rounded once: the fitted values from a double-double residual
+    (element-wise, ``_ROWS`` rows at a time: no million-row temporaries)."""
+    out = np.empty(len(y))
+    for a in _blocks(len(y)):
+        f, e = two_sum(y[a:a + _ROWS], -hi[a:a + _ROWS])
+        out[a:a + _ROWS] = f + (e - lo[a:a + _ROWS])
+    return out

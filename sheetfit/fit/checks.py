@@ -73,7 +73,7 @@ def as_table(X: Any, names: Sequence[str] | None = None) -> tuple[np.ndarray, li
 
     A vector is one attribute. Unnamed attributes are called x1, x2, …
     """
-    X = np.array(X, dtype=np.float64)
+    X = np.asarray(X, dtype=np.float64)  # read, never written: no copy of a float table
     if X.ndim == 1:
         X = X.reshape(-1, 1)
     if X.ndim != 2 or X.shape[1] == 0:

@@ -14,14 +14,13 @@ Numeric code only: arrays in, arrays out, no workbook knowledge.
 
 from __future__ import annotations
 
-import itertools
 import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from sheetfit.fit import checks
-from sheetfit.fit._arrays import readonly
+from sheetfit.fit._arrays import readonly, row_blocks
 from sheetfit.fit._dd import dd_residual
 from sheetfit.fit.distributions import chi2_sf, f_sf, t_ppf, t_sf
 from sheetfit.fit.leastsq import LeastSquaresResult, _design
@@ -128,9 +127,7 @@ _QR_ROWS = 1 << 16
 def _blocks(n: int) -> list[tuple[int, int]]:
     """Row ranges of about ``_QR_ROWS`` rows (nearly equal, so none is shorter than the
     basis is wide); one range when n fits in one."""
-    k = max(1, -(-n // _QR_ROWS))
-    cuts = [n * i // k for i in range(k + 1)]
-    return list(itertools.pairwise(cuts))
+    return row_blocks(n, _QR_ROWS)
 
 
 def _hc3(res: LeastSquaresResult) -> np.ndarray:

@@ -31,15 +31,15 @@ import numpy as np
 
 from sheetfit.errors import CollinearError
 from sheetfit.fit import checks
-from sheetfit.fit._arrays import readonly
+from sheetfit.fit._arrays import readonly, row_blocks
 from sheetfit.fit._dd import (
     dd_dot,
+    dd_fitted,
     dd_gram,
     dd_powers,
     dd_residual,
     dd_sum,
     dd_sum_squares,
-    two_sum,
 )
 from sheetfit.fit._exact import ExactColumn, exact_inverse, exact_solve, scaled_integers
 
@@ -268,6 +268,23 @@ def _design(X: np.ndarray, intercept: bool, degree: int) -> np.ndarray:
     return np.column_stack(cols) if cols else np.empty((X.shape[0], 0))
 
 
+#: Rows of the scaled design factored at a time for the rank check: the QR of a
+#: million-row design in one piece held two copies of it (~80 MiB at 1M x 5).
+_RANK_ROWS = 1 << 16
+
+
+def _scaled_r(design: np.ndarray, norms: np.ndarray) -> np.ndarray:
+    """R of the Householder QR of the design with unit-length columns, a block of rows at a
+    time (each block stacked under the R so far). R differs from the one-piece R only in
+    the signs of its rows and in rounding, so its singular values and right singular
+    vectors are those of the scaled design; up to ``_RANK_ROWS`` rows it is the one-piece
+    QR itself."""
+    r = np.zeros((0, design.shape[1]))
+    for a, b in row_blocks(design.shape[0], _RANK_ROWS):
+        r = np.asarray(np.linalg.qr(np.vstack([r, design[a:b] / norms]), mode="r"))
+    return r
+
+
 def _fmt(v: float) -> str:
     return f"{v:.6g}"
 
@@ -325,9 +342,7 @@ def _solve(
     if np.any(norms == 0):
         j = int(np.flatnonzero(norms == 0)[0])
         raise CollinearError(f"attribute {terms[j]} is zero in every row", hint="remove it")
-    scaled = design / norms
-    r = np.linalg.qr(scaled, mode="r")
-    _, sv, vt = np.linalg.svd(r)
+    _, sv, vt = np.linalg.svd(_scaled_r(design, norms))
     cond = float(sv[0] / sv[-1]) if sv[-1] > 0 else math.inf
     if not sv[-1] > RANK_TOL * sv[0]:
         raise _collinear_error(vt[-1], norms, terms, is_poly)
@@ -393,15 +408,9 @@ def _solve_float(
             break
         last = size
     hi, lo = dd_residual(y, design, beta, design_lo)
-    f, e = two_sum(y, -hi)
-    fitted = f + (e - lo)
+    fitted = dd_fitted(y, hi, lo)
     ssr = dd_sum_squares(hi, lo)
-    if intercept:
-        mean = dd_sum(y) / n
-        d_hi, d_lo = two_sum(y, np.full(n, -mean))
-        tss = dd_sum_squares(d_hi, d_lo)
-    else:
-        tss = dd_sum_squares(y, np.zeros(n))
+    tss = dd_sum_squares(y, shift=dd_sum(y) / n if intercept else None)
     r2 = 1.0 - ssr / tss if tss > 0 else math.nan
     inv = np.array([[float(g_inv[j][k]) for k in range(p)] for j in range(p)])
     inv_diag = np.diag(inv).copy()
