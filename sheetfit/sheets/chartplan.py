@@ -7,7 +7,10 @@ columns are 0-based, as in :mod:`sheetfit.sheets.plan`.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
+
+import numpy as np
 
 from ..a1 import area
 
@@ -78,15 +81,16 @@ class ChartPlan:
         return sum(1 for s in self.series if s.in_legend) > 1
 
 
-def nice_bounds(values: list[float]) -> tuple[float | None, float | None]:
+def nice_bounds(values: Sequence[float] | np.ndarray) -> tuple[float | None, float | None]:
     """Round axis bounds around ``values`` (steps of 1, 2 or 5 × a power of ten, about ten
     steps over the range); (None, None) when there is nothing to bound."""
     import math
 
-    vals = [v for v in values if math.isfinite(v)]
-    if not vals:
+    vals = np.asarray(values, dtype=np.float64)
+    vals = vals[np.isfinite(vals)]
+    if not vals.size:
         return None, None
-    lo, hi = min(vals), max(vals)
+    lo, hi = float(vals.min()), float(vals.max())
     span = hi - lo or abs(hi) or 1.0
     raw = span / 10
     power = 10 ** math.floor(math.log10(raw))

@@ -73,7 +73,7 @@ class CellColumn(Sequence[tuple[str, Scalar]]):
     """(absolute reference, cached value) of each cell of a column range, the reference
     made when asked for; ``values`` are the cached values in order."""
 
-    def __init__(self, head: str, first_row: int, values: list[Scalar]) -> None:
+    def __init__(self, head: str, first_row: int, values: list[Scalar] | np.ndarray) -> None:
         self._head, self._first, self.values = head, first_row, values
 
     def __len__(self) -> int:
@@ -90,7 +90,8 @@ class CellColumn(Sequence[tuple[str, Scalar]]):
             return [self[k] for k in range(*i.indices(len(self)))]
         if i < 0:
             i += len(self)
-        return f"{self._head}{self._first + i}", self.values[i]
+        v = self.values[i]
+        return f"{self._head}{self._first + i}", v.item() if isinstance(v, np.generic) else v
 
 
 class Located:
@@ -124,8 +125,8 @@ class Located:
         title, c1, r1, _, r2 = self._area(name)
         sheet = self._sheets.get(title)
         c = c1 + j
-        values: list[Scalar] = (sheet.values_in(c, r1, r2) if sheet
-                                else [None] * (r2 - r1 + 1))
+        values: list[Scalar] | np.ndarray = (sheet.values_in(c, r1, r2) if sheet
+                                             else [None] * (r2 - r1 + 1))
         return CellColumn(f"{quote_sheet(title)}!${col_letter(c + 1)}$", r1 + 1, values)
 
     def block(self, name: str) -> list[list[tuple[str, Scalar]]]:
@@ -213,15 +214,18 @@ def data_cells(cells: Sequence[str], values: Sequence[float]) -> list[tuple[str 
     return [(f"={c}", float(v)) for c, v in zip(cells, values, strict=True)]
 
 
-def numbers(values: Sequence[Scalar]) -> np.ndarray:
+def numbers(values: Sequence[Scalar] | np.ndarray) -> np.ndarray:
     """The finite numbers among ``values`` (not logicals), as an array."""
+    if isinstance(values, np.ndarray) and values.dtype == np.float64:
+        return values[np.isfinite(values)]
     if all(type(v) is float for v in values):
         x = np.array(values, dtype=float)
         return x[np.isfinite(x)]
     return np.array([float(v) for v in values if _number(v)], dtype=float)  # type: ignore[arg-type]
 
 
-def extreme(fn: str, spans: Sequence[str], values: Sequence[Scalar]) -> tuple[str, Scalar]:
+def extreme(fn: str, spans: Sequence[str], values: Sequence[Scalar] | np.ndarray
+            ) -> tuple[str, Scalar]:
     """A MIN or MAX formula over ranges (text and blanks ignored, as the engine does)."""
     nums = numbers(values)
     if not nums.size:

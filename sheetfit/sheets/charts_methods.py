@@ -41,6 +41,7 @@ from .charts import (
     copy_cells,
     data_cells,
     extreme,
+    numbers,
     sample_rows,
     suffix,
 )
@@ -53,11 +54,6 @@ __all__ = ["least_squares_charts", "neighbour_mean_charts", "neighbour_vote_char
 CURVE_POINTS = 41
 
 
-def _nums(values: Sequence[Scalar]) -> list[float]:
-    if all(type(v) is float for v in values):
-        return list(values)  # type: ignore[arg-type]
-    return [float(v) for v in values
-            if isinstance(v, (int, float)) and not isinstance(v, bool)]
 
 
 def _pick(items: Sequence[object], rows: list[int]) -> list:  # type: ignore[type-arg]
@@ -84,7 +80,7 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     res = board.column("residual", copy_cells(_pick(res_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values = list(fit_cells.values)
+    values = numbers(fit_cells.values)
     zx = board.column("zero line x", [extreme("MIN", [whole], values),
                                       extreme("MAX", [whole], values)])
     zy = board.column("zero line y", [(None, 0), (None, 0)])
@@ -94,7 +90,7 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
                 "residual (observed − fitted)",
                 [Series("residual", res, fit, "markers"),
                  Series("zero", zy, zx, "reference", in_legend=False)],
-                bounds=(*nice_bounds(_nums(values)), None, None))
+                bounds=(*nice_bounds(values), None, None))
     if model.keys is not None:
         _row_order(board, model, res, rows)
     return fit, _pick(fit_cells, rows)
@@ -124,11 +120,11 @@ def _diagonal(board: ChartSheet, model: ModelData, loc: Located, obs: Span,
     fit_cells = loc.column(f"sf_{tag}_fitted")
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values: list[Scalar] = list(fit_cells.values) + list(obs_values)
+    values = np.concatenate([numbers(fit_cells.values), numbers(obs_values)])
     ends = board.column("45° line", [extreme("MIN", [whole, obs.ref()], values),
                                      extreme("MAX", [whole, obs.ref()], values)])
     board.gap()
-    lo, hi = nice_bounds(_nums(values))  # the same on both axes: the 45° line is diagonal
+    lo, hi = nice_bounds(values)  # the same on both axes: the 45° line is diagonal
     board.chart("scatter", f"{yname}: observed against {fitted_word}"
                 + suffix(len(model.used)), f"{fitted_word} {yname}", f"observed {yname}",
                 [Series("rows", obs, fit, "markers"),
@@ -186,7 +182,7 @@ def _line(board: ChartSheet, model: ModelData, res: LeastSquaresResult, loc: Loc
     gy = board.column(f"fitted {model.y.name} (line)", cells)
     series = [Series("data", obs, x, "markers"), Series(f"fitted {shape_of(degree)}", gy, gx,
                                                        "line")]
-    ys = [float(model.Y[i]) for i in rows] + _nums([v for _, v in cells])
+    ys = [float(model.Y[i]) for i in rows] + numbers([v for _, v in cells]).tolist()
     band = _band(board, model, res, lo, hi)
     if band is not None:
         bx, blo, bhi, level, values = band
@@ -255,8 +251,8 @@ def strip_charts(model: ModelData, fitted: Fitted[StripMeanResult],
                          copy_cells(loc.column(f"sf_{model.tag}_means")))
     board.gap()
     xv = [float(model.X[i, 0]) for i in rows]
-    ys = [float(model.Y[i]) for i in rows] + _nums(
-        list(loc.column(f"sf_{model.tag}_means").values))
+    ys = [float(model.Y[i]) for i in rows] + numbers(
+        loc.column(f"sf_{model.tag}_means").values).tolist()
     board.chart("scatter", f"{model.y.name} against {model.xs[0].name}: data and strip means "
                 f"(width {res.width_:g})" + suffix(n), model.xs[0].name, model.y.name,
                 [Series("data", obs, xs[0], "markers"),

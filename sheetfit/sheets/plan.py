@@ -80,8 +80,7 @@ def decimals_shown(values: Sequence[object] | np.ndarray, most: int = 4) -> int:
     data kept to the cent give 2, whole counts give 0.
     """
     if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
-        x = values.astype(float)
-        x = x[np.isfinite(x)]
+        x = values
     elif isinstance(values, np.ndarray):
         return decimals_shown(values.tolist(), most)
     elif all(type(v) is float for v in values):
@@ -91,10 +90,22 @@ def decimals_shown(values: Sequence[object] | np.ndarray, most: int = 4) -> int:
         x = np.array([float(v) for v in values if isinstance(v, (int, float))
                       and not isinstance(v, bool) and math.isfinite(float(v))], dtype=float)
     for d in range(most + 1):
-        scaled = x * float(10 ** d)  # as v * 10 ** d, element by element
-        if np.all(np.abs(scaled - np.round(scaled)) <= 1e-6 * np.maximum(1.0, np.abs(x) * float(10 ** d))):
+        if all(_shows(x[a:a + _BLOCK], d) for a in range(0, len(x), _BLOCK)):
             return d
     return most
+
+
+#: Values checked at a time by ``decimals_shown`` (no temporaries the length of a column).
+_BLOCK = 1 << 16
+
+
+def _shows(x: np.ndarray, d: int) -> bool:
+    """Whether ``d`` decimals write every finite value of ``x`` exactly."""
+    x = x.astype(float)
+    x = x[np.isfinite(x)]
+    scaled = x * float(10 ** d)  # as v * 10 ** d, element by element
+    return bool(np.all(np.abs(scaled - np.round(scaled))
+                       <= 1e-6 * np.maximum(1.0, np.abs(x) * float(10 ** d))))
 
 
 def decimal_style(values: Sequence[object] | np.ndarray, most: int = 4, answer: bool = False,
@@ -300,10 +311,17 @@ class SheetPlan:
     def is_free(self, row: int, col: int) -> bool:
         return (row, col) not in self._taken and self._run_at(row, col) is None
 
-    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar]:
-        """Cached values planned in rows row1..row2 of a column (None where nothing is)."""
+    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar] | np.ndarray:
+        """Cached values planned in rows row1..row2 of a column (None where nothing is);
+        inside one run of numbers, a read-only view of its float64 values (a chart reads
+        a whole 1,000,000-row column; a list of floats would cost 32 bytes a row)."""
         run = self._run_at(row1, col)
         if run is not None and row2 <= run.last:
+            held = run.values
+            if isinstance(held, np.ndarray) and held.dtype == np.float64:
+                view = held[row1 - run.row0:row2 - run.row0 + 1].view()
+                view.flags.writeable = False
+                return view
             return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
         return [self.value_at(r, col) for r in range(row1, row2 + 1)]
 
