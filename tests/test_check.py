@@ -10,7 +10,7 @@ import zipfile
 from pathlib import Path
 
 import pytest
-from books import line_rows, make_book, soffice_convert
+from books import READERS, line_rows, make_book, only_reader, soffice_convert
 from lo_edit import edit_in_libreoffice
 
 from sheetfit.check import CURRENT, EDITED, MISSING, STALE, check
@@ -251,13 +251,13 @@ def test_fingerprint_rederived_from_the_recipe_by_hand(tmp_path: Path) -> None:
     assert row[head.index("input fingerprint")] == h(text)[:16]
 
 
-@pytest.mark.parametrize("stream", [False, True], ids=["fast", "stream"])
-def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_path: Path,
+@pytest.mark.parametrize("reader", READERS)
+def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(reader: str, tmp_path: Path,
                                                              monkeypatch) -> None:
     """The bulk digests of a two-column area holding every kind of cell (0 and -0, repeated
     numbers and texts) equal SHA-256 of the README's tokens, written out here by hand, in
     recipe order (row by row, left to right), and the one-cell path (``digest_cell``) of
-    each cell; in both readers."""
+    each cell; in each reader."""
     import datetime as dt
 
     import xlsxwriter
@@ -265,7 +265,6 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_p
     from sheetfit.declare.fingerprint import area_digests, digest_cell
     from sheetfit.declare.refs import parse_areas
     from sheetfit.reader.package import open_package
-    from sheetfit.reader.values import BookValues
     from sheetfit.refresh import _values
 
     path = tmp_path / "kinds.xlsx"
@@ -297,18 +296,17 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(stream: bool, tmp_p
                 ws.write_number(r, c, v)
     wb.close()
     want = "".join(hashlib.sha256(tok.encode()).hexdigest()[:8] for row in cells for _, tok in row)
-    if stream:
-        monkeypatch.setattr(BookValues, "_fast", lambda self, name: None)
+    only_reader(monkeypatch, reader)
     pkg = open_package(path)
     with _values(pkg, path) as values:
         area = parse_areas("Data!$A$1:$B$9")[0]
         memo: dict = {}
-        assert area_digests(area, values, memo) == want
-        assert area_digests(area, values, memo) == want  # again, from the memo
+        assert area_digests(area, values, memo).hex() == want
+        assert area_digests(area, values, memo).hex() == want  # again, from the memo
         one_by_one = "".join(digest_cell(values.sheet("Data").get(r, c))
                              for r in range(1, 10) for c in (1, 2))
         assert one_by_one == want
-        assert values.readers["Data"] == ("stream" if stream else "fast")
+        assert values.readers["Data"] == reader
 
 
 def test_identifier_change_names_the_key_range(tmp_path: Path) -> None:
@@ -401,3 +399,20 @@ def test_example_books_stay_current_after_a_libreoffice_resave(book: str, tmp_pa
     saved = soffice_convert(p, tmp_path / "lo")
     found = check(saved)
     assert found.exit_status == 0, found.text()
+
+
+@pytest.mark.parametrize("text", ["0a1b2c3d" * 3 + "ffffffff", "0A1B2C3D", "0a1b2c3", "zz not hex"])
+def test_range_record_digest_is_the_hash_of_the_text_on_the_sheet(text: str) -> None:
+    """Digest text read back from ``sf inputs``: whole cells of lower-case hex are held
+    packed (4 bytes a cell), anything else as the text itself; either way the range digest
+    is SHA-256 of the range text, a newline and the digest text (the README's recipe,
+    written out here with hashlib), and each cell reads back as its 8 characters."""
+    from sheetfit.declare.fingerprint import RangeRecord
+
+    rr = RangeRecord.from_text("x", "sf_m_x", "Data!$B$2:$B$5", text)
+    want = hashlib.sha256(f"Data!$B$2:$B$5\n{text}".encode()).hexdigest()[:16]
+    assert rr.digest == want
+    assert (rr.text is None) == (text in ("0a1b2c3d" * 3 + "ffffffff",))
+    assert rr.n_cells == len(text) // 8
+    assert [rr.cell(i) for i in range(rr.n_cells)] == [text[8 * i:8 * i + 8]
+                                                       for i in range(len(text) // 8)]

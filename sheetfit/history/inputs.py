@@ -48,8 +48,9 @@ def plan_inputs(records: Sequence[InputRecord]) -> SheetPlan:
             s.put(r, 4, rr.n_cells, style="int")
             s.put(r, 5, rr.digest)
             s.put(r, 6, fp)
-            if rr.cells:  # cut into cells only as the sheet is written
-                s.span(r, 7, Pieces(rr.cells, CHUNK * DIGEST_HEX))
+            if rr.n_cells or rr.text:  # cut into cells only as the sheet is written
+                s.span(r, 7, Pieces(rr.text, CHUNK * DIGEST_HEX) if rr.text is not None
+                       else Pieces(rr.packed, CHUNK * DIGEST_HEX // 2))
             r += 1
         s.put(r, 0, rec.tag, style="label")
         s.put(r, 1, _SETTINGS)
@@ -76,6 +77,6 @@ def read_inputs(values: BookValues) -> dict[str, tuple[InputRecord, str]]:
             continue
         cells = "".join(str(v) for v in row[7:] if v is not None)
         ranges.setdefault(key, []).append(
-            RangeRecord(role, str(row[2] or ""), str(row[3] or ""), cells))
+            RangeRecord.from_text(role, str(row[2] or ""), str(row[3] or ""), cells))
     return {key: (InputRecord(tag, tuple(ranges.get(key, [])), text), fp)
             for key, (tag, text, fp) in settings.items()}

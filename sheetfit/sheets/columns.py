@@ -138,9 +138,10 @@ class Span:
 
 class Pieces(Sequence[str]):
     """A text cut into consecutive pieces of ``size`` characters (the last may be
-    shorter), each made only when asked for."""
+    shorter), each made only when asked for; given bytes, pieces of ``size`` bytes written
+    as hex text (the packed cell digests of ``sf inputs``)."""
 
-    def __init__(self, text: str, size: int) -> None:
+    def __init__(self, text: str | bytes, size: int) -> None:
         if size < 1:
             raise ValueError("pieces of at least one character")
         self.text, self.size = text, size
@@ -155,4 +156,5 @@ class Pieces(Sequence[str]):
         if not -n <= k < n:
             raise IndexError(k)
         k %= n
-        return self.text[k * self.size:(k + 1) * self.size]
+        piece = self.text[k * self.size:(k + 1) * self.size]
+        return piece.hex() if isinstance(piece, bytes) else piece
