@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from . import __version__
+from ._memory import release
 from .carry import read_kept
 from .declare.model import ModelData, find_models
 from .errors import (
@@ -173,14 +174,17 @@ def refresh(book: str | Path, out: str | Path | None = None,
                 models = read_models(pkg, source, file, values)
                 before = read_history(pkg, values)  # the log, forecasts, notes to carry on
             del values  # the cells read stay in memory no longer than the read phase
+            release()
             phase("fit")
             fits = [(m, fit_model(m)) for m in models]
+            release()
             phase("write")
             stamp = (now or dt.datetime.now(dt.UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
             plan, summaries = plan_book(fits, stamp)
             plan.sheets += plan_history(fits, summaries, before, stamp, __version__)
             with tempfile.TemporaryDirectory(prefix="sheetfit-") as tmp:
                 rendered = render(plan, Path(tmp) / "owned.xlsx", date1904=pkg.date1904)
+                release()
                 phase("graft")
                 graft(pkg, rendered, [OutputName(n, t) for n, t in plan.names], dest)
     except SheetfitError as exc:
