@@ -306,9 +306,12 @@ def test_blockwise_factorisation_agrees_with_one_piece(case_name, monkeypatch) -
     whole = (influence(res), coef_table(res), breusch_pagan(res), intervals(res, X_new))
     from sheetfit.fit import inference as inf_mod
 
+    assert influence(res).leverage is whole[0].leverage  # factored once per result
     monkeypatch.setattr(inf_mod, "_QR_ROWS", 7)
+    inf_mod._LEVERAGES.clear()  # else the one-piece leverages come back from the memo
     assert len(inf_mod._blocks(rows)) > 4  # the block path is the one taken
     blocked = (influence(res), coef_table(res), breusch_pagan(res), intervals(res, X_new))
+    assert blocked[0].leverage is not whole[0].leverage
     tol = {"rtol": 1e-12, "atol": 1e-15}
     np.testing.assert_allclose(blocked[0].leverage, whole[0].leverage, **tol)
     np.testing.assert_allclose(blocked[0].cooks, whole[0].cooks, **tol)

@@ -15,6 +15,7 @@ Numeric code only: arrays in, arrays out, no workbook knowledge.
 from __future__ import annotations
 
 import math
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -202,11 +203,25 @@ def _factor(res: LeastSquaresResult) -> tuple[_Basis, list[tuple[int, int]], lis
     return basis, blocks, rs, top, r
 
 
+#: Leverages already computed, by fitted result (influence, HC3 and the words of a sheet
+#: all need them; one refresh factored a million-row design three times for them).
+_LEVERAGES: weakref.WeakKeyDictionary[LeastSquaresResult, np.ndarray] = (
+    weakref.WeakKeyDictionary())
+
+
 def _leverage(res: LeastSquaresResult) -> np.ndarray:
     """Diagonal of the hat matrix, Σⱼ Qᵢⱼ² with Q from the Householder QR of a
     well-conditioned basis of the same column space (``_Basis``). Above ``_QR_ROWS`` rows
     Q is put together block by block (each block's own Q times its rows of the stacked
-    R's Q): the same backward-stable factorisation without Q held whole."""
+    R's Q): the same backward-stable factorisation without Q held whole. Computed once per
+    result (read-only)."""
+    found = _LEVERAGES.get(res)
+    if found is None or len(found) != res.n_:
+        found = _LEVERAGES[res] = readonly(_leverage_of(res))
+    return found
+
+
+def _leverage_of(res: LeastSquaresResult) -> np.ndarray:
     basis, blocks, rs, top, _ = _factor(res)
     h = np.empty(res.n_)
     off = 0
@@ -339,7 +354,7 @@ def influence(res: LeastSquaresResult) -> Influence:
         cooks = student**2 * h / (p * one_minus)
         press = e / one_minus
     loo = math.sqrt(float(np.mean(press**2))) if bool(ok.all()) else math.nan
-    return Influence(readonly(h), readonly(student), readonly(cooks), readonly(press), loo)
+    return Influence(h, readonly(student), readonly(cooks), readonly(press), loo)
 
 
 def intervals(res: LeastSquaresResult, X_new: np.ndarray, level: float = 0.95) -> Intervals:
