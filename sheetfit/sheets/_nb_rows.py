@@ -35,6 +35,7 @@ from .common import (
     key_width,
     plan_left_out,
     ref_parts,
+    sheet_rows,
 )
 from .plan import SheetPlan, decimal_style
 
@@ -324,7 +325,7 @@ def fitted_sheet(model: ModelData, res: _Result, trail: Trail, ns: SheetPlan, pr
         fs.put(3, c, h, style="head")
     used = np.asarray(model.used, dtype=np.int64)
     n = len(used)
-    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    fs.run(0, FIRST_ROW, sheet_rows(used, y.first_row), style="row")
     key_runs(fs, FIRST_ROW, 1, model.keys, used, key_styles(model.keys))
     fs.run(ob, FIRST_ROW, _vals(res.y_), template("=", *ref_parts(y, used)), ystyle)
     fitted = _vals(res.fitted_)

@@ -45,6 +45,7 @@ __all__ = [
     "plan_residual_sheet",
     "put_keys",
     "ref_parts",
+    "sheet_rows",
     "value_parts",
 ]
 
@@ -91,12 +92,12 @@ def key_formula(cell: str) -> str:
     return f'=IF(ISBLANK({cell}),"",{cell})'
 
 
-#: The last sheet-row vector made by ``_sheet_rows``: (its rows ``idx``, first row, the
+#: The last sheet-row vector made by ``sheet_rows``: (its rows ``idx``, first row, the
 #: vector), all weak, so that columns starting on the same row share one vector.
 _last_rows: list[tuple[weakref.ref[np.ndarray], int, weakref.ref[np.ndarray]] | None] = [None]
 
 
-def _sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
+def sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
     """``idx + first_row`` as int64; the same array again for the same ``idx`` array and
     first row while the earlier one is still in use (one vector for every attribute of
     a million-row model instead of one each). Planners never change ``idx`` in place."""
@@ -105,6 +106,7 @@ def _sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
             and memo[1] == first_row and (rows := memo[2]()) is not None:
         return rows
     rows = np.asarray(idx, dtype=np.int64) + first_row
+    rows.setflags(write=False)  # shared by several runs
     if isinstance(idx, np.ndarray):
         _last_rows[0] = (weakref.ref(idx), first_row, weakref.ref(rows))
     return rows
@@ -113,7 +115,7 @@ def _sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
 def ref_parts(column: Column, idx: np.ndarray | Sequence[int]) -> tuple[Part, ...]:
     """Template parts (``sheets.columns.template``) of ``column``'s cells in the model's
     rows ``idx``: ``Data!C`` and the sheet rows, i.e. what ``Column.cell(i)`` writes."""
-    rows = _sheet_rows(idx, column.first_row)
+    rows = sheet_rows(idx, column.first_row)
     return (f"{quote_sheet(column.sheet)}!{col_letter(column.col)}", rows)
 
 
@@ -285,7 +287,7 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np
                if model.Y.dtype != object else "num")
     used = np.asarray(model.used, dtype=np.int64)
     n = len(used)
-    rs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    rs.run(0, FIRST_ROW, sheet_rows(used, y.first_row), style="row")
     key_runs(rs, FIRST_ROW, 1, keys, used, key_styles(keys))
     rs.run(ob, FIRST_ROW, np.asarray(model.Y, dtype=float), template("=", *ref_parts(y, used)), amount)
     f = np.asarray(fitted, dtype=float)

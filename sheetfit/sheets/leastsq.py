@@ -44,6 +44,7 @@ from .common import (
     plan_residual_sheet,
     put_keys,
     ref_parts,
+    sheet_rows,
     value_parts,
 )
 from .plan import Planned, SheetPlan, decimal_style
@@ -146,7 +147,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     term_styles = [decimal_style(t, fmt=model.xs[j].fmt if d == 1 else None)
                    for t, (j, d) in zip(tvals, specs, strict=True)]
     used = np.asarray(model.used, dtype=np.int64)
-    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    fs.run(0, FIRST_ROW, sheet_rows(used, y.first_row), style="row")
     key_runs(fs, FIRST_ROW, 1, keys, used, kstyles)
     fs.run(obs_col, FIRST_ROW, np.asarray(model.Y, dtype=float), template("=", *ref_parts(y, used)), amount)
     fitted, term_parts = _predictions(coef, coef_ref, intercept, specs,
@@ -201,7 +202,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
         term_rngs=term_rngs, press_rng=rs.col_range(rows.press_col, FIRST_ROW, last),
         rows=rows, method_note=res.method_note_, version=version,
         left_out=len(model.left_out),
-        range_lines=range_lines, data_rows=np.asarray(model.used, dtype=np.int64) + y.first_row,
+        range_lines=range_lines, data_rows=sheet_rows(used, y.first_row),
         rule=rule_fit, lay=lay, answer=answer, boot=boot,
         new_keys=None if model.new is None else model.new.keys,
         amount_style=derived, answer_style=decimal_style(model.Y, least=2, fmt=y.fmt,

@@ -36,6 +36,7 @@ from .common import (
     plan_residual_sheet,
     put_keys,
     ref_parts,
+    sheet_rows,
 )
 from .plan import Planned, SheetPlan, decimal_style
 
@@ -164,7 +165,7 @@ def plan_strip(model: ModelData, fitted: Fitted[StripMeanResult], version: str) 
     used = np.asarray(model.used, dtype=np.int64)
     rc = np.asarray(res.row_centre_, dtype=np.int64)
     fit_col = ob + 6
-    fs.run(0, FIRST_ROW, used + y.first_row, style="row")
+    fs.run(0, FIRST_ROW, sheet_rows(used, y.first_row), style="row")
     key_runs(fs, FIRST_ROW, 1, model.keys, used, key_styles(model.keys))
     fs.run(ob, FIRST_ROW, np.asarray(res.y_, dtype=float), template("=", *ref_parts(y, used)),
            ystyle)
