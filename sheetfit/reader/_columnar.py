@@ -36,7 +36,7 @@ from __future__ import annotations
 import datetime as dt
 import itertools
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from typing import IO, Any
 
@@ -44,7 +44,7 @@ import numpy as np
 
 from ._sheetxml import TEXT_CAP
 
-__all__ = ["CHUNK", "Columnar", "Irregular", "Read", "read_columns"]
+__all__ = ["CHUNK", "Columnar", "Irregular", "Read", "located", "read_columns", "sheet_chunks"]
 
 #: Bytes of inflated XML parsed at a time (the chunk is cut after its last ``</row>``).
 CHUNK = 2 << 20
@@ -285,6 +285,7 @@ class _Chunk:
     v_start: np.ndarray  # per cell: first byte of the <v> text, -1 when none
     v_end: np.ndarray
     has_f: np.ndarray
+    f_at: np.ndarray  # per cell: position of its <f, -1 when none
     is_at: np.ndarray  # per cell: position of <is>, -1 when none
     empty: np.ndarray  # per cell: self-closing start tag
 
@@ -329,10 +330,13 @@ def _locate(buf: bytes) -> _Chunk | None:
             raise Irregular("a value outside a cell, or two in one")
         v_start[owner], v_end[owner] = v_open + 3, v_close
     has_f = np.zeros(len(cells), dtype=bool)
+    f_at = np.full(len(cells), -1, dtype=np.int64)
     f_open = _starts(a, lt, ord("f"), (_SPACE, _GT, _SLASH))
     if len(f_open):
         owner = _owner(cells, tag_ends, f_open, inside_tag=False)
-        has_f[owner[owner >= 0]] = True
+        keep = owner >= 0
+        has_f[owner[keep]] = True
+        f_at[owner[keep]] = f_open[keep]
     is_at = np.full(len(cells), -1, dtype=np.int64)
     is_open = _starts(a, lt, ord("i"), (ord("s"),))
     is_open = is_open[a[np.minimum(is_open + 3, n - 1)] == _GT]
@@ -340,7 +344,8 @@ def _locate(buf: bytes) -> _Chunk | None:
         owner = _owner(cells, tag_ends, is_open, inside_tag=False)
         keep = owner >= 0
         is_at[owner[keep]] = is_open[keep]
-    return _Chunk(a, cells, tag_ends, rows, cols, types, v_start, v_end, has_f, is_at, empty)
+    return _Chunk(a, cells, tag_ends, rows, cols, types, v_start, v_end, has_f, f_at, is_at,
+                  empty)
 
 
 def _numbers(ch: _Chunk, which: np.ndarray) -> np.ndarray | None:
@@ -410,7 +415,6 @@ class _Builder:
         self.rows: dict[int, list[np.ndarray | tuple[int, int]]] = {}
         self.numbers: dict[int, list[np.ndarray]] = {}
         self.others: dict[int, dict[int, Any]] = {}
-        self.last = (0, 0)  # (row, col) of the last cell seen: cells come in order
 
     def add_numbers(self, rows: np.ndarray, cols: np.ndarray, values: np.ndarray) -> None:
         if not len(rows):
@@ -456,16 +460,9 @@ def _rows(parts: list[np.ndarray | tuple[int, int]]) -> tuple[np.ndarray | None,
     return (None if int(rows[-1]) - first + 1 == len(rows) else rows), first
 
 
-def _chunk(buf: bytes, out: _Builder, read: Read, strings: Callable[[], list[str]]) -> None:
-    """Read the cells of one chunk into ``out`` and ``read``."""
-    ch = _locate(buf)
-    if ch is None:
-        return
-    order = ch.rows * (1 << 16) + ch.cols
-    last = out.last[0] * (1 << 16) + out.last[1]
-    if (np.diff(order) <= 0).any() or order[0] <= last:
-        raise Irregular("cells out of order or given twice")
-    out.last = (int(ch.rows[-1]), int(ch.cols[-1]))
+def _chunk(buf: bytes, ch: _Chunk, out: _Builder, read: Read,
+           strings: Callable[[], list[str]]) -> None:
+    """Read the located cells of one chunk into ``out`` and ``read``."""
     plain = (ch.types == b"n") & (ch.v_end > ch.v_start) & (ch.is_at < 0)
     which = np.flatnonzero(plain)
     values = _numbers(ch, which) if len(which) else np.zeros(0)
@@ -497,13 +494,11 @@ def _chunk(buf: bytes, out: _Builder, read: Read, strings: Callable[[], list[str
             out.add_other(row, col, raw)
 
 
-def read_columns(fh: IO[bytes], strings: Callable[[], list[str]], chunk: int = CHUNK) -> Read:
-    """Every cell of one UTF-8 worksheet part, as column arrays and maps.
-
-    ``strings`` gives the book's shared strings (called only if a cell refers to one).
-    Raises :class:`Irregular` when the part is not in the shape this reader takes.
-    """
-    out, read = _Builder(), Read(Columnar({}))
+def sheet_chunks(fh: IO[bytes], chunk: int | None = None) -> Iterator[bytes]:
+    """The sheet data of one UTF-8 worksheet part, a chunk at a time, each cut after a
+    ``</row>`` (so no cell is split). Raises :class:`Irregular` when there is no plain,
+    unprefixed sheet data. ``chunk``: bytes read at a time (``CHUNK`` when not given)."""
+    chunk = chunk or CHUNK
     pending = b""
     started = finished = False
     while not finished:
@@ -523,7 +518,7 @@ def read_columns(fh: IO[bytes], strings: Callable[[], list[str]], chunk: int = C
                 pending = data
                 continue
             if data[close - 1] == _SLASH:  # <sheetData/>
-                break
+                return
             data = data[close + 1:]
             started = True
         end = data.find(b"</sheetData>")
@@ -537,6 +532,33 @@ def read_columns(fh: IO[bytes], strings: Callable[[], list[str]], chunk: int = C
                 pending = data
                 continue
             body, pending = data[:cut + 6], data[cut + 6:]
-        _chunk(body, out, read, strings)
+        yield body
+
+
+def located(fh: IO[bytes], chunk: int | None = None) -> Iterator[tuple[bytes, _Chunk]]:
+    """Each chunk of sheet data with its cells located (``_locate``), cells checked to
+    come in order, each once."""
+    last = 0
+    for body in sheet_chunks(fh, chunk):
+        ch = _locate(body)
+        if ch is None:
+            continue
+        order = ch.rows * (1 << 16) + ch.cols
+        if (np.diff(order) <= 0).any() or order[0] <= last:
+            raise Irregular("cells out of order or given twice")
+        last = int(order[-1])
+        yield body, ch
+
+
+def read_columns(fh: IO[bytes], strings: Callable[[], list[str]],
+                 chunk: int | None = None) -> Read:
+    """Every cell of one UTF-8 worksheet part, as column arrays and maps.
+
+    ``strings`` gives the book's shared strings (called only if a cell refers to one).
+    Raises :class:`Irregular` when the part is not in the shape this reader takes.
+    """
+    out, read = _Builder(), Read(Columnar({}))
+    for body, ch in located(fh, chunk):
+        _chunk(body, ch, out, read, strings)
     read.cells = out.build()
     return read
