@@ -21,16 +21,14 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from dataclasses import asdict, dataclass, field
-from itertools import repeat
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from . import __version__
-from .a1 import cell_ref, col_index, quote_sheet
+from .a1 import cell_ref, quote_sheet
 from .carry import read_kept
 from .declare.fingerprint import InputRecord, RangeRecord, cell_addresses
 from .declare.model import ModelData, find_models
@@ -41,7 +39,7 @@ from .history.inputs import read_inputs
 from .methods import REGISTRY
 from .owned import INDEX_SHEET, INPUTS_SHEET
 from .reader.columns import CODE
-from .reader.formulas import CellKind, CellKinds, read_cell_kinds
+from .reader.formulas import CellKind, SheetKinds, read_cell_kinds
 from .reader.package import Package, open_package
 from .reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, BookValues, Value
 from .sheets.columns import Run
@@ -58,9 +56,6 @@ EXIT_NOT_CURRENT = 3
 REL, ABS = 1e-9, 1e-12
 #: Findings listed per kind before the rest are only counted.
 LISTED = 5
-
-_PLAIN_REF = re.compile(
-    r"^=?(?:'(?P<qs>(?:[^']|'')+)'|(?P<ps>[^'!,()\s]+))!\$?(?P<c>[A-Z]{1,3})\$?(?P<r>[0-9]+)$")
 
 
 @dataclass
@@ -290,7 +285,7 @@ def _differing(whole: SheetPlan, alone: SheetPlan | None) -> set[tuple[int, int]
 
 def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
                  index: dict[str, tuple[str, str, str]], owned: dict[str, str],
-                 kinds: dict[str, CellKinds], values: BookValues,
+                 kinds: dict[str, SheetKinds], values: BookValues,
                  plans: _BookPlans) -> ModelCheck:
     now = model.record
     if now is None:
@@ -400,7 +395,7 @@ def _shown(v: Value) -> str:
 
 
 def _against_plan(planned: list[tuple[SheetPlan, set[tuple[int, int]]]],
-                  sheets: dict[str, str], kinds: dict[str, CellKinds],
+                  sheets: dict[str, str], kinds: dict[str, SheetKinds],
                   values: BookValues) -> list[Edit]:
     """Compare each result sheet of an up-to-date model with its fresh plan (except the
     cells in ``skip``)."""
@@ -414,7 +409,7 @@ def _against_plan(planned: list[tuple[SheetPlan, set[tuple[int, int]]]],
     return edits
 
 
-def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
+def _compare_sheet(plan: SheetPlan, title: str, kinds: SheetKinds,
                    values: BookValues, skip: set[tuple[int, int]]) -> list[Edit]:
     sv = values.sheet(title)
     edits = []
@@ -445,18 +440,18 @@ def _compare_sheet(plan: SheetPlan, title: str, kinds: CellKinds,
             f = run.formulas(i, i + 1)
             compare(run.row0 + i, run.col, run.scalars(i, i + 1)[0], f[0] if f else None)
 
-    def covered(pos: tuple[int, int]) -> bool:
-        return pos in seen or any(a <= pos[0] <= b for a, b in spans.get(pos[1], ()))
-
-    for pos in sorted(p for p in kinds if not covered(p)):
+    for pos in kinds.outside(spans):  # cells the runs do not cover
+        if pos in seen:
+            continue
         v = sv.get(*pos)
-        if v.kind != BLANK or kinds[pos].formula is not None:
+        kind = kinds.get(pos)
+        if v.kind != BLANK or (kind is not None and kind.formula):
             edits.append(Edit(title, cell_ref(*pos), f"holds {_shown(v)}, which sheetfit did "
                               "not write (the next refresh replaces this sheet)"))
     return edits
 
 
-def _run_suspects(run: Run, kinds: CellKinds, sv: Any,
+def _run_suspects(run: Run, kinds: SheetKinds, sv: Any,
                   skip: set[tuple[int, int]]) -> list[int] | None:
     """Items of a run of numbers whose cell may differ from the plan (the rest certainly
     agree: a number within REL/ABS and, for a formula run, a formula with its result), found
@@ -473,17 +468,13 @@ def _run_suspects(run: Run, kinds: CellKinds, sv: Any,
     with np.errstate(invalid="ignore"):
         close = is_num & (np.abs(planned - got) <= np.maximum(
             ABS, REL * np.maximum(np.abs(planned), np.abs(got))))
-    bad = (~close).tolist()
-    has_formula = run.formula is not None
-    out = []
-    for i, k in enumerate(map(kinds.get, zip(range(r1, r1 + run.n), repeat(col)))):
-        if has_formula:
-            fine = k is not None and k.formula is not None and (not k.result or not bad[i])
-        else:
-            fine = (k is None or k.formula is None) and not bad[i]
-        if not fine and (r1 + i, col) not in skip:
-            out.append(i)
-    return out
+    held, formula, result = kinds.column(col, r1, run.last + 1)
+    if run.formula is not None:
+        fine = formula & (~result | close)
+    else:
+        fine = ~(held & formula) & close
+    out = np.flatnonzero(~fine).tolist()
+    return [i for i in out if (r1 + i, col) not in skip] if skip else out
 
 
 def _cell_edit(value: Any, formula: str | None, kind: CellKind | None, v: Value) -> str:
@@ -491,63 +482,95 @@ def _cell_edit(value: Any, formula: str | None, kind: CellKind | None, v: Value)
     if formula is not None:
         if kind is None:
             return "its formula was cleared"
-        if kind.formula is None:
+        if not kind.formula:
             return f"its formula {formula[:40]} was replaced by {_shown(v)}"
         if v.kind == UNSAVED or not kind.result:
             return ""  # counted by the data-side pass, once per sheet
         if not _same(value, v):
             return f"shows {_shown(v)} where its formula gave {value!r:.30}"
         return ""
-    if kind is not None and kind.formula is not None:
+    if kind is not None and kind.formula:
         return f"a formula was typed where sheetfit wrote {value!r:.30}"
     if not _same(value, v):
         return f"holds {_shown(v)} where sheetfit wrote {value!r:.30}"
     return ""
 
 
-def _data_side(sheets: dict[str, str], kinds: dict[str, CellKinds],
+def _data_side(sheets: dict[str, str], kinds: dict[str, SheetKinds],
                values: BookValues) -> list[Edit]:
-    """Owned references to a user's cell whose cached value differs from that cell."""
+    """Owned references to a user's cell whose cached value differs from that cell, and
+    owned formulas stored without a result. Compared a column at a time: the references of
+    one owned column to one column of a user's sheet, as arrays."""
     edits: list[Edit] = []
     owned = {t.casefold() for t in kinds}
-    user: dict[str, Any] = {}  # the user's sheets the references name, read once
     for title in sheets:
-        sv = values.sheet(title)
-        unsaved = 0
-        for (r, c), (formula, result) in kinds[title].items():
-            if formula is None:
+        k = kinds[title]
+        unsaved = k.unsaved()
+        refs = k.refs
+        groups: dict[tuple[int, str, int], list[int]] = {}
+        for i, (c, sheet, tc) in enumerate(zip(refs.cols, refs.sheets, refs.to_cols,
+                                               strict=True)):
+            if sheet.casefold() not in owned:
+                groups.setdefault((c, sheet, tc), []).append(i)
+        found: list[tuple[int, int, str]] = []
+        for (c, sheet, tc), idx in groups.items():
+            try:
+                values.sheet(sheet)
+            except KeyError:
+                continue  # a sheet the book does not have
+            rows = np.array([refs.rows[i] for i in idx], dtype=np.int64)
+            _, _, result = k.column(c, int(rows.min()), int(rows.max()))
+            stored = result[rows - rows.min()]  # without a result: counted above
+            idx = [i for i, s in zip(idx, stored.tolist(), strict=True) if s]
+            if not idx:
                 continue
-            if not result:
-                unsaved += 1
-                continue
-            m = _PLAIN_REF.match(formula.strip()) if formula else None
-            if m is None:  # not a plain reference (or a shared formula's follower)
-                continue
-            sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
-            if sheet.casefold() in owned:
-                continue
-            v = sv.get(r, c)
-            if v.kind == UNSAVED:
-                unsaved += 1
-                continue
-            if sheet not in user:
-                try:
-                    user[sheet] = values.sheet(sheet)
-                except KeyError:
-                    user[sheet] = None
-            target_sheet = user[sheet]
-            if target_sheet is None:
-                continue
-            target = target_sheet.get(int(m.group("r")), col_index(m.group("c")))
-            if not _same_value(v, target):
-                edits.append(Edit(title, cell_ref(r, c), (
-                    f"shows {_shown(v)} but {formula.lstrip('=')} holds {_shown(target)} "
+            rows = rows[stored]
+            to_rows = np.array([refs.to_rows[i] for i in idx], dtype=np.int64)
+            for j in _differing_refs(values, title, c, rows, sheet, tc, to_rows):
+                i = idx[j]
+                r = refs.rows[i]
+                v = values.sheet(title).get(r, c)
+                target = values.sheet(sheet).get(refs.to_rows[i], tc)
+                ref = f"{quote_sheet(sheet)}!{cell_ref(refs.to_rows[i], tc)}"
+                found.append((r, c, (
+                    f"shows {_shown(v)} but {ref} holds {_shown(target)} "
                     "(the data changed and the book was saved without recalculating)")))
+        edits += [Edit(title, cell_ref(r, c), what) for r, c, what in sorted(found)]
         if unsaved:
             edits.append(Edit(title, "", (
                 f"{unsaved} formula cells have no saved result (the book was saved by a "
                 "program that does not calculate)")))
     return edits
+
+
+def _differing_refs(values: BookValues, title: str, col: int, rows: np.ndarray, sheet: str,
+                    to_col: int, to_rows: np.ndarray) -> list[int]:
+    """Which of the owned cells (``rows`` of column ``col`` of ``title``) that refer to
+    cells (``to_rows`` of column ``to_col`` of ``sheet``) show a cached value other than
+    the referred cell's (``_same_value``), as indices; cells read as formulas without a
+    result are left to the count of those."""
+    mine = values.column(title, col, int(rows.min()), int(rows.max()))
+    theirs = values.column(sheet, to_col, int(to_rows.min()), int(to_rows.max()))
+    a_at, b_at = rows - mine.row1, to_rows - theirs.row1
+    ka, kb = mine.kind[a_at], theirs.kind[b_at]
+    na, nb = mine.number[a_at], theirs.number[b_at]
+    num, blank = CODE[NUMBER], CODE[BLANK]
+    unsaved = ka == CODE[UNSAVED]
+    both = (ka == num) & (kb == num)
+    with np.errstate(invalid="ignore"):
+        close = (np.abs(na - nb) <= np.maximum(ABS, REL * np.maximum(np.abs(na), np.abs(nb))))
+        close |= np.isnan(na) & np.isnan(nb)
+        # a reference to a blank cell shows 0
+        blank_ok = ((ka == blank) & ((kb == blank) | ((kb == num) & (nb == 0)))) | (
+            (kb == blank) & (ka == num) & (na == 0))
+    same = np.where(both, close, blank_ok)
+    other = ~both & ~blank_ok & (ka == kb) & (ka != num) & (ka != blank)
+    bad = []
+    for j in np.flatnonzero(~same & ~unsaved).tolist():
+        if other[j] and mine.value(int(a_at[j])).text == theirs.value(int(b_at[j])).text:
+            continue
+        bad.append(j)
+    return bad
 
 
 def _same_value(a: Value, b: Value) -> bool:

@@ -184,6 +184,39 @@ def test_edited_when_a_value_cell_or_a_cached_result_changes(tmp_path: Path) -> 
     assert a.status == EDITED and any(e.cell == cell for e in a.edits)
 
 
+def test_data_changed_without_recalculation_names_each_stale_reference(tmp_path: Path) -> None:
+    """A data cell changed by a program that does not recalculate (the XML edited, every
+    owned formula's cached value kept): the model is stale, and each owned plain reference
+    to that cell (the fitted sheet's copy of the attribute, the charts sheet's helper
+    column) is named with its cached value and the cell's new one. Formula results then
+    stripped from three owned cells are counted."""
+    p = _book(tmp_path)
+    _set_xml(p, _part_of(p, "Data"), "B6", "999")
+    a = _status(check(p), "a")
+    assert a.status == STALE
+    stale = [e for e in a.edits if "saved without recalculating" in e.what]
+    assert stale and all("but Data!B6 holds 999" in e.what for e in stale)
+    assert {e.sheet for e in stale} == {sheet_title("a", "fitted"), sheet_title("a", "charts")}
+    fitted = _part_of(p, sheet_title("a", "fitted"))
+    text = zipfile.ZipFile(p).read(fitted).decode()
+    cells = re.findall(r'<c r="([A-Z]+\d+)"[^>]*><f>[^<]*</f><v>[^<]*</v></c>', text)[:3]
+    assert len(cells) == 3
+    tmp = p.with_suffix(".strip")
+    with zipfile.ZipFile(p) as zin, zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = zin.read(info)
+            if info.filename == fitted:
+                for c in cells:
+                    data = re.sub(rb'(<c r="' + c.encode() + rb'"[^>]*>(?:<f>[^<]*</f>))<v>[^<]*</v>',
+                                  rb"\1", data)
+            zout.writestr(info, data)
+    tmp.replace(p)
+    a = _status(check(p), "a")
+    counts = [e.what for e in a.edits if "no saved result" in e.what]
+    assert counts == ["3 formula cells have no saved result (the book was saved by a program "
+                      "that does not calculate)"]
+
+
 def test_openpyxl_edit_is_stale_with_the_range_named(tmp_path: Path) -> None:
     openpyxl = pytest.importorskip("openpyxl")
     p = _book(tmp_path)
@@ -329,22 +362,29 @@ def test_identifier_change_names_the_key_range(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize("book", ["delivery_costs", "field_jobs", "open_invoices"])
-def test_formula_scan_and_parse_agree(book: str, tmp_path: Path) -> None:
-    """The byte scan of result sheets finds the same cells, formulas and results as the
-    hardened parse, on every sheet of each refreshed example book."""
+def test_formula_scan_and_parse_agree(book: str, tmp_path: Path, monkeypatch) -> None:
+    """The chunked byte scan of result sheets finds the same cells, formula cells, stored
+    results and plain references as the hardened parse, on every sheet of each refreshed
+    example book, with chunks small enough to cut every sheet many times."""
     import io
 
+    from sheetfit.reader import _columnar
     from sheetfit.reader.formulas import _parse, _scan
 
+    monkeypatch.setattr(_columnar, "CHUNK", 512)
     out = tmp_path / "out.xlsx"
     refresh(Path(__file__).resolve().parents[1] / "example_books" / f"{book}.xlsx", out)
+    refs = 0
     with zipfile.ZipFile(out) as z:
         parts = [n for n in z.namelist() if n.startswith("xl/worksheets/sheet")]
         assert len(parts) > 5
         for n in parts:
             data = z.read(n)
-            scanned = _scan(data)
-            assert scanned is not None and scanned == _parse(io.BytesIO(data)), n
+            scanned = _scan(io.BytesIO(data))
+            assert scanned == _parse(io.BytesIO(data)), n
+            assert len(scanned) == len(scanned.cells())
+            refs += len(scanned.refs.rows)
+    assert refs > 0  # the data references of the fitted sheets were found
 
 
 def test_notes_typed_on_the_audit_sheet_are_not_edits(tmp_path: Path) -> None:
@@ -416,3 +456,45 @@ def test_range_record_digest_is_the_hash_of_the_text_on_the_sheet(text: str) -> 
     assert rr.n_cells == len(text) // 8
     assert [rr.cell(i) for i in range(rr.n_cells)] == [text[8 * i:8 * i + 8]
                                                        for i in range(len(text) // 8)]
+
+
+def test_formula_scan_reads_every_formula_shape_as_the_parse_does(monkeypatch) -> None:
+    """A crafted sheet with plain references (quoted sheet names with an entity and a
+    doubled quote, absolute, with spaces), a shared formula and its followers, an array
+    formula, a formula without a result, a typed empty text result and plain values: the
+    chunked scan (cut every 64 bytes) equals the hardened parse, cell kinds and references."""
+    import io
+
+    from sheetfit.reader import _columnar
+    from sheetfit.reader.formulas import CellKind, _parse, _scan
+
+    cells = [
+        '<c r="A1"><f>Data!B5</f><v>1</v></c>',
+        '<c r="B1"><f>\'My &amp; data\'!$C$7</f><v>2</v></c>',
+        '<c r="C1"><f>\'O\'\'Brien\'!D2</f><v>3</v></c>',
+        '<c r="D1"><f> Data!E9 </f><v>4</v></c>',
+        '<c r="E1"><f t="shared" ref="E1:E3" si="0">Data!F1*2</f><v>5</v></c>',
+        '<c r="F1"><f t="array" ref="F1">Data!G1</f><v>6</v></c>',
+        '<c r="G1"><f>SUM(Data!A1:A3)</f><v>7</v></c>',
+        '<c r="H1"><f>Data!B6</f></c>',
+        '<c r="I1" t="str"><f>""</f><v></v></c>',
+        '<c r="J1"><v>8</v></c>', '<c r="K1" s="2"/>',
+    ]
+    rows = [cells, ['<c r="E2"><f t="shared" si="0"/><v>7</v></c>',
+                    '<c r="E3"><f t="shared" si="0"/><v>9</v></c>']]
+    part = ('<?xml version="1.0" encoding="UTF-8"?><worksheet xmlns="http://schemas.'
+            'openxmlformats.org/spreadsheetml/2006/main"><sheetData>'
+            + "".join(f'<row r="{r}">{"".join(c)}</row>' for r, c in enumerate(rows, 1))
+            + "</sheetData></worksheet>").encode()
+    monkeypatch.setattr(_columnar, "CHUNK", 64)
+    scanned, parsed = _scan(io.BytesIO(part)), _parse(io.BytesIO(part))
+    assert scanned == parsed
+    refs = scanned.refs
+    assert list(zip(refs.rows, refs.cols, refs.sheets, refs.to_rows, refs.to_cols,
+                    strict=True)) == [
+        (1, 1, "Data", 5, 2), (1, 2, "My & data", 7, 3), (1, 3, "O'Brien", 2, 4),
+        (1, 4, "Data", 9, 5), (1, 6, "Data", 1, 7), (1, 8, "Data", 6, 2)]
+    assert scanned.get((1, 8)) == CellKind(True, False)  # no result stored
+    assert scanned.get((1, 9)) == CellKind(True, True)  # an empty text is a result
+    assert scanned.get((2, 5)) == CellKind(True, True) and scanned.get((1, 11)) is None
+    assert scanned.unsaved() == 1

@@ -1,94 +1,279 @@
-"""Which cells of a worksheet hold something, and the formula of those that hold one.
+"""Which cells of a worksheet hold something, whether as a formula, and where the plain
+references among the formulas point.
 
 ``sheetfit check`` needs to know, for an owned sheet, whether a cell that sheetfit wrote
-as a formula still holds one (a typed constant over a formula is a hand edit) and which
-cells hold content sheetfit did not write. The values themselves come from
-``values.BookValues``. A UTF-8 part is scanned with regular expressions over its bytes
-(about ten times faster than a parse on 20,000-row result sheets); any other part goes
-through the same hardened streaming parse as the values reader.
+as a formula still holds one (a typed constant over a formula is a hand edit), whether a
+formula has its result stored, which cells hold content sheetfit did not write, and, for
+every formula that is a plain reference to one cell (``=Data!B5``), that cell. The values
+themselves come from ``values.BookValues``.
+
+A result sheet of a 200,000-row model holds millions of cells: they are kept column by
+column as arrays (:class:`SheetKinds`), never as one object per cell. A UTF-8 part is
+located a chunk at a time by the column reader's byte arithmetic (``_columnar.located``);
+only each formula's text is looked at one by one, to tell plain references. Any other
+part, or one the column reader does not take, goes through the same hardened streaming
+parse as the values reader.
 """
 
 from __future__ import annotations
 
 import re
 import zipfile
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import NamedTuple
+from typing import IO, NamedTuple
 from xml.sax.saxutils import unescape
 
-from ..a1 import col_index
-from ._sheetxml import _cells, _local, part_bytes, utf8
+import numpy as np
 
-__all__ = ["CellKind", "CellKinds", "read_cell_kinds"]
+from ..a1 import col_index
+from ._columnar import Irregular, located
+from ._sheetxml import _cells, _local, utf8
+
+__all__ = ["CellKind", "PlainRefs", "SheetKinds", "plain_ref", "read_cell_kinds"]
 
 
 class CellKind(NamedTuple):
-    """A cell holding something: its formula (None for a plain value; "" for a shared
-    formula's follower) and whether a result is stored with it (an empty ``<v></v>`` is
-    none, unless the result is typed as text: an empty text)."""
+    """A cell holding something: whether it holds a formula and whether a result is stored
+    with it (an empty ``<v></v>`` is none, unless the result is typed as text: an empty
+    text)."""
 
-    formula: str | None
+    formula: bool
     result: bool
 
 
-CellKinds = dict[tuple[int, int], CellKind]
-
-_CELL = re.compile(rb"<(?:\w+:)?c\b([^>]*?)(?:/>|>(.*?)</(?:\w+:)?c>)", re.DOTALL)
-_REF = re.compile(rb'\br="([A-Z]{1,3})([0-9]{1,7})"')
-_TYPE_STR = re.compile(rb'\bt="str"')
-_FORMULA = re.compile(rb"<(?:\w+:)?f\b[^>]*?(?:/>|>(.*?)</(?:\w+:)?f>)", re.DOTALL)
-_VALUE = re.compile(rb"<(?:\w+:)?v>([^<]*)</(?:\w+:)?v>|<(?:\w+:)?is\b")
+#: A formula that is a plain reference to one cell of a sheet: ``Data!B5``, ``'My data'!$C$7``.
+_PLAIN_REF = re.compile(
+    r"^=?(?:'(?P<qs>(?:[^']|'')+)'|(?P<ps>[^'!,()\s]+))!\$?(?P<c>[A-Z]{1,3})\$?(?P<r>[0-9]+)$")
 _ENTITIES = {"&quot;": '"', "&apos;": "'"}
 
 
-def read_cell_kinds(path: Path, part: str) -> CellKinds:
+def plain_ref(formula: str) -> tuple[str, int, int] | None:
+    """(sheet, row, column) of a formula that is a plain reference to one cell, else None."""
+    m = _PLAIN_REF.match(formula.strip())
+    if m is None:
+        return None
+    sheet = m.group("qs").replace("''", "'") if m.group("qs") else m.group("ps")
+    return sheet, int(m.group("r")), col_index(m.group("c"))
+
+
+@dataclass
+class PlainRefs:
+    """Formula cells that are plain references: where they are and the cell each names."""
+
+    rows: list[int] = field(default_factory=list)
+    cols: list[int] = field(default_factory=list)
+    sheets: list[str] = field(default_factory=list)
+    to_rows: list[int] = field(default_factory=list)
+    to_cols: list[int] = field(default_factory=list)
+
+    def add(self, row: int, col: int, formula: str) -> None:
+        ref = plain_ref(formula)
+        if ref is not None:
+            self.rows.append(row)
+            self.cols.append(col)
+            self.sheets.append(ref[0])
+            self.to_rows.append(ref[1])
+            self.to_cols.append(ref[2])
+
+
+@dataclass
+class _KindColumn:
+    rows: np.ndarray  # int64, ascending: the cells of the column that hold something
+    formula: np.ndarray  # bool
+    result: np.ndarray  # bool
+
+
+class SheetKinds:
+    """The cells of one worksheet that hold a value or a formula, column by column."""
+
+    def __init__(self, columns: dict[int, _KindColumn], refs: PlainRefs) -> None:
+        self.columns = columns
+        self.refs = refs
+
+    def __len__(self) -> int:
+        return sum(len(c.rows) for c in self.columns.values())
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, SheetKinds):
+            return NotImplemented
+        return self.cells() == other.cells() and self.refs == other.refs
+
+    __hash__ = None  # type: ignore[assignment]
+
+    def get(self, pos: tuple[int, int]) -> CellKind | None:
+        """The kind of the cell at (row, col), None when it holds nothing."""
+        c = self.columns.get(pos[1])
+        if c is None:
+            return None
+        i = int(np.searchsorted(c.rows, pos[0]))
+        if i == len(c.rows) or c.rows[i] != pos[0]:
+            return None
+        return CellKind(bool(c.formula[i]), bool(c.result[i]))
+
+    def cells(self) -> dict[tuple[int, int], CellKind]:
+        """Every cell as a map (small sheets and tests only)."""
+        return {(int(r), col): CellKind(bool(f), bool(v)) for col, c in self.columns.items()
+                for r, f, v in zip(c.rows, c.formula, c.result, strict=True)}
+
+    def column(self, col: int, row1: int, row2: int) -> tuple[np.ndarray, np.ndarray,
+                                                                np.ndarray]:
+        """(holds something, holds a formula, has a stored result) of rows row1..row2."""
+        n = row2 - row1 + 1
+        held, formula, result = (np.zeros(n, dtype=bool) for _ in range(3))
+        c = self.columns.get(col)
+        if c is not None:
+            lo, hi = np.searchsorted(c.rows, [row1, row2 + 1])
+            at = c.rows[lo:hi] - row1
+            held[at], formula[at], result[at] = True, c.formula[lo:hi], c.result[lo:hi]
+        return held, formula, result
+
+    def outside(self, spans: dict[int, list[tuple[int, int]]]) -> Iterator[tuple[int, int]]:
+        """(row, col) of the cells outside the given row spans of their column, in row
+        order."""
+        out: list[tuple[int, int]] = []
+        for col, c in self.columns.items():
+            keep = np.ones(len(c.rows), dtype=bool)
+            for a, b in spans.get(col, ()):
+                keep &= (c.rows < a) | (c.rows > b)
+            out += [(int(r), col) for r in c.rows[keep]]
+        return iter(sorted(out))
+
+    def unsaved(self) -> int:
+        """Formula cells stored without a result."""
+        return sum(int(np.count_nonzero(c.formula & ~c.result)) for c in self.columns.values())
+
+
+class _Gather:
+    """Cells gathered in document order, then split into columns."""
+
+    def __init__(self) -> None:
+        self.rows: list[np.ndarray] = []
+        self.cols: list[np.ndarray] = []
+        self.formula: list[np.ndarray] = []
+        self.result: list[np.ndarray] = []
+        self.refs = PlainRefs()
+
+    def add(self, rows: np.ndarray, cols: np.ndarray, formula: np.ndarray,
+            result: np.ndarray) -> None:
+        keep = formula | result
+        self.rows.append(rows[keep])
+        self.cols.append(cols[keep])
+        self.formula.append(formula[keep])
+        self.result.append(result[keep])
+
+    def build(self) -> SheetKinds:
+        if not self.rows:
+            return SheetKinds({}, self.refs)
+        rows, cols = np.concatenate(self.rows), np.concatenate(self.cols)
+        formula, result = np.concatenate(self.formula), np.concatenate(self.result)
+        order = np.lexsort((rows, cols))  # by column, then row
+        rows, cols, formula, result = rows[order], cols[order], formula[order], result[order]
+        cuts = np.flatnonzero(np.diff(cols)) + 1
+        columns = {int(c[0]): _KindColumn(r, f, v) for r, c, f, v in zip(
+            np.split(rows, cuts), np.split(cols, cuts), np.split(formula, cuts),
+            np.split(result, cuts), strict=True) if len(c)}
+        return SheetKinds(columns, self.refs)
+
+
+def read_cell_kinds(path: Path, part: str) -> SheetKinds:
     """Every cell of the worksheet ``part`` that holds a value or a formula."""
     with zipfile.ZipFile(path) as zf:
         member = {n.lower(): n for n in zf.namelist()}[part.lower()]
-        data = part_bytes(zf, member)  # one buffer: zf.read holds a big part twice
-        if utf8(data):
-            found = _scan(data)
-            if found is not None:
-                return found
+        with zf.open(member) as fh:
+            head = fh.read(256)
+        if utf8(head):
+            try:
+                with zf.open(member) as fh:
+                    return _scan(fh)
+            except (Irregular, UnicodeDecodeError, ValueError):
+                pass
         with zf.open(member) as fh:
             return _parse(fh)
 
 
-def _scan(data: bytes | bytearray) -> CellKinds | None:
-    """The cells of a UTF-8 part by byte scan; None when a cell has no reference."""
-    out: CellKinds = {}
-    cols: dict[bytes, int] = {}  # column letters seen, by their number
-    kinds: dict[tuple[str | None, bool], CellKind] = {}  # one object per distinct kind
-    for m in _CELL.finditer(data):
-        head, body = m.group(1), m.group(2) or b""
-        ref = _REF.search(head)
-        if ref is None:
-            return None
-        f = _FORMULA.search(body)
-        if f is None:
-            formula = None
-        else:
-            raw = f.group(1) or b""
-            formula = unescape(raw.decode(), _ENTITIES) if b"&" in raw else raw.decode()
-        v = _VALUE.search(body)
-        result = v is not None and (v.group(1) is None or bool(v.group(1))
-                                    or _TYPE_STR.search(head) is not None)
-        if formula is not None or result:
-            letters = ref.group(1)
-            col = cols.get(letters)
-            if col is None:
-                col = cols[letters] = col_index(letters)
-            kind = kinds.get((formula, result)) if not formula else None
-            if kind is None:
-                kind = CellKind(formula, result)
-                if not formula:  # values and shared formulas' followers: a handful of kinds
-                    kinds[(formula, result)] = kind
-            out[(int(ref.group(2)), col)] = kind
-    return out
+def _formula_text(buf: bytes, at: int, end: int) -> str:
+    """The text of the ``<f`` element starting at ``at`` ("" for an empty or self-closing
+    one: a shared formula's follower), entities replaced."""
+    close = buf.find(b">", at, end)
+    if close < 0:
+        raise Irregular("a formula tag without its end")
+    if buf[close - 1] == ord("/"):
+        return ""
+    stop = buf.find(b"<", close + 1, end)
+    if stop < 0 or not buf.startswith(b"</f>", stop):
+        raise Irregular("a formula with markup inside")
+    raw = buf[close + 1:stop].decode("utf-8")
+    if "\r" in raw:
+        raw = raw.replace("\r\n", "\n").replace("\r", "\n")
+    return unescape(raw, _ENTITIES) if "&" in raw else raw
 
 
-def _parse(fh: object) -> CellKinds:
-    out: CellKinds = {}
+#: A plain ``<f>`` element holding a plain reference, matched in place in the part's bytes.
+_PLAIN_F = re.compile(
+    rb"<f>\s*=?(?:'((?:[^'<]|'')+)'|([^'!,()\s<]+))!\$?([A-Z]{1,3})\$?([0-9]+)\s*</f>")
+
+
+def _scan(fh: IO[bytes]) -> SheetKinds:
+    """The cells of a UTF-8 part, located a chunk at a time. A formula element without
+    attributes is matched in place against the plain-reference pattern (no text made
+    unless it is one); one with attributes (a shared or array formula) is read whole."""
+    out = _Gather()
+    sheets: dict[bytes, str] = {}
+    letters: dict[bytes, int] = {}
+    refs = out.refs
+    for buf, ch in located(fh):
+        result = (ch.is_at >= 0) | (ch.v_end > ch.v_start) | (
+            (ch.v_start >= 0) & (ch.types == b"str"))
+        out.add(ch.rows, ch.cols, ch.has_f, result)
+        f_cells = np.flatnonzero(ch.has_f)
+        if not len(f_cells):
+            continue
+        at = ch.f_at[f_cells]
+        bare = ch.a[np.minimum(at + 2, len(ch.a) - 1)] == ord(">")
+        match = _PLAIN_F.match
+        rows, cols = ch.rows[f_cells].tolist(), ch.cols[f_cells].tolist()
+        for k, (pos, plain) in enumerate(zip(at.tolist(), bare.tolist(), strict=True)):
+            if plain:
+                m = match(buf, pos)
+                if m is None:
+                    continue
+                quoted, name, col, row = m.groups()
+                key = quoted if quoted is not None else name
+                sheet = sheets.get(key)
+                if sheet is None:
+                    text = _unescape_f(key)
+                    sheet = sheets[key] = text.replace("''", "'") if quoted else text
+                c = letters.get(col)
+                if c is None:
+                    c = letters[col] = col_index(col.decode())
+                refs.rows.append(rows[k])
+                refs.cols.append(cols[k])
+                refs.sheets.append(sheet)
+                refs.to_rows.append(int(row))
+                refs.to_cols.append(c)
+            else:  # <f t="shared" .../> and the like: read whole
+                i = int(f_cells[k])
+                end = int(ch.cells[i + 1]) if i + 1 < len(ch.cells) else len(buf)
+                text = _formula_text(buf, pos, end)
+                if text and "!" in text:
+                    refs.add(rows[k], cols[k], text)
+    return out.build()
+
+
+def _unescape_f(raw: bytes) -> str:
+    text = raw.decode("utf-8")
+    return unescape(text, _ENTITIES) if "&" in text else text
+
+
+def _parse(fh: object) -> SheetKinds:
+    """The cells of any part, by the hardened streaming parse."""
+    rows: list[int] = []
+    cols: list[int] = []
+    formulas: list[bool] = []
+    results: list[bool] = []
+    out = _Gather()
     for row, col, el in _cells(fh, None):  # type: ignore[arg-type]
         formula: str | None = None
         result = False
@@ -99,5 +284,17 @@ def _parse(fh: object) -> CellKinds:
             elif name == "is" or (name == "v" and (child.text or el.get("t") == "str")):
                 result = True
         if formula is not None or result:
-            out[(row, col)] = CellKind(formula, result)
-    return out
+            rows.append(row)
+            cols.append(col)
+            formulas.append(formula is not None)
+            results.append(result)
+            if formula and "!" in formula:
+                out.refs.add(row, col, formula)
+    _add_lists(out, rows, cols, formulas, results)
+    return out.build()
+
+
+def _add_lists(out: _Gather, rows: Iterable[int], cols: Iterable[int],
+               formulas: Iterable[bool], results: Iterable[bool]) -> None:
+    out.add(np.array(list(rows), dtype=np.int64), np.array(list(cols), dtype=np.int64),
+            np.array(list(formulas), dtype=bool), np.array(list(results), dtype=bool))
