@@ -56,6 +56,8 @@ EXIT_NOT_CURRENT = 3
 REL, ABS = 1e-9, 1e-12
 #: Findings listed per kind before the rest are only counted.
 LISTED = 5
+#: Cells of a run of texts whose formulas are made and compared at a time.
+_RUN_BLOCK = 1 << 14
 
 
 @dataclass
@@ -167,7 +169,7 @@ def check(book: str | Path) -> BookCheck:
             owned = {s.name: s.part for s in pkg.owned_sheets() if s.is_worksheet}
             stored = read_inputs(values) if INPUTS_SHEET in owned else {}
             index = _read_index(values) if INDEX_SHEET in owned else {}
-            kinds = {t: read_cell_kinds(source, p) for t, p in owned.items()}
+            kinds = _Kinds(source, owned)
             plans = _BookPlans(models)
             plans.all_current = all(
                 m.record is not None and m.tag.casefold() in stored
@@ -206,6 +208,26 @@ def _read_index(values: BookValues) -> dict[str, tuple[str, str, str]]:
     return out
 
 
+class _Kinds:
+    """The owned sheets' cell kinds (``reader.formulas``), read when first asked for and
+    let go with ``drop`` once the sheet is checked."""
+
+    def __init__(self, source: Path, owned: dict[str, str]) -> None:
+        self.source = source
+        self.parts = owned
+        #: The owned sheets' names, case-folded.
+        self.owned = {t.casefold() for t in owned}
+        self._read: dict[str, SheetKinds] = {}
+
+    def __getitem__(self, title: str) -> SheetKinds:
+        if title not in self._read:
+            self._read[title] = read_cell_kinds(self.source, self.parts[title])
+        return self._read[title]
+
+    def drop(self, title: str) -> None:
+        self._read.pop(title, None)
+
+
 class _BookPlans:
     """Fresh plans of the models' sheets, made as the refresh makes them, on first need.
 
@@ -235,7 +257,7 @@ class _BookPlans:
         """The model's sheets, each with the cells that depend on other models."""
         if self._sheets is None:
             self._sheets = self._plan(self.models)
-        alone = self._plan([model])
+        alone = {} if self.all_current else self._plan([model])  # needed only then
         prefix = f"sf {model.tag} ".casefold()
         out = []
         for t, s in self._sheets.items():
@@ -285,8 +307,7 @@ def _differing(whole: SheetPlan, alone: SheetPlan | None) -> set[tuple[int, int]
 
 def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
                  index: dict[str, tuple[str, str, str]], owned: dict[str, str],
-                 kinds: dict[str, SheetKinds], values: BookValues,
-                 plans: _BookPlans) -> ModelCheck:
+                 kinds: _Kinds, values: BookValues, plans: _BookPlans) -> ModelCheck:
     now = model.record
     if now is None:
         raise ValueError(f"model {model.tag} was read without its input record")
@@ -313,14 +334,28 @@ def _check_model(model: ModelData, stored: dict[str, tuple[InputRecord, str]],
             found.notes.append(f"settings as used were {rec.settings}; now {now.settings}")
     sheets = {t: p for t, p in owned.items() if t.casefold().startswith(
         f"sf {model.tag} ".casefold())}
-    edits: list[Edit] = []
-    edits += _data_side(sheets, kinds, values)
+    planned: list[tuple[SheetPlan, set[tuple[int, int]]]] = []
     if found.status == CURRENT:
         if version and version != __version__:
             found.notes.append(f"refreshed by sheetfit {version}, this is {__version__}: the "
                                "result cells were not compared with a fresh plan")
         else:
-            edits += _against_plan(plans.of(model), sheets, kinds, values)
+            planned = plans.of(model)
+    by_title = {plan.title.casefold(): (plan, skip) for plan, skip in planned}
+    data_edits: dict[str, list[Edit]] = {}
+    plan_edits: dict[str, list[Edit]] = {}
+    for title in sheets:  # one sheet at a time, its cells let go before the next
+        k = kinds[title]
+        data_edits[title] = _data_side(title, k, kinds.owned, values)
+        got = by_title.get(title.casefold())
+        if got is not None:
+            plan_edits[title.casefold()] = _compare_sheet(got[0], title, k, values, got[1])
+        kinds.drop(title)
+        values.forget(title)
+    edits = [e for title in sheets for e in data_edits[title]]
+    for plan, _ in planned:
+        edits += plan_edits.get(plan.title.casefold(),
+                                [Edit(plan.title, "", "the sheet is missing")])
     found.edits_total = len(edits) + len(found.edits)
     found.edits = (found.edits + edits)[:LISTED]
     if found.edits and found.status == CURRENT:
@@ -394,21 +429,6 @@ def _shown(v: Value) -> str:
     return repr(v.text[:30])
 
 
-def _against_plan(planned: list[tuple[SheetPlan, set[tuple[int, int]]]],
-                  sheets: dict[str, str], kinds: dict[str, SheetKinds],
-                  values: BookValues) -> list[Edit]:
-    """Compare each result sheet of an up-to-date model with its fresh plan (except the
-    cells in ``skip``)."""
-    edits: list[Edit] = []
-    for plan, skip in planned:
-        title = next((t for t in sheets if t.casefold() == plan.title.casefold()), None)
-        if title is None:
-            edits.append(Edit(plan.title, "", "the sheet is missing"))
-            continue
-        edits += _compare_sheet(plan, title, kinds[title], values, skip)
-    return edits
-
-
 def _compare_sheet(plan: SheetPlan, title: str, kinds: SheetKinds,
                    values: BookValues, skip: set[tuple[int, int]]) -> list[Edit]:
     sv = values.sheet(title)
@@ -432,9 +452,12 @@ def _compare_sheet(plan: SheetPlan, title: str, kinds: SheetKinds,
             continue
         spans.setdefault(run.col + 1, []).append((run.row0 + 1, run.last + 1))
         suspects = _run_suspects(run, kinds, sv, skip)
-        if suspects is None:  # not a numeric run: cell by cell
-            for row, col, value, formula in run.cells():
-                compare(row, col, value, formula)
+        if suspects is None:  # not a numeric run: cell by cell, a block of rows at a time
+            for a in range(0, run.n, _RUN_BLOCK):
+                b = min(run.n, a + _RUN_BLOCK)
+                forms = run.formulas(a, b)
+                for i, value in enumerate(run.scalars(a, b)):
+                    compare(run.row0 + a + i, run.col, value, None if forms is None else forms[i])
             continue
         for i in suspects:
             f = run.formulas(i, i + 1)
@@ -496,50 +519,50 @@ def _cell_edit(value: Any, formula: str | None, kind: CellKind | None, v: Value)
     return ""
 
 
-def _data_side(sheets: dict[str, str], kinds: dict[str, SheetKinds],
-               values: BookValues) -> list[Edit]:
-    """Owned references to a user's cell whose cached value differs from that cell, and
-    owned formulas stored without a result. Compared a column at a time: the references of
-    one owned column to one column of a user's sheet, as arrays."""
+def _data_side(title: str, k: SheetKinds, owned: set[str], values: BookValues) -> list[Edit]:
+    """Owned references (on sheet ``title``) to a user's cell whose cached value differs
+    from that cell, and owned formulas stored without a result. Compared a column at a
+    time: the references of one owned column to one column of a user's sheet, as arrays.
+    ``owned``: the owned sheets' names, case-folded (references to them are not data)."""
     edits: list[Edit] = []
-    owned = {t.casefold() for t in kinds}
-    for title in sheets:
-        k = kinds[title]
-        unsaved = k.unsaved()
-        refs = k.refs
-        groups: dict[tuple[int, str, int], list[int]] = {}
-        for i, (c, sheet, tc) in enumerate(zip(refs.cols, refs.sheets, refs.to_cols,
-                                               strict=True)):
-            if sheet.casefold() not in owned:
-                groups.setdefault((c, sheet, tc), []).append(i)
-        found: list[tuple[int, int, str]] = []
-        for (c, sheet, tc), idx in groups.items():
-            try:
-                values.sheet(sheet)
-            except KeyError:
-                continue  # a sheet the book does not have
-            rows = np.array([refs.rows[i] for i in idx], dtype=np.int64)
-            _, _, result = k.column(c, int(rows.min()), int(rows.max()))
-            stored = result[rows - rows.min()]  # without a result: counted above
-            idx = [i for i, s in zip(idx, stored.tolist(), strict=True) if s]
-            if not idx:
-                continue
-            rows = rows[stored]
-            to_rows = np.array([refs.to_rows[i] for i in idx], dtype=np.int64)
-            for j in _differing_refs(values, title, c, rows, sheet, tc, to_rows):
-                i = idx[j]
-                r = refs.rows[i]
-                v = values.sheet(title).get(r, c)
-                target = values.sheet(sheet).get(refs.to_rows[i], tc)
-                ref = f"{quote_sheet(sheet)}!{cell_ref(refs.to_rows[i], tc)}"
-                found.append((r, c, (
-                    f"shows {_shown(v)} but {ref} holds {_shown(target)} "
-                    "(the data changed and the book was saved without recalculating)")))
-        edits += [Edit(title, cell_ref(r, c), what) for r, c, what in sorted(found)]
-        if unsaved:
-            edits.append(Edit(title, "", (
-                f"{unsaved} formula cells have no saved result (the book was saved by a "
-                "program that does not calculate)")))
+    unsaved = k.unsaved()
+    refs = k.refs
+    # one group per (owned column, referred sheet, referred column): 14 + 20 + 14 bits
+    key = ((refs.cols.astype(np.int64) << 34) | (refs.sheets.astype(np.int64) << 14)
+           | refs.to_cols.astype(np.int64))
+    order = np.argsort(key, kind="stable")
+    cuts = np.flatnonzero(np.diff(key[order])) + 1
+    found: list[tuple[int, int, str]] = []
+    for idx in np.split(order, cuts) if len(order) else []:
+        i0 = int(idx[0])
+        c, tc = int(refs.cols[i0]), int(refs.to_cols[i0])
+        sheet = refs.sheet_names[int(refs.sheets[i0])]
+        if sheet.casefold() in owned:
+            continue
+        try:
+            values.sheet(sheet)
+        except KeyError:
+            continue  # a sheet the book does not have
+        rows = refs.rows[idx].astype(np.int64)
+        _, _, result = k.column(c, int(rows.min()), int(rows.max()))
+        stored = result[rows - rows.min()]  # without a result: counted above
+        idx, rows = idx[stored], rows[stored]
+        if not len(idx):
+            continue
+        to_rows = refs.to_rows[idx].astype(np.int64)
+        for j in _differing_refs(values, title, c, rows, sheet, tc, to_rows):
+            r, tr = int(rows[j]), int(to_rows[j])
+            v = values.sheet(title).get(r, c)
+            target = values.sheet(sheet).get(tr, tc)
+            ref = f"{quote_sheet(sheet)}!{cell_ref(tr, tc)}"
+            found.append((r, c, (
+                f"shows {_shown(v)} but {ref} holds {_shown(target)} "
+                "(the data changed and the book was saved without recalculating)")))
+    edits += [Edit(title, cell_ref(r, c), what) for r, c, what in sorted(found)]
+    if unsaved:
+        edits.append(Edit(title, "", (
+            f"{unsaved} formula cells have no saved result (the book was saved by a "
+            "program that does not calculate)")))
     return edits
 
 

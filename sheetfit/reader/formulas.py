@@ -20,7 +20,7 @@ from __future__ import annotations
 import re
 import zipfile
 from collections.abc import Iterable, Iterator
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, NamedTuple
 from xml.sax.saxutils import unescape
@@ -58,29 +58,99 @@ def plain_ref(formula: str) -> tuple[str, int, int] | None:
     return sheet, int(m.group("r")), col_index(m.group("c"))
 
 
-@dataclass
 class PlainRefs:
-    """Formula cells that are plain references: where they are and the cell each names."""
+    """Formula cells that are plain references: where they are (``rows``, ``cols``) and the
+    cell each names (``sheet_names[sheets[i]]``, ``to_rows``, ``to_cols``), as int arrays,
+    gathered a chunk at a time."""
 
-    rows: list[int] = field(default_factory=list)
-    cols: list[int] = field(default_factory=list)
-    sheets: list[str] = field(default_factory=list)
-    to_rows: list[int] = field(default_factory=list)
-    to_cols: list[int] = field(default_factory=list)
+    def __init__(self) -> None:
+        self.sheet_names: list[str] = []
+        self._ids: dict[str, int] = {}
+        self._parts: list[tuple[np.ndarray, ...]] = []
+        self._open: tuple[list[int], ...] = ([], [], [], [], [])
+        self._arrays: tuple[np.ndarray, ...] | None = None
 
     def add(self, row: int, col: int, formula: str) -> None:
         ref = plain_ref(formula)
         if ref is not None:
-            self.rows.append(row)
-            self.cols.append(col)
-            self.sheets.append(ref[0])
-            self.to_rows.append(ref[1])
-            self.to_cols.append(ref[2])
+            self.append(row, col, ref[0], ref[1], ref[2])
+
+    def append(self, row: int, col: int, sheet: str, to_row: int, to_col: int) -> None:
+        sid = self._ids.get(sheet)
+        if sid is None:
+            sid = self._ids[sheet] = len(self.sheet_names)
+            self.sheet_names.append(sheet)
+        for part, v in zip(self._open, (row, col, sid, to_row, to_col), strict=True):
+            part.append(v)
+
+    def extend(self, rows: list[int], cols: list[int], sheets: list[str],
+               to_rows: list[int], to_cols: list[int]) -> None:
+        """Many references at once (lists of equal length)."""
+        ids = [self._ids.get(s) for s in dict.fromkeys(sheets)]
+        if None in ids:
+            for sheet in dict.fromkeys(sheets):
+                if sheet not in self._ids:
+                    self._ids[sheet] = len(self.sheet_names)
+                    self.sheet_names.append(sheet)
+        self._open[0].extend(rows)
+        self._open[1].extend(cols)
+        self._open[2].extend(map(self._ids.__getitem__, sheets))
+        self._open[3].extend(to_rows)
+        self._open[4].extend(to_cols)
+
+    def close_chunk(self) -> None:
+        """Turn the references gathered so far into arrays (lists never grow long)."""
+        if self._open[0]:
+            self._parts.append(tuple(np.array(p, dtype=np.int32) for p in self._open))
+            self._open = ([], [], [], [], [])
+            self._arrays = None
+
+    def _all(self) -> tuple[np.ndarray, ...]:
+        self.close_chunk()
+        if self._arrays is None:
+            self._arrays = tuple(
+                np.concatenate([p[k] for p in self._parts]) if self._parts
+                else np.zeros(0, dtype=np.int32) for k in range(5))
+            self._parts = [self._arrays] if self._parts else []
+        return self._arrays
+
+    @property
+    def rows(self) -> np.ndarray:
+        return self._all()[0]
+
+    @property
+    def cols(self) -> np.ndarray:
+        return self._all()[1]
+
+    @property
+    def sheets(self) -> np.ndarray:
+        return self._all()[2]
+
+    @property
+    def to_rows(self) -> np.ndarray:
+        return self._all()[3]
+
+    @property
+    def to_cols(self) -> np.ndarray:
+        return self._all()[4]
+
+    def listed(self) -> list[tuple[int, int, str, int, int]]:
+        """Every reference as (row, col, sheet, to_row, to_col), in the order found."""
+        r, c, s, tr, tc = (a.tolist() for a in self._all())
+        return [(a, b, self.sheet_names[k], d, e) for a, b, k, d, e in zip(r, c, s, tr, tc,
+                                                                          strict=True)]
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, PlainRefs):
+            return NotImplemented
+        return self.listed() == other.listed()
+
+    __hash__ = None  # type: ignore[assignment]
 
 
 @dataclass
 class _KindColumn:
-    rows: np.ndarray  # int64, ascending: the cells of the column that hold something
+    rows: np.ndarray  # int32, ascending: the cells of the column that hold something
     formula: np.ndarray  # bool
     result: np.ndarray  # bool
 
@@ -107,7 +177,7 @@ class SheetKinds:
         c = self.columns.get(pos[1])
         if c is None:
             return None
-        i = int(np.searchsorted(c.rows, pos[0]))
+        i = int(np.searchsorted(c.rows, c.rows.dtype.type(pos[0])))  # no cast of the rows
         if i == len(c.rows) or c.rows[i] != pos[0]:
             return None
         return CellKind(bool(c.formula[i]), bool(c.result[i]))
@@ -124,7 +194,7 @@ class SheetKinds:
         held, formula, result = (np.zeros(n, dtype=bool) for _ in range(3))
         c = self.columns.get(col)
         if c is not None:
-            lo, hi = np.searchsorted(c.rows, [row1, row2 + 1])
+            lo, hi = np.searchsorted(c.rows, np.array([row1, row2 + 1], dtype=c.rows.dtype))
             at = c.rows[lo:hi] - row1
             held[at], formula[at], result[at] = True, c.formula[lo:hi], c.result[lo:hi]
         return held, formula, result
@@ -158,8 +228,8 @@ class _Gather:
     def add(self, rows: np.ndarray, cols: np.ndarray, formula: np.ndarray,
             result: np.ndarray) -> None:
         keep = formula | result
-        self.rows.append(rows[keep])
-        self.cols.append(cols[keep])
+        self.rows.append(rows[keep].astype(np.int32))  # rows and columns fit 32 bits
+        self.cols.append(cols[keep].astype(np.int32))
         self.formula.append(formula[keep])
         self.result.append(result[keep])
 
@@ -230,10 +300,17 @@ def _scan(fh: IO[bytes]) -> SheetKinds:
         f_cells = np.flatnonzero(ch.has_f)
         if not len(f_cells):
             continue
+        a = ch.a
         at = ch.f_at[f_cells]
-        bare = ch.a[np.minimum(at + 2, len(ch.a) - 1)] == ord(">")
+        bare = a[np.minimum(at + 2, len(a) - 1)] == ord(">")
+        gt = np.flatnonzero(a == ord(">"))
+        closing = gt[np.minimum(np.searchsorted(gt, at), len(gt) - 1)]
+        empty = a[closing - 1] == ord("/")  # <f t="shared" si="0"/>: a follower, no text
+        read = bare | ~empty
+        f_cells, at, bare = f_cells[read], at[read], bare[read]
         match = _PLAIN_F.match
         rows, cols = ch.rows[f_cells].tolist(), ch.cols[f_cells].tolist()
+        got_rows, got_cols, got_sheets, got_to_rows, got_to_cols = [], [], [], [], []
         for k, (pos, plain) in enumerate(zip(at.tolist(), bare.tolist(), strict=True)):
             if plain:
                 m = match(buf, pos)
@@ -248,17 +325,24 @@ def _scan(fh: IO[bytes]) -> SheetKinds:
                 c = letters.get(col)
                 if c is None:
                     c = letters[col] = col_index(col.decode())
-                refs.rows.append(rows[k])
-                refs.cols.append(cols[k])
-                refs.sheets.append(sheet)
-                refs.to_rows.append(int(row))
-                refs.to_cols.append(c)
-            else:  # <f t="shared" .../> and the like: read whole
+                got_rows.append(rows[k])
+                got_cols.append(cols[k])
+                got_sheets.append(sheet)
+                got_to_rows.append(int(row))
+                got_to_cols.append(c)
+            else:  # <f t="shared" ref=… si=…>text</f> and the like: read whole
                 i = int(f_cells[k])
                 end = int(ch.cells[i + 1]) if i + 1 < len(ch.cells) else len(buf)
                 text = _formula_text(buf, pos, end)
-                if text and "!" in text:
-                    refs.add(rows[k], cols[k], text)
+                ref = plain_ref(text) if text and "!" in text else None
+                if ref is not None:  # kept in document order with the others
+                    got_rows.append(rows[k])
+                    got_cols.append(cols[k])
+                    got_sheets.append(ref[0])
+                    got_to_rows.append(ref[1])
+                    got_to_cols.append(ref[2])
+        refs.extend(got_rows, got_cols, got_sheets, got_to_rows, got_to_cols)
+        refs.close_chunk()
     return out.build()
 
 

@@ -247,6 +247,17 @@ class BookValues:
             found = self._columns[key] = self.sheet(sheet).column(col, row1, row2)
         return found
 
+    def forget(self, name: str) -> None:
+        """Let go of a sheet's values and columns read so far (read again if asked for);
+        ``sheetfit check`` reads one result sheet after another."""
+        try:
+            key = self._canonical(name)
+        except KeyError:
+            return
+        self._cache.pop(key, None)
+        for k in [k for k in self._columns if k[0] == key]:
+            del self._columns[k]
+
     def _canonical(self, name: str) -> str:
         for known in self.sheet_parts:
             if known.casefold() == name.casefold():
