@@ -4,6 +4,7 @@ demo data, and what a graft changed, read from the packages themselves."""
 from __future__ import annotations
 
 import datetime as dt
+import math
 import multiprocessing
 import os
 import zipfile
@@ -190,3 +191,37 @@ def only_reader(monkeypatch: Any, which: str) -> None:
         monkeypatch.setattr(BookValues, "_columnar", lambda self, member: None)
     if which == "stream":
         monkeypatch.setattr(BookValues, "_fast", lambda self, name: None)
+
+
+def every_kind_book(path: Path) -> Path:
+    """Numbers, shared and rich strings, booleans, errors, dates, formulas with results."""
+    wb = xlsxwriter.Workbook(str(path))
+    wb.set_properties({"created": dt.datetime(2026, 1, 1)})
+    ws = wb.add_worksheet("Data")
+    bold, date = wb.add_format({"bold": True}), wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
+    ws.write_number("A1", 1.5)
+    ws.write_number("A2", -2.25e-300)
+    ws.write_number("A3", 123456789.123456789)
+    ws.write_string("B1", "plain text")
+    ws.write_string("B2", "  spaced & <escaped> \"quoted\"  ")
+    ws.write_rich_string("B3", "rich ", bold, "text", " end")
+    ws.write_boolean("C1", True)
+    ws.write_boolean("C2", False)
+    ws.write_formula("D1", "=1/0", None, "#DIV/0!")
+    ws.write_formula("D2", "=NA()", None, "#N/A")
+    ws.write_formula("E1", "=A1*2", None, 3.0)
+    ws.write_formula("E2", '="a"&"b"', None, "ab")
+    ws.write_formula("E3", '=""', None, "")
+    ws.write_datetime("F1", dt.datetime(2024, 2, 29, 13, 45, 30), date)
+    ws.write_number("F2", 45000.75, date)
+    ws.write_string("G5", "=1+1")
+    ws.write_number("Z40", 7.0)
+    wb.add_worksheet("Second").write_string("A1", "only text")
+    wb.close()
+    return path
+
+
+def same_value(a: Any, b: Any) -> bool:
+    """Two Values equal in kind, text and number (nan equal to nan)."""
+    return (a.kind, a.text) == (b.kind, b.text) and (
+        a.number == b.number or (math.isnan(a.number) and math.isnan(b.number)))

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
-import math
 import re
 import zipfile
 from collections.abc import Callable
@@ -14,7 +13,7 @@ from pathlib import Path
 
 import pytest
 import xlsxwriter
-from books import READERS, line_rows, make_book, only_reader
+from books import READERS, every_kind_book, line_rows, make_book, only_reader, same_value
 
 from sheetfit.cli import main
 from sheetfit.errors import DataError
@@ -62,41 +61,13 @@ def _all_values(path: Path, reader: str, monkeypatch: pytest.MonkeyPatch) -> dic
     return out
 
 
-def _every_kind(path: Path) -> Path:
-    """Numbers, shared and rich strings, booleans, errors, dates, formulas with results."""
-    wb = xlsxwriter.Workbook(str(path))
-    wb.set_properties({"created": dt.datetime(2026, 1, 1)})
-    ws = wb.add_worksheet("Data")
-    bold, date = wb.add_format({"bold": True}), wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
-    ws.write_number("A1", 1.5)
-    ws.write_number("A2", -2.25e-300)
-    ws.write_number("A3", 123456789.123456789)
-    ws.write_string("B1", "plain text")
-    ws.write_string("B2", "  spaced & <escaped> \"quoted\"  ")
-    ws.write_rich_string("B3", "rich ", bold, "text", " end")
-    ws.write_boolean("C1", True)
-    ws.write_boolean("C2", False)
-    ws.write_formula("D1", "=1/0", None, "#DIV/0!")
-    ws.write_formula("D2", "=NA()", None, "#N/A")
-    ws.write_formula("E1", "=A1*2", None, 3.0)
-    ws.write_formula("E2", '="a"&"b"', None, "ab")
-    ws.write_formula("E3", '=""', None, "")
-    ws.write_datetime("F1", dt.datetime(2024, 2, 29, 13, 45, 30), date)
-    ws.write_number("F2", 45000.75, date)
-    ws.write_string("G5", "=1+1")
-    ws.write_number("Z40", 7.0)
-    wb.add_worksheet("Second").write_string("A1", "only text")
-    wb.close()
-    return path
-
-
 @pytest.mark.parametrize("book", EXAMPLES + ["every_kind"], ids=lambda b: getattr(b, "stem", b))
 def test_the_three_readers_agree(book, tmp_path: Path, monkeypatch) -> None:
     """The column, fast and streaming readers give the same Value for every cell; the
     column and streaming readers (both read the stored number) exactly; date-formatted
     cells, which the fast reader turns into datetimes to the microsecond, within 1e-10 days
     (9 µs) of them, every other cell exactly."""
-    path = _every_kind(tmp_path / "kinds.xlsx") if book == "every_kind" else book
+    path = every_kind_book(tmp_path / "kinds.xlsx") if book == "every_kind" else book
     columnar, fast, stream = (_all_values(path, r, monkeypatch) for r in READERS)
     assert columnar.keys() == fast.keys() == stream.keys()
     kinds = set()
@@ -104,19 +75,13 @@ def test_the_three_readers_agree(book, tmp_path: Path, monkeypatch) -> None:
         b, c = stream[key], columnar[key]
         kinds.add(a.kind)
         assert (a.kind, a.text) == (b.kind, b.text) == (c.kind, c.text), key
-        assert _same_value(c, b), key
+        assert same_value(c, b), key
         if a.kind == "number":
             assert a.number == pytest.approx(b.number, rel=0, abs=1e-10), key
     if book == "every_kind":
         assert kinds == {"blank", "number", "text", "error", "other"}
         assert fast[("Data", 3, 2)].text == "rich text end"
         assert fast[("Data", 5, 7)].text == "=1+1"
-
-
-def _same_value(a, b) -> bool:
-    """Two Values equal in kind, text and number (nan equal to nan)."""
-    return (a.kind, a.text) == (b.kind, b.text) and (
-        a.number == b.number or (math.isnan(a.number) and math.isnan(b.number)))
 
 
 @pytest.mark.parametrize("reader", READERS)
@@ -127,7 +92,7 @@ def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, reader: str, tmp
     """``BookValues.column`` (arrays, the declarations' path) gives for every cell exactly
     the Value ``SheetValues.get`` gives, in both readers: every kind, errors, formula cells
     without a result, rows and columns beyond the used area, a run starting mid-sheet."""
-    path = (_every_kind(tmp_path / "kinds.xlsx") if book == "every_kind"
+    path = (every_kind_book(tmp_path / "kinds.xlsx") if book == "every_kind"
             else _formula_book(tmp_path, 5) if book == "unsaved" else book)
     pkg = open_package(path)
     seen = set()
@@ -146,7 +111,7 @@ def test_columns_read_in_bulk_equal_cells_read_one_by_one(book, reader: str, tmp
                         for i in range(len(col)):
                             want = sv.get(row1 + i, c)
                             seen.add(want.kind)
-                            assert _same_value(col.value(i), want), (name, row1 + i, c)
+                            assert same_value(col.value(i), want), (name, row1 + i, c)
     if book == "every_kind":
         assert seen == {"blank", "number", "text", "error", "other"}
     if book == "unsaved":

@@ -9,9 +9,9 @@ import math
 
 import numpy as np
 import pytest
-from books import READERS, only_reader
-from test_values import _every_kind, _same_value
+from books import READERS, every_kind_book, only_reader, same_value
 
+from sheetfit.a1 import col_letter
 from sheetfit.reader import _columnar as columnar
 from sheetfit.reader._columnar import Irregular, read_columns
 from sheetfit.reader._sheetxml import stream_sheet
@@ -30,14 +30,6 @@ def _part(rows: list[list[str]]) -> bytes:
     body = b"".join(f'<row r="{r}">{"".join(cells)}</row>'.encode()
                     for r, cells in enumerate(rows, start=1))
     return HEAD + body + TAIL
-
-
-def _col(k: int) -> str:
-    name = ""
-    while k:
-        k, rem = divmod(k - 1, 26)
-        name = chr(65 + rem) + name
-    return name
 
 
 def _both(part: bytes, chunk: int) -> tuple:
@@ -71,7 +63,7 @@ def test_bulk_numbers_equal_float_bit_for_bit(monkeypatch) -> None:
     values += ["0", "-0", "1E-5", "4.9E-324", "2.2250738585072014E-308",
                "1.7976931348623157E+308", "123456789012345678901234567890", "0.1", "+7"]
     width = 7
-    rows = [[f'<c r="{_col(c + 1)}{r + 1}" s="3"><v>{values[r * width + c]}</v></c>'
+    rows = [[f'<c r="{col_letter(c + 1)}{r + 1}" s="3"><v>{values[r * width + c]}</v></c>'
              for c in range(width) if r * width + c < len(values)]
             for r in range(math.ceil(len(values) / width))]
     def one_by_one(*args):
@@ -175,7 +167,7 @@ def test_a_refresh_reads_with_each_reader_and_the_default_is_ours(reader, tmp_pa
                                                                   ) -> None:
     """The every-kind book through ``BookValues``: each reader is used when the earlier ones
     are switched off, and all give the cells the column reader gives."""
-    path = _every_kind(tmp_path / "kinds.xlsx")
+    path = every_kind_book(tmp_path / "kinds.xlsx")
     pkg = open_package(path)
     with _values(pkg, path) as values:
         default = values.sheet("Data")
@@ -191,4 +183,4 @@ def test_a_refresh_reads_with_each_reader_and_the_default_is_ours(reader, tmp_pa
                     if a.kind == "number" and reader == "fast":  # dates: to the microsecond
                         assert a.number == pytest.approx(b.number, rel=0, abs=1e-10)
                     else:
-                        assert _same_value(a, b), (r, c)
+                        assert same_value(a, b), (r, c)

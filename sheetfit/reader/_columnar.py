@@ -33,7 +33,6 @@ way (the fast or the streaming reader). Nothing is guessed.
 
 from __future__ import annotations
 
-import datetime as dt
 import itertools
 import re
 from collections.abc import Callable, Iterator
@@ -42,7 +41,7 @@ from typing import IO, Any
 
 import numpy as np
 
-from ._sheetxml import TEXT_CAP
+from ._sheetxml import TEXT_CAP, raw_value
 
 __all__ = ["CHUNK", "Columnar", "Irregular", "Read", "located", "read_columns", "sheet_chunks"]
 
@@ -364,34 +363,10 @@ def _numbers(ch: _Chunk, which: np.ndarray) -> np.ndarray | None:
     return out if len(out) == len(which) else None
 
 
-def _one_value(kind: bytes, v: bytes | None, inline: str | None, strings: Callable[[], list[str]]
-               ) -> Any:
-    """One cell's raw value, as ``_sheetxml._value`` gives it."""
-    if kind == b"inlineStr":
-        return inline if inline is not None else (_unescape(v or b""))[:TEXT_CAP]
-    if v is None:
-        return ""
-    text = _unescape(v)
-    if kind == b"s":
-        try:
-            return strings()[int(text)]
-        except (ValueError, IndexError):
-            return ""
-    if kind == b"b":
-        return text.strip() in ("1", "true")
-    if kind == b"str":
-        return text[:TEXT_CAP]
-    if kind == b"d":
-        try:
-            return dt.datetime.fromisoformat(text.strip())
-        except ValueError:
-            return text[:TEXT_CAP]
-    if text.strip() == "":
-        return ""
-    try:
-        return float(text)
-    except ValueError:
-        return text[:TEXT_CAP]
+def _one_value(kind: bytes, v: bytes | None, inline: str | None,
+               strings: Callable[[], list[str]]) -> Any:
+    """One cell's raw value, as the streaming parse gives it (``_sheetxml.raw_value``)."""
+    return raw_value(kind.decode("ascii"), None if v is None else _unescape(v), inline, strings)
 
 
 def _inline_text(buf: bytes, at: int, end: int) -> str:

@@ -19,7 +19,7 @@ from __future__ import annotations
 import datetime as dt
 import re
 import zipfile
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from io import BufferedIOBase
 from typing import IO, Any, cast
@@ -188,15 +188,19 @@ def read_shared_strings(fh: IO[bytes]) -> list[str]:
     return out
 
 
-def _value(kind: str, v: str | None, inline: Any, strings: list[str]) -> Any:
-    """A cell's raw value in the shapes the fast reader returns ("" for blank)."""
+def raw_value(kind: str, v: str | None, inline: str | None,
+              strings: Callable[[], list[str]]) -> Any:
+    """A cell's raw value in the shapes the fast reader returns ("" for blank), from its
+    type, the text of its ``<v>`` (None when it has none), the text of its inline string
+    (None when it has none) and the book's shared strings (asked for only when needed).
+    The streaming parse and the column reader (``_columnar``) both read cells by this."""
     if kind == "inlineStr":
-        return _text_of(inline) if inline is not None else (v or "")[:TEXT_CAP]
+        return inline if inline is not None else (v or "")[:TEXT_CAP]
     if v is None:
         return ""
     if kind == "s":
         try:
-            return strings[int(v)]
+            return strings()[int(v)]
         except (ValueError, IndexError):
             return ""
     if kind == "b":
@@ -263,7 +267,8 @@ def stream_sheet(fh: IO[bytes], strings: list[str], stop_row: int | None = None)
         if formula is not None and v is None and inline is None:
             out.unsaved.add((row, col))
             continue
-        raw = _value(kind, v, inline, strings)
+        raw = raw_value(kind, v, None if inline is None else _text_of(inline),
+                        lambda: strings)
         if raw != "":
             out.rows.setdefault(row, {})[col] = raw
     return out
