@@ -127,6 +127,7 @@ def test_every_kind_of_cell_as_the_streaming_parse_reads_it(chunk: int) -> None:
     ("lower-case reference", _part([['<c r="a1"><v>1</v></c>']])),
     ("single quotes", _part([["<c r='A1'><v>1</v></c>"]])),
     ("no sheet data end", HEAD + b'<row r="1"><c r="A1"><v>1</v></c></row>'),
+    ("inline string tag with a space", _part([['<c r="A1" t="inlineStr"><is ><t>x</t></is></c>']])),
 ])
 def test_shapes_it_does_not_take_are_refused_not_guessed(shape: str, part: bytes) -> None:
     """Each shape outside the plain one raises Irregular (the caller then reads the part

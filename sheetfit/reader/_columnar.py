@@ -338,7 +338,10 @@ def _locate(buf: bytes) -> _Chunk | None:
         f_at[owner[keep]] = f_open[keep]
     is_at = np.full(len(cells), -1, dtype=np.int64)
     is_open = _starts(a, lt, ord("i"), (ord("s"),))
-    is_open = is_open[a[np.minimum(is_open + 3, n - 1)] == _GT]
+    plain_is = a[np.minimum(is_open + 3, n - 1)] == _GT
+    if not plain_is.all():  # <is …> or <isX: not a shape read here
+        raise Irregular("an inline string tag with attributes")
+
     if len(is_open):
         owner = _owner(cells, tag_ends, is_open, inside_tag=False)
         keep = owner >= 0
