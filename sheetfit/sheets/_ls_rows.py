@@ -37,7 +37,6 @@ class RowColumns:
     cooks_col: int
     press_col: int
     flag_col: int
-    press: np.ndarray  # nan where the cell is blank
     flags: list[str]
     loo_rmse: float | str
 
@@ -103,7 +102,6 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         "&IF(", *big_c, ",IF(", *big_s, ',", ","")&"influential","")',
         f"&IF({L}", r, f">2*{p}/{n},IF(OR(", *big_s, ",", *big_c, '),", ","")&"high leverage","")'),
         "flag")
-    press = np.where(ok, pr_num, np.nan)  # nan where the cell is blank
     last = FIRST_ROW + n
     rs.put(last + 1, lev_c - 1, "sum of leverages (= p)", style="label")
     lev_sum = exact_sum(h)
@@ -123,4 +121,4 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
     if ok.all():
         loo = math.sqrt(exact_dot(pr_num, pr_num) / n)
     rs.widths.update({lev_c: 11, st_c: 13, ck_c: 12, pr_c: 16, fl_c: 30})
-    return RowColumns(lev_c, st_c, ck_c, pr_c, fl_c, press, flags, loo)
+    return RowColumns(lev_c, st_c, ck_c, pr_c, fl_c, flags, loo)
