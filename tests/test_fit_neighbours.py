@@ -294,6 +294,21 @@ def test_grid_with_duplicates_matches_brute_force(
     _check_against_reference(X, y, k, on)
 
 
+@pytest.mark.parametrize("chunk", [1, 97, 2_000])
+def test_search_in_small_blocks_matches_brute_force(chunk: int, monkeypatch) -> None:
+    """The search takes query rows a block at a time (``_search._CHUNK`` elements of
+    candidate differences); with blocks of one row, of a few rows and of a few dozen, a
+    duplicate-rich grid still equals the O(n²) reference exactly (a block written to the
+    wrong rows, or a row left out between blocks, fails it)."""
+    from sheetfit.fit import _search
+
+    monkeypatch.setattr(_search, "_CHUNK", chunk)
+    rng = _rng(4242)
+    X = rng.integers(0, 4, size=(150, 3)).astype(float)
+    y = rng.normal(size=150).round(2)
+    _check_against_reference(X, y, 12, True)
+
+
 @settings(max_examples=40, deadline=None)
 @given(
     rows=st.lists(
