@@ -125,8 +125,10 @@ class _Base:
         self._tree = tree
         self.k_ = k
         self.k_given_ = k_given
-        self._order_J = order_J
-        self._order_D = order_D
+        # only the chosen k of each row's ordered list is kept: the search's deeper table
+        # (25 a row for the k table, 400 bytes a row) is let go with the fit
+        self._order_J = readonly(np.ascontiguousarray(order_J[:, :k]))
+        self._order_D = readonly(np.ascontiguousarray(order_D[:, :k]))
         self.k_table_ = k_table
 
     @cached_property
@@ -137,12 +139,12 @@ class _Base:
     @cached_property
     def neighbours_(self) -> np.ndarray:
         """Each training row's k_ neighbours (row indices, nearest first, itself excluded)."""
-        return readonly(self._order_J[:, : self.k_].copy())
+        return self._order_J
 
     @cached_property
     def distances_(self) -> np.ndarray:
         """Exact distances in standard units to the neighbours in neighbours_."""
-        return readonly(self._order_D[:, : self.k_].copy())
+        return self._order_D
 
     @cached_property
     def X_mean_(self) -> np.ndarray:
