@@ -11,13 +11,13 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 
 import numpy as np
 
 from sheetfit.fit._dd import two_sum
 
-__all__ = ["exact_dot", "exact_sum", "fsum_rows", "prefix_fsums"]
+__all__ = ["exact_dot", "exact_sum", "fsum_rows", "iter_prefix_fsums", "prefix_fsums"]
 
 _EPS = float(np.finfo(np.float64).eps)
 #: Elements turned into Python floats at a time by :func:`exact_sum` and :func:`exact_dot`.
@@ -65,8 +65,14 @@ def _finish(
 
 def prefix_fsums(A: np.ndarray, ks: Sequence[int]) -> dict[int, np.ndarray]:
     """For each k in ks, the correctly rounded sum of the first k columns of each row."""
+    return dict(iter_prefix_fsums(A, ks))
+
+
+def iter_prefix_fsums(A: np.ndarray, ks: Sequence[int]) -> Iterator[tuple[int, np.ndarray]]:
+    """(k, the correctly rounded sum of the first k columns of each row) for each k in ks,
+    in increasing k, each made as the running sum reaches it (the caller keeps what it
+    needs: a k table of 25 sums of a million rows is 200 MB)."""
     want = set(ks)
-    out: dict[int, np.ndarray] = {}
     r = A.shape[0]
     hi = np.zeros(r)
     lo = np.zeros(r)
@@ -76,8 +82,7 @@ def prefix_fsums(A: np.ndarray, ks: Sequence[int]) -> dict[int, np.ndarray]:
         lo, e2 = two_sum(lo, e)
         lost += np.abs(e2)
         if c + 1 in want:
-            out[c + 1] = _finish(hi, lo, lost == 0, lost, c + 1, A)
-    return out
+            yield c + 1, _finish(hi, lo, lost == 0, lost, c + 1, A)
 
 
 def fsum_rows(A: np.ndarray) -> np.ndarray:

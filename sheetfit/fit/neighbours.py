@@ -39,7 +39,7 @@ from sheetfit.fit import checks
 from sheetfit.fit._arrays import divide, readonly
 from sheetfit.fit._classes import class_index, label_repr, parse_labels, position_votes, vote
 from sheetfit.fit._search import TIE_DIGITS, search
-from sheetfit.fit._sums import exact_dot, exact_sum, fsum_rows, prefix_fsums
+from sheetfit.fit._sums import exact_dot, exact_sum, fsum_rows, iter_prefix_fsums
 from sheetfit.fit.scaling import Scaling, attribute_stats, standard_units
 
 __all__ = [
@@ -202,16 +202,25 @@ class NeighbourMean:
         n = X.shape[0]
         Y = y[J]
         ks = list(range(1, table_max + 1))
-        sums = prefix_fsums(Y, ks + ([int(self.k)] if self.k is not None else []))
-        table = []
-        for k in ks:
-            res = y - sums[k] / k
-            table.append((k, math.sqrt(exact_dot(res, res) / n)))
+        table: list[tuple[int, float]] = []
+        kept: dict[int, np.ndarray] = {}  # the sum of the given k, or of the best so far
+        best = math.inf
+        for k, total in iter_prefix_fsums(Y, ks + ([int(self.k)] if self.k is not None
+                                                   else [])):
+            if k <= table_max:
+                res = y - total / k
+                err = math.sqrt(exact_dot(res, res) / n)
+                table.append((k, err))
+                if self.k is None and err < best:  # equal errors: the smaller k stays
+                    best, kept = err, {k: total}
+            if self.k is not None and k == int(self.k):
+                kept = {k: total}
+        del Y
         k_ = int(self.k) if self.k is not None else _best_k(table)
         return NeighbourMeanResult(
             X=X, names=names_, scaling=scaling, Z=Z, tree=tree, k=k_,
             k_given=self.k is not None, order_J=J, order_D=D, k_table=table,
-            y=y, fitted=sums[k_] / k_,
+            y=y, fitted=kept[k_] / k_,
         )  # fmt: skip
 
 
