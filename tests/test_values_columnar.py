@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import io
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -14,7 +15,7 @@ from books import READERS, every_kind_book, only_reader, same_value
 from sheetfit.a1 import col_letter
 from sheetfit.reader import _columnar as columnar
 from sheetfit.reader._columnar import Irregular, read_columns
-from sheetfit.reader._sheetxml import stream_sheet
+from sheetfit.reader._sheetxml import TEXT_CAP, stream_sheet
 from sheetfit.reader.package import open_package
 from sheetfit.refresh import _values
 
@@ -185,3 +186,41 @@ def test_a_refresh_reads_with_each_reader_and_the_default_is_ours(reader, tmp_pa
                         assert a.number == pytest.approx(b.number, rel=0, abs=1e-10)
                     else:
                         assert same_value(a, b), (r, c)
+
+
+def test_shared_strings_by_byte_search_equal_the_hardened_parse(tmp_path) -> None:
+    """The shared strings read by byte searches equal the defusedxml parse on the
+    every-kind book, every example book and a crafted table (entities and character
+    references, CR LF, preserved spaces, empty items both ways, rich runs, a phonetic run,
+    a 40,000-character item capped); prefixed or commented tables are refused."""
+    import zipfile
+
+    from sheetfit.reader._sheetxml import read_shared_strings
+
+    long = "y" * 40_000
+    crafted = ('<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+               '<sst xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main" '
+               'count="8" uniqueCount="8"><si><t>a &amp; b &lt;c&gt; &#233;&#x263A;</t></si>'
+               '<si><t xml:space="preserve">  two\r\nlines </t></si><si><t/></si><si/>'
+               '<si><r><rPr><b/></rPr><t>ri</t></r><r><t xml:space="preserve">ch </t></r>'
+               '</si><si><t>kanji</t><rPh sb="0" eb="1"><t>kana</t></rPh>'
+               '<phoneticPr fontId="1"/></si>'
+               f'<si><t>{long}</t></si><si><t>"quoted" \'single\'</t></si></sst>').encode()
+    parts = [crafted]
+    books = [every_kind_book(tmp_path / "kinds.xlsx"), *sorted(
+        (Path(__file__).parents[1] / "example_books").glob("*.xlsx"))]
+    for book in books:
+        with zipfile.ZipFile(book) as z:
+            parts += [z.read(n) for n in z.namelist() if n.endswith("sharedStrings.xml")]
+    assert len(parts) >= 2
+    for data in parts:
+        want = read_shared_strings(io.BytesIO(data))
+        assert columnar.shared_strings(data) == want
+        assert columnar.shared_strings(bytearray(data)) == want
+    got = columnar.shared_strings(crafted)
+    assert got[:6] == ["a & b <c> é☺", "  two\nlines ", "", "", "rich ", "kanji"]
+    assert len(got[6]) == TEXT_CAP
+    for bad in (crafted.replace(b"<sst xmlns=", b"<x:sst xmlns:x=").replace(b"<si>", b"<x:si>"),
+                crafted.replace(b"<si/>", b"<!-- note --><si/>")):
+        with pytest.raises(Irregular):
+            columnar.shared_strings(bad)

@@ -40,7 +40,7 @@ from defusedxml import DefusedXmlException
 from defusedxml.ElementTree import ParseError
 
 from ..errors import Context, PackageError
-from ._columnar import Irregular, Read, read_columns
+from ._columnar import Irregular, Read, read_columns, shared_strings
 from ._dense import Dense, dense_from_rows
 from ._sheetxml import TEXT_CAP, part_bytes, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
@@ -383,10 +383,22 @@ class BookValues:
                         member = self._member(rel.part)
                     except KeyError:
                         continue
-                    with self._archive().open(member) as fh:
-                        self._strings = read_shared_strings(fh)
+                    self._strings = self._read_strings(member)
                     break
         return self._strings
+
+    def _read_strings(self, member: str) -> list[str]:
+        """The shared strings: by byte searches when the part is plain UTF-8
+        (``_columnar.shared_strings``), else by the hardened streaming parse."""
+        data = part_bytes(self._archive(), member)
+        if utf8(data):
+            try:
+                return shared_strings(data)
+            except (Irregular, UnicodeDecodeError, ValueError, OverflowError):
+                pass
+        del data
+        with self._archive().open(member) as fh:
+            return read_shared_strings(fh)
 
     def _zip_read(self, part: str) -> bytes:
         return self._archive().read(self._member(part))
