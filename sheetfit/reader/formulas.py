@@ -73,30 +73,18 @@ class PlainRefs:
     def add(self, row: int, col: int, formula: str) -> None:
         ref = plain_ref(formula)
         if ref is not None:
-            self.append(row, col, ref[0], ref[1], ref[2])
-
-    def append(self, row: int, col: int, sheet: str, to_row: int, to_col: int) -> None:
-        sid = self._ids.get(sheet)
-        if sid is None:
-            sid = self._ids[sheet] = len(self.sheet_names)
-            self.sheet_names.append(sheet)
-        for part, v in zip(self._open, (row, col, sid, to_row, to_col), strict=True):
-            part.append(v)
+            self.extend([row], [col], [ref[0]], [ref[1]], [ref[2]])
 
     def extend(self, rows: list[int], cols: list[int], sheets: list[str],
                to_rows: list[int], to_cols: list[int]) -> None:
-        """Many references at once (lists of equal length)."""
-        ids = [self._ids.get(s) for s in dict.fromkeys(sheets)]
-        if None in ids:
-            for sheet in dict.fromkeys(sheets):
-                if sheet not in self._ids:
-                    self._ids[sheet] = len(self.sheet_names)
-                    self.sheet_names.append(sheet)
-        self._open[0].extend(rows)
-        self._open[1].extend(cols)
-        self._open[2].extend(map(self._ids.__getitem__, sheets))
-        self._open[3].extend(to_rows)
-        self._open[4].extend(to_cols)
+        """References, given as lists of equal length (sheets by name)."""
+        for sheet in dict.fromkeys(sheets):
+            if sheet not in self._ids:
+                self._ids[sheet] = len(self.sheet_names)
+                self.sheet_names.append(sheet)
+        for part, got in zip(self._open, (rows, cols, map(self._ids.__getitem__, sheets),
+                                          to_rows, to_cols), strict=True):
+            part.extend(got)
 
     def close_chunk(self) -> None:
         """Turn the references gathered so far into arrays (lists never grow long)."""
@@ -114,25 +102,11 @@ class PlainRefs:
             self._parts = [self._arrays] if self._parts else []
         return self._arrays
 
-    @property
-    def rows(self) -> np.ndarray:
-        return self._all()[0]
-
-    @property
-    def cols(self) -> np.ndarray:
-        return self._all()[1]
-
-    @property
-    def sheets(self) -> np.ndarray:
-        return self._all()[2]
-
-    @property
-    def to_rows(self) -> np.ndarray:
-        return self._all()[3]
-
-    @property
-    def to_cols(self) -> np.ndarray:
-        return self._all()[4]
+    rows = property(lambda self: self._all()[0], doc="Row of each referring cell.")
+    cols = property(lambda self: self._all()[1], doc="Column of each referring cell.")
+    sheets = property(lambda self: self._all()[2], doc="Index into sheet_names of each.")
+    to_rows = property(lambda self: self._all()[3], doc="Row of each cell referred to.")
+    to_cols = property(lambda self: self._all()[4], doc="Column of each cell referred to.")
 
     def listed(self) -> list[tuple[int, int, str, int, int]]:
         """Every reference as (row, col, sheet, to_row, to_col), in the order found."""
