@@ -290,7 +290,7 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(reader: str, tmp_pa
     """The bulk digests of a two-column area holding every kind of cell (0 and -0, repeated
     numbers and texts) equal SHA-256 of the README's tokens, written out here by hand, in
     recipe order (row by row, left to right), and the one-cell path (``digest_cell``) of
-    each cell; in each reader."""
+    each cell; in each reader, and with the column's numbers taken in stretches of two."""
     import datetime as dt
 
     import xlsxwriter
@@ -336,6 +336,9 @@ def test_cell_digests_in_bulk_follow_the_recipe_cell_by_cell(reader: str, tmp_pa
         memo: dict = {}
         assert area_digests(area, values, memo).hex() == want
         assert area_digests(area, values, memo).hex() == want  # again, from the memo
+        from sheetfit.declare import fingerprint
+        monkeypatch.setattr(fingerprint, "_CELLS", 2)  # numbers found in stretches of 2
+        assert area_digests(area, values, {}).hex() == want
         one_by_one = "".join(digest_cell(values.sheet("Data").get(r, c))
                              for r in range(1, 10) for c in (1, 2))
         assert one_by_one == want

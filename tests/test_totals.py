@@ -53,6 +53,22 @@ def test_subtotals_and_grand_total() -> None:
     ]
 
 
+def test_columns_given_apart_find_the_same_totals() -> None:
+    """The response and the attributes passed as separate arrays (how a model's rows are
+    checked, without copying them into one table) give the same totals as one table,
+    including zero rows, which the separate parts must see as zero across all columns
+    (they join the block they sit in)."""
+    Z = _routes(40)
+    a, b = Z[:17], Z[17:]
+    rows = np.vstack([a, a.sum(0), np.zeros(3), b, b.sum(0), Z.sum(0)])
+    whole = find_totals(rows)
+    assert whole == [Total(17, 0, 16, 0), Total(42, 18, 41, 0), Total(43, 0, 42, 2)]
+    assert find_totals(rows[:, 0], rows[:, 1:]) == whole
+    assert find_totals(rows[:, :2], rows[:, 2]) == whole
+    with pytest.raises(ValueError):
+        find_totals(rows[:, 0], rows[:-1, 1:])
+
+
 def test_a_one_row_block_is_not_a_total() -> None:
     """A row equal to the single row above it is a duplicate, not a total (block ≥ 2 rows)."""
     Z = np.array([[1.0, 2.0], [5.0, 7.0], [5.0, 7.0]])

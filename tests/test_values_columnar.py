@@ -16,6 +16,7 @@ from sheetfit.a1 import col_letter
 from sheetfit.reader import _columnar as columnar
 from sheetfit.reader._columnar import Irregular, read_columns
 from sheetfit.reader._sheetxml import TEXT_CAP, stream_sheet
+from sheetfit.reader.columns import Mixed, column_values
 from sheetfit.reader.package import open_package
 from sheetfit.refresh import _values
 
@@ -148,7 +149,8 @@ def test_a_stray_far_cell_costs_one_entry_not_a_rectangle() -> None:
     assert sizes == {1: 3, 16384: 1}
     assert read.cells.raw(1_048_576, 16384) == 42.0
     assert read.cells.last_row(1, 16384) == 1_048_576
-    assert read.cells.column(16384, 1_048_575, 1_048_576) == ["", 42.0]
+    far = read.cells.column(16384, 1_048_575, 1_048_576)
+    assert isinstance(far, Mixed) and far.tolist() == ["", 42.0]
     view = read.cells.column(1, 1, 3)
     assert isinstance(view, np.ndarray) and not view.flags.writeable
     assert view.tolist() == [1.0, 2.0, 3.0]
@@ -161,7 +163,9 @@ def test_gaps_in_a_column_keep_their_rows() -> None:
                   for r in range(1, 10)])
     mine, theirs = _both(part, 32)
     _assert_same(mine, theirs, 9, 1)
-    assert mine.cells.column(1, 1, 10) == [1.5, 3.0, "", "", 7.5, "", "", "", 13.5, ""]
+    gaps = mine.cells.column(1, 1, 10)
+    assert isinstance(gaps, Mixed)  # numbers in place, not a list of Python floats
+    assert gaps.tolist() == [1.5, 3.0, "", "", 7.5, "", "", "", 13.5, ""]
 
 
 @pytest.mark.parametrize("reader", READERS)
@@ -224,3 +228,20 @@ def test_shared_strings_by_byte_search_equal_the_hardened_parse(tmp_path) -> Non
                 crafted.replace(b"<si/>", b"<!-- note --><si/>")):
         with pytest.raises(Irregular):
             columnar.shared_strings(bad)
+
+
+def test_a_mixed_column_classifies_as_its_list_does() -> None:
+    """A stretch of numbers with other cells among them (a header, text, a logical, an
+    empty text, a long text, an error and a formula without its result over numbers)
+    gives the same arrays as the same raw values one by one."""
+    number = np.array([np.nan, 1.5, np.nan, -0.0, np.nan, np.nan, 7.0, np.nan, 2.5, np.nan])
+    has = ~np.isnan(number)
+    others = {0: "cost", 2: True, 4: "", 5: "x" * (TEXT_CAP + 50), 9: " lvl "}
+    mixed = Mixed(number.copy(), has, others)
+    errors, unsaved = {(18, 3): "#N/A"}, {(16, 3)}
+    a = column_values("S", 3, 10, mixed, errors, unsaved, False)
+    b = column_values("S", 3, 10, mixed.tolist(), errors, unsaved, False)
+    assert a.kind.tolist() == b.kind.tolist()
+    assert np.array_equal(a.number, b.number, equal_nan=True)
+    assert a.text == b.text and len(a.text[5]) == TEXT_CAP
+    assert [a.value(i) for i in range(len(a))] == [b.value(i) for i in range(len(b))]

@@ -196,6 +196,9 @@ def settings_text(values: Mapping[str, Any], names: Sequence[str]) -> str:
 
 #: Cells whose tokens are built and hashed together (bounds the memory the tokens take).
 _CHUNK = 1 << 16
+#: Cells of a column whose distinct numbers are found together (a number repeated across
+#: stretches is hashed once per stretch; the digests are the same).
+_CELLS = 1 << 18
 _PREFIX = {TEXT: "t:", ERROR: "e:", OTHER: "l:"}
 _FIXED = {BLANK: "b:", UNSAVED: "u:"}
 
@@ -233,8 +236,11 @@ def column_digests(cv: ColumnValues) -> np.ndarray:
         mask = cv.of_kind(kind)
         if mask.any():
             out[mask] = _hash_all([token.encode()])[0]
-    nums = np.flatnonzero(cv.of_kind(NUMBER))
-    if len(nums):
+    isnum = cv.of_kind(NUMBER)
+    for a in range(0, n, _CELLS):  # distinct numbers per stretch: memory stays bounded
+        nums = np.flatnonzero(isnum[a:a + _CELLS]) + a
+        if not len(nums):
+            continue
         bits, where = np.unique(cv.number[nums].view(np.uint64), return_inverse=True)
         digests = np.empty(len(bits), dtype=">u4")
         for k in range(0, len(bits), _CHUNK):
@@ -264,7 +270,8 @@ def area_digests(area: Area, values: BookValues, memo: DigestMemo | None = None)
     for c in range(area.col1, area.col2 + 1):
         key = (area.sheet.casefold(), c, area.row1, area.row2)
         if key not in memo:
-            memo[key] = column_digests(values.column(area.sheet, c, area.row1, area.row2))
+            memo[key] = column_digests(values.column(area.sheet, c, area.row1, area.row2,
+                                                     keep=False))
         cols.append(memo[key])
     if len(cols) == 1:
         return cols[0].astype(">u4", copy=False).tobytes()

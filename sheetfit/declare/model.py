@@ -157,10 +157,12 @@ def _read_model(decl: Decl, pkg: Package, values: BookValues, file: str,
     cat = text_columns(cells[1:]) if method.text_attributes else [False] * len(xcols)
     used, left, Y, X, texts = read_rows(ycol, xcols, cells, method.labels, cat)
     num = [j for j, t in enumerate(cat) if not t]
-    keep, left = leave_out_totals(ycol, used, left, Y, X[:, num], method.labels,
-                                   len(num) < len(cat))
-    used, Y, X = used[keep], Y[keep], X[keep]
-    texts = {j: [t for t, k in zip(col, keep) if k] for j, col in texts.items()}
+    keep, left = leave_out_totals(ycol, used, left, Y,
+                                  X if len(num) == X.shape[1] else X[:, num], method.labels,
+                                  len(num) < len(cat))
+    if not keep.all():  # else no copies: a million rows of X are 40 MB each
+        used, Y, X = used[keep], Y[keep], X[keep]
+        texts = {j: [t for t, k in zip(col, keep) if k] for j, col in texts.items()}
     ctx = Context(file, dy.name, ycol.sheet, cell_ref(ycol.first_row, ycol.col))
     most = method.max_attributes
     if most is not None and len(xcols) > most:

@@ -152,10 +152,9 @@ def leave_out_totals(
     has the rule). Returns the mask over ``used`` and the left-out list with the totals.
     """
     keep = np.ones(len(used), dtype=bool)
-    Z = X if labels else np.column_stack([Y, X])
-    if Z.shape[1] < 2 or len(used) == 0:
+    if X.shape[1] + (0 if labels else 1) < 2 or len(used) == 0:
         return keep, left
-    totals = find_totals(Z)
+    totals = find_totals(X) if labels else find_totals(Y, X)
     if not totals:
         return keep, left
     attrs = "every numeric attribute" if some_text else "every attribute"

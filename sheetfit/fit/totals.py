@@ -114,21 +114,30 @@ def reason(first: int, last: int, total: Total, what: str) -> str:
     return f"looks like the total of rows {first}–{last} ({what}{extra})"
 
 
-def find_totals(Z: np.ndarray) -> list[Total]:
-    """Rows of ``Z`` (rows × columns, finite floats) that look like totals, in row order."""
-    Z = np.asarray(Z, dtype=np.float64)
-    if Z.ndim != 2:
-        raise ValueError("find_totals needs a 2-D array of rows × columns")
-    n, m = Z.shape
+def find_totals(Z: np.ndarray, *more: np.ndarray) -> list[Total]:
+    """Rows of ``Z`` (rows × columns, finite floats) that look like totals, in row order.
+
+    ``more`` are further columns of the same rows (1-D or rows × columns), taken as if
+    placed to the right of ``Z``: a million-row response and attribute table is then
+    never copied into one array, only a window of rows at a time."""
+    parts = [np.asarray(z, dtype=np.float64) for z in (Z, *more)]
+    parts = [z[:, None] if z.ndim == 1 and more else z for z in parts]
+    if any(z.ndim != 2 for z in parts) or len({len(z) for z in parts}) > 1:
+        raise ValueError("find_totals needs 2-D arrays of rows × columns, the same rows")
+    n, m = len(parts[0]), sum(z.shape[1] for z in parts)
     if m == 0:
         return []
+    def window(i: int, j: int) -> np.ndarray:
+        return parts[0][i:j] if len(parts) == 1 else np.hstack([z[i:j] for z in parts])
     block, grand = _Running(m), _Running(m)
-    nonzero = np.any(Z != 0, axis=1)
+    nonzero = np.zeros(n, dtype=bool)
+    for z in parts:
+        nonzero |= np.any(z != 0, axis=1)
     found: list[Total] = []
     i, width = 0, _MIN_WINDOW
     while i < n:
         j = min(n, i + width)
-        rows = Z[i:j]
+        rows = window(i, j)
         sub, b_total, b_size = block.window(rows, nonzero[i:j])
         grand_hit, g_total, g_size = grand.window(rows, nonzero[i:j])
         if grand.skipped == 0:  # a grand total sums subtotalled blocks

@@ -42,6 +42,7 @@ from typing import IO, Any
 import numpy as np
 
 from ._sheetxml import TEXT_CAP, raw_value
+from .columns import Mixed
 
 __all__ = ["CHUNK", "Columnar", "Irregular", "Read", "located", "read_columns", "shared_strings",
            "sheet_chunks"]
@@ -98,7 +99,7 @@ class Columnar:
         c = self.columns.get(col)
         return "" if c is None else c.raw(row)
 
-    def column(self, col: int, row1: int, row2: int) -> list[Any] | np.ndarray:
+    def column(self, col: int, row1: int, row2: int) -> list[Any] | np.ndarray | Mixed:
         """Raw values of rows row1..row2 ("" where no cell holds one); an unbroken run of
         plain numbers comes back as a read-only float64 view."""
         c = self.columns.get(col)
@@ -140,7 +141,7 @@ class _Column:
         lo, hi = self._span(row, row)
         return float(self.numbers[lo]) if hi > lo else ""
 
-    def column(self, row1: int, row2: int) -> list[Any] | np.ndarray:
+    def column(self, row1: int, row2: int) -> np.ndarray | Mixed:
         n = row2 - row1 + 1
         lo, hi = self._span(row1, row2)
         inside = ([r for r in self.others if row1 <= r <= row2]
@@ -150,18 +151,14 @@ class _Column:
             view = self.numbers[lo:hi].view()
             view.flags.writeable = False
             return view
-        out: list[Any] = [""] * n
+        number = np.full(n, np.nan)
+        has = np.zeros(n, dtype=bool)
         if hi > lo:
-            values = self.numbers[lo:hi].tolist()
-            if self.rows is None:
-                start = self.first + lo - row1
-                out[start:start + len(values)] = values
-            else:
-                for r, v in zip((self.rows[lo:hi] - row1).tolist(), values, strict=True):
-                    out[r] = v
-        for r in inside:
-            out[r - row1] = self.others[r]
-        return out
+            at = (slice(self.first + lo - row1, self.first + hi - row1) if self.rows is None
+                  else self.rows[lo:hi] - row1)
+            number[at] = self.numbers[lo:hi]
+            has[at] = True
+        return Mixed(number, has, {r - row1: self.others[r] for r in inside})
 
     def last_row(self) -> int:
         last = self._row_of(len(self.numbers) - 1) if len(self.numbers) else 0

@@ -19,7 +19,7 @@ import numpy as np
 from ._sheetxml import TEXT_CAP
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
 
-__all__ = ["CODE", "KINDS", "ColumnValues", "column_values"]
+__all__ = ["CODE", "KINDS", "ColumnValues", "Mixed", "column_values"]
 
 #: Kind words by code (the index), and codes by kind word.
 KINDS = (BLANK, NUMBER, TEXT, ERROR, OTHER, UNSAVED)
@@ -75,14 +75,38 @@ class ColumnValues:
         return out
 
 
-def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray,
+@dataclass(frozen=True)
+class Mixed:
+    """Raw values of a stretch of a column as the column store keeps them: the plain
+    numbers in place in a float64 array (nan elsewhere), a mask of the rows holding one,
+    and every other cell's raw value by its offset (a header, a stray text). A million
+    rows with a header above them then never become a million Python floats."""
+
+    number: np.ndarray
+    has: np.ndarray
+    others: dict[int, Any]
+
+    def __len__(self) -> int:
+        return int(self.number.shape[0])
+
+    def tolist(self) -> list[Any]:
+        """The raw values one by one ("" where no cell holds one), as a list."""
+        out: list[Any] = [v if h else "" for v, h in zip(self.number.tolist(),
+                                                         self.has.tolist(), strict=True)]
+        for i, raw in self.others.items():
+            out[i] = raw
+        return out
+
+
+def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray | Mixed,
                   errors: dict[tuple[int, int], str], unsaved: set[tuple[int, int]],
                   date1904: bool) -> ColumnValues:
     """Classify one column's raw values (row ``row1`` onwards) in bulk.
 
     ``errors`` and ``unsaved`` are the sheet's error cells and formula cells without a
     saved result, which override the raw value as ``SheetValues.get`` does. A float64
-    array of ``raws`` is a run of plain numbers (the fast reader's column store).
+    array of ``raws`` is a run of plain numbers (the fast reader's column store), a
+    :class:`Mixed` the store's numbers with other cells among them.
     """
     n = len(raws)
     kind = np.zeros(n, dtype=np.uint8)
@@ -90,6 +114,11 @@ def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray,
     if isinstance(raws, np.ndarray):  # the store's own read-only array: no copy
         return _overrides(sheet, col, row1, np.full(n, _NUMBER, dtype=np.uint8),
                           np.asarray(raws, dtype=np.float64), text, errors, unsaved)
+    if isinstance(raws, Mixed):
+        kind[raws.has] = _NUMBER
+        for i, raw in raws.others.items():
+            _one(raws.number, kind, text, i, raw, date1904)
+        return _overrides(sheet, col, row1, kind, raws.number, text, errors, unsaved)
     codes = np.fromiter(map(_TYPE_CODE.get, map(type, raws), repeat(_ANY)), dtype=np.uint8,
                         count=n)
     if n and not codes.any():  # the common case: a column of plain numbers
@@ -112,6 +141,24 @@ def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray,
             elif v.kind != BLANK:
                 text[i] = v.text
     return _overrides(sheet, col, row1, kind, number, text, errors, unsaved)
+
+
+def _one(number: np.ndarray, kind: np.ndarray, text: dict[int, str], i: int, raw: Any,
+         date1904: bool) -> None:
+    """Item ``i`` of the arrays from one raw value, as the bulk path above classifies it."""
+    code = _TYPE_CODE.get(type(raw), _ANY)
+    if code == _FLOAT:
+        number[i], kind[i] = raw, _NUMBER
+    elif code == _STR:
+        if raw:
+            kind[i], text[i] = _TEXT, raw[:TEXT_CAP]
+    else:
+        v = classify(raw, date1904)
+        kind[i] = CODE[v.kind]
+        if v.kind == NUMBER:
+            number[i] = v.number
+        elif v.kind != BLANK:
+            text[i] = v.text
 
 
 def _overrides(sheet: str, col: int, row1: int, kind: np.ndarray, number: np.ndarray,

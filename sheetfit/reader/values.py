@@ -44,7 +44,7 @@ from ._columnar import Irregular, Read, read_columns, shared_strings
 from ._dense import Dense, dense_from_rows
 from ._sheetxml import TEXT_CAP, part_bytes, read_shared_strings, scan, stream_sheet, utf8
 from .cells import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, Value, classify
-from .columns import ColumnValues, column_values
+from .columns import ColumnValues, Mixed, column_values
 from .formats import StyleTable, row_style_indices
 from .package import parse_rels, rels_part_of
 
@@ -72,7 +72,7 @@ TAIL_LIMIT = 16 << 20
 class _Cells(Protocol):
     def raw(self, row: int, col: int) -> Any: ...
 
-    def column(self, col: int, row1: int, row2: int) -> list[Any] | np.ndarray: ...
+    def column(self, col: int, row1: int, row2: int) -> list[Any] | np.ndarray | Mixed: ...
 
     def last_row(self, col1: int, col2: int) -> int: ...
 
@@ -238,13 +238,18 @@ class BookValues:
             self._cache[key] = self._load(key)
         return self._cache[key]
 
-    def column(self, sheet: str, col: int, row1: int, row2: int) -> ColumnValues:
+    def column(self, sheet: str, col: int, row1: int, row2: int,
+               keep: bool = True) -> ColumnValues:
         """Rows row1..row2 of one column of ``sheet`` as arrays, read once per reader:
-        models that share a range share its arrays (treat them as read-only)."""
+        models that share a range share its arrays (treat them as read-only). With
+        ``keep=False`` a column not read before is made for the caller alone (one use:
+        the cell digests, which keep their own memo)."""
         key = (self._canonical(sheet), col, row1, row2)
         found = self._columns.get(key)
         if found is None:
-            found = self._columns[key] = self.sheet(sheet).column(col, row1, row2)
+            found = self.sheet(sheet).column(col, row1, row2)
+            if keep:
+                self._columns[key] = found
         return found
 
     def forget(self, name: str) -> None:
