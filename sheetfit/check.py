@@ -44,6 +44,7 @@ from .reader.package import Package, open_package
 from .reader.values import BLANK, ERROR, NUMBER, OTHER, TEXT, UNSAVED, BookValues, Value
 from .sheets.columns import Run
 from .sheets.plan import SheetPlan
+from .vectors import blocks, is_numeric
 
 __all__ = ["CURRENT", "EDITED", "MISSING", "STALE", "BookCheck", "ModelCheck", "check"]
 
@@ -283,7 +284,9 @@ def _same_run(a: Run, b: Run) -> bool:
         if x is None or y is None:
             if x is not y:
                 return False
-        elif not np.array_equal(np.asarray(x, dtype=object), np.asarray(y, dtype=object)):
+        elif len(x) != len(y) or not all(
+                np.array_equal(np.asarray(u, dtype=object), np.asarray(w, dtype=object))
+                for u, w in zip(blocks(x), blocks(y), strict=True)):
             return False
     return True
 
@@ -480,12 +483,12 @@ def _run_suspects(run: Run, kinds: SheetKinds, sv: Any,
     agree: a number within REL/ABS and, for a formula run, a formula with its result), found
     with arrays; ``_cell_edit`` then words each suspect. None for runs of other values."""
     v = run.values
-    if not (isinstance(v, np.ndarray) and v.dtype.kind in "fiu"):
+    if not is_numeric(v):
         return None
     col = run.col + 1
     r1 = run.row0 + 1
     book = sv.column(col, r1, run.last + 1)
-    planned = v.astype(float)
+    planned = np.asarray(v, dtype=float)
     got = book.number
     is_num = book.kind == CODE[NUMBER]
     with np.errstate(invalid="ignore"):

@@ -16,8 +16,9 @@ import pytest
 
 import sheetfit.refresh as refresh_mod
 from sheetfit.reader.package import open_package
-from sheetfit.sheets.columns import Pieces, Run, template, this_row
+from sheetfit.sheets.columns import Pieces, Run, Template, template, this_row
 from sheetfit.sheets.plan import BookPlan, SheetPlan
+from sheetfit.vectors import Lazy
 from sheetfit.writer import _bulk
 from sheetfit.writer.graft import OutputName, graft
 from sheetfit.writer.render import render
@@ -46,8 +47,25 @@ def _cells(path: Path) -> dict[tuple[str, str], tuple[Any, ...]]:
     return out
 
 
-def _synthetic(n: int) -> BookPlan:
+def _lazy(v: Any) -> Any:
+    """The same vector made a block at a time (as the planners hand long columns over)."""
+    if isinstance(v, np.ndarray):
+        return Lazy(len(v), lambda a, b: v[a:b].copy(), v.dtype)
+    return Lazy(len(v), lambda a, b: list(v[a:b]), None)
+
+
+def _synthetic(n: int, lazy: bool = False) -> BookPlan:
     s = SheetPlan("sf syn rows")
+    if lazy:  # every run's values and vectors lazy; the cells must not change
+        plain_run = s.run
+
+        def run(col: int, row0: int, values: Any, formula: Any = None,
+                style: str = "text") -> Any:
+            if formula is not None:
+                formula = Template(formula.text, tuple(
+                    None if a is None else _lazy(a) for a in formula.args))
+            return plain_run(col, row0, _lazy(values), formula, style)
+        s.run = run  # type: ignore[method-assign]
     s.put(0, 0, "A title & more", style="title")
     s.put(3, 0, "row", style="head")
     s.put(3, 1, "value", style="head")
@@ -82,14 +100,18 @@ def _synthetic(n: int) -> BookPlan:
 
 # 3 chunks + 3 rows: the middle chunk has no loose cell (one format call per row), the
 # first and last merge loose cells into the runs' rows
+@pytest.mark.parametrize("lazy", [False, True])
 @pytest.mark.parametrize("n", [1, 7, 3 * _bulk.CHUNK_ROWS + 3])
-def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int,
+def test_bulk_and_general_paths_write_the_same_cells(tmp_path: Path, n: int, lazy: bool,
                                                      monkeypatch: pytest.MonkeyPatch) -> None:
+    """The bulk path (runs merged in chunks) and the general one (every cell through
+    xlsxwriter) write the same cells; with ``lazy`` the bulk path's runs are made a block
+    at a time (``sheetfit.vectors.Lazy``) and still write those cells."""
     monkeypatch.setattr(_bulk, "_SPAN_BYTES", 40)  # the span's row handed on in pieces
     src = make_book(tmp_path / "src.xlsx", {"Data": [[1.0], [2.0], [3.0]]})
     outs = []
     for bulk in (True, False):
-        plan = _synthetic(n)
+        plan = _synthetic(n, lazy=lazy and bulk)
         rendered = render(plan, tmp_path / f"owned-{bulk}.xlsx", bulk=bulk)
         assert bool(rendered.runs) == bulk
         out = tmp_path / f"out-{bulk}.xlsx"
@@ -155,6 +177,15 @@ def test_only_formulas_that_move_down_with_the_row_are_shared() -> None:
     assert not _bulk.shareable(run("=Data!B", rows[[0, 1, 2, 4, 3]], pad))  # not contiguous
     assert not _bulk.shareable(run("=Data!B", rows))  # short: written in full
     assert not _bulk.shareable(run("=Data!B", rows, "*Data!$B$2+LOG10(", this_row, ")", pad))
+    # a lazy row vector: its steps are checked across the blocks it is read in
+    long = np.arange(3, 3 + 150_000)
+    lazy_run = Run(2, 4, np.zeros(len(long)), "num", template(
+        "=Data!B", _lazy(long), pad))
+    assert _bulk.shareable(lazy_run)
+    broken = long.copy()
+    broken[1 << 16:] += 1  # a gap exactly at a block boundary
+    assert not _bulk.shareable(Run(2, 4, np.zeros(len(long)), "num",
+                                   template("=Data!B", _lazy(broken), pad)))
 
 
 def test_libreoffice_recalculates_bulk_chunks_as_cached(tmp_path: Path, engine: Any,

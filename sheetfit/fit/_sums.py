@@ -16,6 +16,7 @@ from collections.abc import Iterator, Sequence
 import numpy as np
 
 from sheetfit.fit._dd import two_sum
+from sheetfit.vectors import Lazy
 
 __all__ = ["exact_dot", "exact_sum", "fsum_rows", "iter_prefix_fsums", "prefix_fsums"]
 
@@ -24,23 +25,42 @@ _EPS = float(np.finfo(np.float64).eps)
 _BLOCK = 1 << 16
 
 
-def exact_sum(x: np.ndarray | Sequence[float]) -> float:
+def exact_sum(x: np.ndarray | Sequence[float] | Lazy) -> float:
     """``math.fsum`` of an array's elements (the exactly rounded sum), fed a block at a
-    time: the same result without a list of the whole array (32 bytes an element)."""
+    time: the same result without a list of the whole array (32 bytes an element). A
+    vector that makes its items a block at a time (``sheetfit.vectors.Lazy``) is read a
+    block at a time."""
+    if _blockwise(x):
+        return math.fsum(itertools.chain.from_iterable(
+            np.asarray(x[a:a + _BLOCK], dtype=float).ravel().tolist()
+            for a in range(0, len(x), _BLOCK)))
     v = np.asarray(x, dtype=float).ravel()
     return math.fsum(itertools.chain.from_iterable(
         v[a:a + _BLOCK].tolist() for a in range(0, v.size, _BLOCK)))
 
 
-def exact_dot(a: np.ndarray | Sequence[float], b: np.ndarray | Sequence[float]) -> float:
+def exact_dot(a: np.ndarray | Sequence[float] | Lazy,
+              b: np.ndarray | Sequence[float] | Lazy) -> float:
     """The exactly rounded sum of the rounded products ``a[i] * b[i]`` (``math.fsum`` of
     ``(a * b).tolist()``), a block at a time."""
+    if _blockwise(a) or _blockwise(b):
+        if len(a) != len(b):
+            raise ValueError("exact_dot of arrays of different lengths")
+        return math.fsum(itertools.chain.from_iterable(
+            (np.asarray(a[k:k + _BLOCK], dtype=float).ravel()
+             * np.asarray(b[k:k + _BLOCK], dtype=float).ravel()).tolist()
+            for k in range(0, len(a), _BLOCK)))
     u = np.asarray(a, dtype=float).ravel()
     w = np.asarray(b, dtype=float).ravel()
     if u.size != w.size:
         raise ValueError("exact_dot of arrays of different lengths")
     return math.fsum(itertools.chain.from_iterable(
         (u[k:k + _BLOCK] * w[k:k + _BLOCK]).tolist() for k in range(0, u.size, _BLOCK)))
+
+
+def _blockwise(x: object) -> bool:
+    """A vector made a block at a time: read by slices, never whole."""
+    return isinstance(x, Lazy)
 
 
 def _finish(

@@ -17,10 +17,14 @@ from typing import Any
 
 import numpy as np
 
+from ..vectors import Lazy
+
 __all__ = ["Part", "Pieces", "Run", "Span", "Template", "template", "this_row"]
 
 Scalar = float | int | str | bool | None
-Vector = Sequence[Any] | np.ndarray
+#: A column's values or a placeholder's vector: an array, a list, or a :class:`Lazy`
+#: made a block at a time as the sheet is written.
+Vector = Sequence[Any] | np.ndarray | Lazy
 
 
 @dataclass(frozen=True)
@@ -49,10 +53,9 @@ class Template:
         for v in self.args:
             if v is None:
                 cols.append(range(first_row + a, first_row + b))
-            elif isinstance(v, np.ndarray):
-                cols.append(v[a:b].tolist())
             else:
-                cols.append(v[a:b])
+                x = v[a:b]
+                cols.append(x.tolist() if isinstance(x, np.ndarray) else x)
         fmt = self.text.format
         if len(cols) == 1:
             return [fmt(x) for x in cols[0]]
@@ -79,7 +82,8 @@ class Run:
     """Cells row0 … row0+n-1 of one column (0-based), all in one style.
 
     ``values`` are the cached values (floats in a numpy array, or any scalars in a list;
-    ``None`` is a blank); ``formula`` the template of their formulas, if any.
+    ``None`` is a blank; either may be a :class:`~sheetfit.vectors.Lazy` made a block at
+    a time); ``formula`` the template of their formulas, if any.
     """
 
     col: int
@@ -101,8 +105,8 @@ class Run:
         return None if self.formula is None else self.formula.render(self.row0 + 1, a, b)
 
     def scalars(self, a: int, b: int) -> list[Scalar]:
-        v = self.values
-        return v[a:b].tolist() if isinstance(v, np.ndarray) else list(v[a:b])
+        x = self.values[a:b]
+        return x.tolist() if isinstance(x, np.ndarray) else list(x)
 
     def cells(self) -> Iterator[tuple[int, int, Scalar, str | None]]:
         """(row, col, value, formula) of every cell, in row order."""

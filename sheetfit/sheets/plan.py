@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..a1 import absolute, area, cell_ref, quote_sheet
+from ..vectors import Lazy, blocks, is_numeric, whole
 from .chartplan import ChartPlan
 from .columns import Run, Span, Template
 
@@ -217,10 +218,11 @@ class SheetPlan:
         k = bisect.bisect_right(starts, row) - 1
         return runs[k] if k >= 0 and row <= runs[k].last else None
 
-    def run(self, col: int, row0: int, values: Sequence[Scalar] | np.ndarray,
+    def run(self, col: int, row0: int, values: Sequence[Scalar] | np.ndarray | Lazy,
             formula: Template | None = None, style: str = "text") -> Run:
         """Add a column run: rows row0 … row0+len(values)-1 of ``col`` (0-based), with
-        cached ``values`` and, if given, the formula ``template`` (text starting '=')."""
+        cached ``values`` and, if given, the formula ``template`` (text starting '=').
+        Lazy values are checked for NaN and infinity as the writer makes them."""
         if formula is not None and not formula.text.startswith("="):
             raise ValueError(f"formula without '=': {formula.text}")
         if formula is not None and any(a is not None and len(a) != len(values)
@@ -318,8 +320,8 @@ class SheetPlan:
         run = self._run_at(row1, col)
         if run is not None and row2 <= run.last:
             held = run.values
-            if isinstance(held, np.ndarray) and held.dtype == np.float64:
-                view = held[row1 - run.row0:row2 - run.row0 + 1].view()
+            if isinstance(held, (np.ndarray, Lazy)) and held.dtype == np.float64:
+                view = held[row1 - run.row0:row2 - run.row0 + 1].view()  # a lazy one: made now
                 view.flags.writeable = False
                 return view
             return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
@@ -353,15 +355,17 @@ class SheetPlan:
             vals = u.values
             if u.style in ("note", "title", "caution", "colnote", "flag") or not u.n:
                 continue
-            arr = isinstance(vals, np.ndarray) and vals.dtype.kind in "fiu"
+            arr = is_numeric(vals)
             if u.style in ("int", "row"):
-                nums = (np.abs(vals) if arr else np.array(  # type: ignore[arg-type]
-                    [abs(float(v)) for v in vals if isinstance(v, (int, float))
-                     and not isinstance(v, bool)], dtype=float))
-                w = max(6, len(f"{int(nums.max(initial=0)):,}") + 3)
+                top = (max((float(np.abs(b).max(initial=0)) for b in blocks(vals)), default=0)
+                       if arr else max((abs(float(v)) for v in whole(vals)
+                                        if isinstance(v, (int, float))
+                                        and not isinstance(v, bool)), default=0))
+                w = max(6, len(f"{int(top):,}") + 3)
             elif arr:
                 w = 12
             else:
+                vals = whole(vals)
                 texts = [v for v in vals if type(v) is str]
                 w = max(12 if len(texts) < len(vals) and any(
                             isinstance(v, (int, float)) and not isinstance(v, bool)

@@ -20,6 +20,7 @@ import numpy as np
 
 from ..a1 import cell_ref, col_index, col_letter
 from ..sheets.columns import Run, Span, Template
+from ..vectors import blocks, is_numeric
 from .dotted import with_prefixes
 
 __all__ = ["CHUNK_ROWS", "stream_sheet"]
@@ -103,9 +104,10 @@ def shareable(run: Run) -> bool:
     for a in t.args:
         if a is None:
             continue
-        if not (isinstance(a, np.ndarray) and a.dtype.kind in "iu" and a.ndim == 1):
+        if not (is_numeric(a) and a.dtype.kind in "iu"  # type: ignore[union-attr]
+                and getattr(a, "ndim", 1) == 1):
             return False
-        if not np.all(np.diff(a) == 1):
+        if not _steps_of_one(a):
             return False
     literal = []
     for text, field, _, _ in string.Formatter().parse(t.text):
@@ -114,6 +116,19 @@ def shareable(run: Run) -> bool:
             return False  # a placeholder that is not the row of a reference
     bare = _QUOTED_SHEET.sub("", _TEXT_CONST.sub("", "\x00".join(literal)))
     return _CELL_TOKEN.search(bare) is None
+
+def _steps_of_one(a: Any) -> bool:
+    """Whether an integer vector goes up by exactly one from each item to the next."""
+    prev = None
+    for x in blocks(a):
+        if len(x) and prev is not None and int(x[0]) != prev + 1:
+            return False
+        if not np.all(np.diff(x) == 1):
+            return False
+        if len(x):
+            prev = int(x[-1])
+    return True
+
 
 def _shifted(text: str, by: int) -> str:
     """A format string with every positional field moved up by ``by`` (literals kept)."""
@@ -126,17 +141,26 @@ def _shifted(text: str, by: int) -> str:
     return "".join(out)
 
 
+def _finite(values: Any) -> np.ndarray:
+    """A chunk of a numeric run as floats; NaN or infinity has no cell form (SheetPlan.run
+    refuses them in arrays; a lazy vector's chunks are checked here as they are made)."""
+    x = np.asarray(values, dtype=float)
+    if not np.isfinite(x).all():
+        raise ValueError("a run of numbers holds NaN or infinity")
+    return x
+
+
 def _results(values: Any) -> list[str]:
     """Formulas' cached values with 17 significant digits (``%.17g``, which round-trips
     every double), formatted by one ``%`` over the chunk: about twice as fast as ``repr``
     per value. A spreadsheet recalculates these; plain values keep ``_reprs``."""
-    x = np.asarray(values, dtype=float).tolist()
+    x = _finite(values).tolist()
     return ("%.17g\x00" * len(x) % tuple(x)).split("\x00")[:-1]
 
 
 def _reprs(values: Any) -> list[str]:
     """Every float's repr, made in one C loop (a list's repr) rather than one call each."""
-    x = np.asarray(values, dtype=float).tolist()
+    x = _finite(values).tolist()
     return repr(x)[1:-1].split(", ") if x else []
 
 
@@ -150,16 +174,16 @@ def _piece(run: Run, a: int, b: int, style: int | None,
     s = f' s="{style}"' if style else ""
     rows = range(first + a, first + b)
     v, t = run.values, run.formula
-    numeric = isinstance(v, np.ndarray) and v.dtype.kind in "fiu"
+    numeric = is_numeric(v)
     if numeric and t is None:
         return f'<c r="{letter}{{0}}"{s}><v>{{1}}</v></c>', [rows, _reprs(v[a:b])]
     follower = f'<f t="shared" si="{si}"/>'
     if si is not None and a > 0 and numeric:
         return f'<c r="{letter}{{0}}"{s}>{follower}<v>{{1}}</v></c>', [rows, _results(v[a:b])]
     if si is None and numeric and t is not None and all(
-            x is None or (isinstance(x, np.ndarray) and x.dtype.kind in "fiu") for x in t.args):
+            x is None or is_numeric(x) for x in t.args):
         body = _shifted(_esc(with_prefixes(t.text[1:])), 1)
-        cols: list[Any] = [rows] + [rows if x is None else np.asarray(x)[a:b].tolist()
+        cols: list[Any] = [rows] + [rows if x is None else np.asarray(x[a:b]).tolist()
                                     for x in t.args]
         frag = f'<c r="{letter}{{0}}"{s}><f>{body}</f><v>{{{len(t.args) + 1}}}</v></c>'
         return frag, cols + [_results(v[a:b])]
@@ -174,7 +198,7 @@ def _piece(run: Run, a: int, b: int, style: int | None,
             felems[0] = (f'<f t="shared" ref="{letter}{first}:{letter}{run.last + 1}" '
                          f'si="{si}">{text}</f>')
         return "{0}", [_formula_cells(refs, felems, values, s)]
-    if any(x is not None and not isinstance(x, np.ndarray)
+    if any(x is not None and not is_numeric(x)
            and any(isinstance(e, str) for e in x[a:b]) for x in t.args):
         forms = [_esc(with_prefixes(f[1:])) for f in t.render(first, a, b)]  # text: escape each
     else:  # numbers only: prefix and escape the template once
