@@ -60,6 +60,11 @@ class Lazy:
             raise IndexError(k)
         return self.make(i, i + 1)[0]
 
+    def __iter__(self) -> Iterator[Any]:
+        """The items as Python scalars, made a block at a time."""
+        for x in blocks(self):
+            yield from (x.tolist() if isinstance(x, np.ndarray) else x)
+
     def __array__(self, dtype: Any = None, copy: Any = None) -> np.ndarray:
         out = self.make(0, self.n)
         return np.asarray(out, dtype=dtype if dtype is not None else

@@ -35,6 +35,7 @@ __all__ = [
     "coef_table",
     "influence",
     "intervals",
+    "leverage",
     "overall",
     "t_quantile",
     "vif",
@@ -219,6 +220,12 @@ def _leverage(res: LeastSquaresResult) -> np.ndarray:
     if found is None or len(found) != res.n_:
         found = _LEVERAGES[res] = readonly(_leverage_of(res))
     return found
+
+
+def leverage(res: LeastSquaresResult) -> np.ndarray:
+    """The leverage of every data row (the hat matrix's diagonal), read-only, computed
+    once per result."""
+    return _leverage(res)
 
 
 def _leverage_of(res: LeastSquaresResult) -> np.ndarray:

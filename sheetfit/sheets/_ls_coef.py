@@ -25,6 +25,7 @@ from ..fit.bootstrap import Bootstrap
 from ..fit.distributions import chi2_sf, f_sf, t_isf, t_sf
 from ..fit.inference import breusch_pagan, coef_table
 from ..fit.leastsq import LeastSquaresResult
+from ..vectors import Lazy
 from ._ls_rows import RowColumns
 from ._ls_words import BP_LEVEL, number, range_words
 from .common import column_notes, fsum_sq, key_heads, key_styles, put_keys
@@ -120,7 +121,7 @@ class RuleFit:
     cells: list[str]
     values: list[float]
     fitted_rng: str
-    fitted: np.ndarray
+    fitted: np.ndarray | Lazy  # the rule's fitted values, row by row
 
 
 @dataclass
@@ -135,7 +136,7 @@ class CoefInputs:
     specs: list[tuple[int, int]]
     tvals: list[np.ndarray]
     Y: np.ndarray
-    resid: np.ndarray
+    resid: np.ndarray | Lazy  # the residual cells' cached values
     y_rng: str
     resid_rng: str
     term_rngs: list[str]
@@ -427,7 +428,7 @@ class _Figures:
         return ref
 
 
-def _cosine(r: np.ndarray, t: np.ndarray, sums: tuple[float, float]) -> float:
+def _cosine(r: np.ndarray | Lazy, t: np.ndarray, sums: tuple[float, float]) -> float:
     """What the check formula evaluates to: 0 for an exact fit, else cos(r, t); ``sums``
     are fsum_sq of the residuals and of y (the same for every term)."""
     ssr, ssy = sums

@@ -15,7 +15,8 @@ import numpy as np
 
 from ..a1 import col_letter
 from ..fit._sums import exact_dot, exact_sum
-from ..fit.inference import LEVERAGE_ONE, Influence
+from ..fit.inference import LEVERAGE_ONE
+from ..vectors import Lazy
 from .columns import template, this_row
 from .common import FIRST_ROW
 from .plan import SheetPlan
@@ -37,18 +38,21 @@ class RowColumns:
     cooks_col: int
     press_col: int
     flag_col: int
-    flags: list[str]
+    flags: Lazy  # the flags of each row, in words ("" for none)
     loo_rmse: float | str
 
 
-def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: str,
+def plan_influence(rs: SheetPlan, h: np.ndarray, resid: np.ndarray | Lazy, sd_ref: str,
                    sd_value: float | None, exact_ref: str, n: int, p: int,
                    amount: str = "num") -> RowColumns:
     """Add leverage, studentized residual, Cook's D, PRESS and flags to the residual sheet.
 
-    ``resid`` are the residual cells' cached values, ``sd_ref``/``sd_value`` the residual
-    SD cell on the coefficient sheet and its cached value (None when it reads n/a or the
-    fit is exact, as the cell ``exact_ref`` says: then no row has a studentized residual).
+    ``h`` are the leverages, ``resid`` the residual cells' cached values, ``sd_ref`` /
+    ``sd_value`` the residual SD cell on the coefficient sheet and its cached value (None
+    when it reads n/a or the fit is exact, as the cell ``exact_ref`` says: then no row has
+    a studentized residual). The columns are made a block of rows at a time as the sheet
+    is written (``sheetfit.vectors.Lazy``), each with the same element-wise operations as
+    its formula.
     """
     rcol = rs.columns["resid"]
     c0 = rs.last_col() + 2
@@ -60,31 +64,48 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
     cook_lim, lev_lim = 4 / n, 2 * p / n
     R = col_letter(rcol + 1)
     L, S, C = (col_letter(c + 1) for c in (lev_c, st_c, ck_c))
-    h = np.asarray(infl.leverage, dtype=float)[:n]
-    e = np.asarray(resid, dtype=float)[:n]
-    ok = h < LEVERAGE_ONE
-    one_minus = np.where(ok, 1 - h, 1.0)
-    pr_num = e / one_minus  # the same operations as e / (1 - h), row by row
-    if sd_value is not None:
-        st_num = e / (sd_value * np.sqrt(one_minus))
-        ck_num = st_num * st_num * h / (p * one_minus)
-    else:
-        st_num = ck_num = np.zeros(n)
-    has_st = ok & (sd_value is not None)
-    def cached(v: np.ndarray, have: np.ndarray) -> np.ndarray | list[float | str]:
-        """The values as an array when every row has one (the writer's fast path), else a
-        list with blanks as empty text, which is what the formula gives there."""
-        if have.all():
-            return v
-        return [float(x) if k else "" for x, k in zip(v.tolist(), have.tolist(), strict=True)]
+    h = np.asarray(h, dtype=float)[:n]
+    all_ok = bool((h < LEVERAGE_ONE).all())
+    all_st = all_ok and sd_value is not None
 
-    st, ck, pr = cached(st_num, has_st), cached(ck_num, has_st), cached(pr_num, ok)
-    out_ = has_st & (np.abs(st_num) > STUDENT_LIMIT)
-    infl_ = has_st & (ck_num > cook_lim)
-    high = h > lev_lim
-    flags = [", ".join(w for w, on in (("outlier", a), ("influential", b), ("high leverage", c))
-                       if on)
-             for a, b, c in zip(out_.tolist(), infl_.tolist(), high.tolist(), strict=True)]
+    def rows(a: int, b: int) -> tuple[np.ndarray, ...]:
+        """(ok, has a studentized residual, studentized, Cook's, e/(1−h)) of rows a..b-1."""
+        hb = h[a:b]
+        e = np.asarray(resid[a:b], dtype=float)
+        ok = hb < LEVERAGE_ONE
+        one_minus = np.where(ok, 1 - hb, 1.0)
+        pr_num = e / one_minus  # the same operations as e / (1 - h), row by row
+        if sd_value is not None:
+            st_num = e / (sd_value * np.sqrt(one_minus))
+            ck_num = st_num * st_num * hb / (p * one_minus)
+        else:
+            st_num = ck_num = np.zeros(b - a)
+        return ok, ok & (sd_value is not None), st_num, ck_num, pr_num
+
+    def column(k: int, have: int, every: bool) -> Lazy:
+        """Item ``k`` of ``rows`` as a column: numbers when every row has one (the
+        writer's fast path), else a list with blanks as empty text, which is what the
+        formula gives there."""
+        if every:
+            return Lazy(n, lambda a, b: rows(a, b)[k])
+
+        def make(a: int, b: int) -> list[float | str]:
+            got = rows(a, b)
+            return [float(x) if on else "" for x, on in zip(got[k].tolist(),
+                                                            got[have].tolist(), strict=True)]
+        return Lazy(n, make, None)
+
+    def flag_words(a: int, b: int) -> list[str]:
+        _, has_st, st_num, ck_num, _ = rows(a, b)
+        out_ = has_st & (np.abs(st_num) > STUDENT_LIMIT)
+        infl_ = has_st & (ck_num > cook_lim)
+        high = h[a:b] > lev_lim
+        return [", ".join(w for w, on in (("outlier", x), ("influential", y),
+                                          ("high leverage", z)) if on)
+                for x, y, z in zip(out_.tolist(), infl_.tolist(), high.tolist(), strict=True)]
+
+    st, ck, pr = column(2, 1, all_st), column(3, 1, all_st), column(4, 0, all_ok)
+    flags = Lazy(n, flag_words, None)
     r = this_row
     rs.run(lev_c, FIRST_ROW, h, style="z")
     rs.run(st_c, FIRST_ROW, st, template(
@@ -118,7 +139,7 @@ def plan_influence(rs: SheetPlan, infl: Influence, resid: np.ndarray, sd_ref: st
         "is what the row's prediction would miss by if the row were left out of the fit."),
         width=90)
     loo: float | str = "n/a"
-    if ok.all():
-        loo = math.sqrt(exact_dot(pr_num, pr_num) / n)
+    if all_ok:
+        loo = math.sqrt(exact_dot(pr, pr) / n)
     rs.widths.update({lev_c: 11, st_c: 13, ck_c: 12, pr_c: 16, fl_c: 30})
     return RowColumns(lev_c, st_c, ck_c, pr_c, fl_c, flags, loo)

@@ -23,6 +23,7 @@ from ..a1 import col_letter, quote_sheet
 from ..declare.model import Column, Keys, ModelData
 from ..fit._sums import exact_dot
 from ..owned import sheet_title
+from ..vectors import Lazy
 from .columns import Part, template, this_row
 from .plan import Scalar, SheetPlan, decimal_style
 
@@ -68,7 +69,7 @@ GENERAL_CAUTIONS = (
 HOLDS, FAILS = "holds", "FAILS"
 
 
-def fsum_sq(v: Sequence[float] | np.ndarray) -> float:
+def fsum_sq(v: Sequence[float] | np.ndarray | Lazy) -> float:
     """Sum of squares, exactly rounded (what SUMSQ gives up to rounding)."""
     return exact_dot(v, v)  # the same rounded products, summed exactly
 
@@ -257,15 +258,16 @@ def plan_left_out(sheet: SheetPlan, model: ModelData, col: int) -> None:
     sheet.widths[col + 1 + kw] = 44
 
 
-def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np.ndarray,
-                        resid: np.ndarray, note: str, keys: Keys | None = None) -> SheetPlan:
+def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part],
+                        fitted: np.ndarray | Lazy, resid: np.ndarray | Lazy, note: str,
+                        keys: Keys | None = None) -> SheetPlan:
     """The residual sheet: observed, fitted (from another sheet), observed − fitted.
 
     ``fitted_ref`` are template parts (``sheets.columns.template``) of the fitted-value
     cells, row by row, e.g. ``("'sf m fitted'!F", rows)``.
 
     ``fitted`` and ``resid`` are the cached values (nan where the row has no fitted value,
-    which the sheet shows blank). With ``keys`` (pass ``model.keys``) the identifier
+    which the sheet shows blank; a :class:`~sheetfit.vectors.Lazy` has one in every row). With ``keys`` (pass ``model.keys``) the identifier
     columns stand beside the data row and the value columns move right by
     ``key_width(keys)``: observed, fitted and residual are then in columns
     1, 2, 3 + that width (0-based).
@@ -290,15 +292,18 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part], fitted: np
     rs.run(0, FIRST_ROW, sheet_rows(used, y.first_row), style="row")
     key_runs(rs, FIRST_ROW, 1, keys, used, key_styles(keys))
     rs.run(ob, FIRST_ROW, np.asarray(model.Y, dtype=float), template("=", *ref_parts(y, used)), amount)
-    f = np.asarray(fitted, dtype=float)
-    blank = np.isnan(f)
-    if blank.any():
-        fit_vals: Sequence[Scalar] | np.ndarray = [
-            "" if b else v for b, v in zip(blank.tolist(), f.tolist(), strict=True)]
-        res_vals: Sequence[Scalar] | np.ndarray = [
-            "" if b else v for b, v in zip(blank.tolist(), resid.tolist(), strict=True)]
+    f = fitted if isinstance(fitted, Lazy) else np.asarray(fitted, dtype=float)
+    blank = np.zeros(0, dtype=bool) if isinstance(f, Lazy) else np.isnan(f)
+    if blank.any():  # a lazy vector has a fitted value in every row
+        fit_vals: Sequence[Scalar] | np.ndarray | Lazy = [
+            "" if b else v
+            for b, v in zip(blank.tolist(), np.asarray(f).tolist(), strict=True)]
+        res_vals: Sequence[Scalar] | np.ndarray | Lazy = [
+            "" if b else v
+            for b, v in zip(blank.tolist(), np.asarray(resid).tolist(), strict=True)]
     else:
-        fit_vals, res_vals = f, np.asarray(resid, dtype=float)
+        fit_vals = f
+        res_vals = resid if isinstance(resid, Lazy) else np.asarray(resid, dtype=float)
     rs.run(fc, FIRST_ROW, fit_vals, template("=", *fitted_ref), derived)
     rs.run(rc, FIRST_ROW, res_vals,
            template(f"=IF({C}", this_row, f'="","",{B}', this_row, f"-{C}", this_row, ")"),

@@ -14,10 +14,11 @@ from ..a1 import absolute, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.bootstrap import Bootstrap
 from ..fit.distributions import t_isf
-from ..fit.inference import Influence, influence, intervals
+from ..fit.inference import intervals, leverage
 from ..fit.leastsq import LeastSquaresResult
 from ..fit.results import Fitted
 from ..owned import sheet_title
+from ..vectors import Lazy
 from ._ls_audit import Threshold, plan_audit
 from ._ls_coef import (
     C_COEF,
@@ -83,17 +84,22 @@ def _prediction(coef: np.ndarray, coef_ref: list[str], intercept: bool,
 
 def _predictions(coef: np.ndarray, coef_ref: list[str], intercept: bool,
                  specs: list[tuple[int, int]], cells: list[tuple[Part, ...]],
-                 tvals: list[np.ndarray]) -> tuple[np.ndarray, list[list[Part]]]:
-    """:func:`_prediction` for every row at once: the fitted values in formula order
-    (intercept, then + coefficient × term, left to right: the same floating-point
-    operations, element by element) and each term's template parts."""
-    parts: list[list[Part]] = []
-    value = np.full(len(tvals[0]) if tvals else 0, float(coef[0]) if intercept else 0.0)
-    for k, (j, d) in enumerate(specs):
-        parts.append(list(cells[j]) + ([f"^{d}"] if d > 1 else []))
-        prod = float(coef[k + int(intercept)]) * np.asarray(tvals[k], dtype=float)
-        value = prod if (k == 0 and not intercept) else value + prod
-    return value, parts
+                 tvals: list[np.ndarray]) -> tuple[Lazy, list[list[Part]]]:
+    """:func:`_prediction` for every row: the fitted values in formula order (intercept,
+    then + coefficient × term, left to right: the same floating-point operations, element
+    by element), made a block of rows at a time as they are read, and each term's
+    template parts."""
+    parts = [list(cells[j]) + ([f"^{d}"] if d > 1 else []) for j, d in specs]
+    c = [float(v) for v in coef]
+
+    def make(a: int, b: int) -> np.ndarray:
+        value = np.full(b - a, c[0] if intercept else 0.0)
+        for k in range(len(specs)):
+            prod = c[k + int(intercept)] * np.asarray(tvals[k][a:b], dtype=float)
+            value = prod if (k == 0 and not intercept) else value + prod
+        return value
+
+    return Lazy(len(tvals[0]) if tvals else 0, make), parts
 
 
 def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
@@ -168,9 +174,13 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     y_rng = fs.col_range(obs_col, FIRST_ROW, last)
 
     # --- residual sheet with the row diagnostics ----------------------------------------
-    resid = model.Y - fitted  # what observed − fitted gives on the residual sheet
+    Y = np.asarray(model.Y, dtype=float)
+    # what observed − fitted gives on the residual sheet, a block of rows at a time
+    resid = Lazy(n, lambda a, b: Y[a:b] - fitted[a:b])
+    fit_rows = Lazy(n, lambda a, b: np.arange(a, b, dtype=np.int64) + (FIRST_ROW + 1),
+                    np.int64)
     rs = plan_residual_sheet(
-        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", np.arange(n) + FIRST_ROW + 1),
+        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", fit_rows),
         fitted, resid,
         "residual = observed − fitted, each a formula; to the right, how much each row "
         "moves the fit.", keys=model.keys)
@@ -179,8 +189,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     df = n - p
     exact = ssr <= float(EXACT_FIT) * fsum_sq(model.Y)
     sd = float(res.resid_sd_) if df > 0 and not exact else None
-    infl = influence(res)
-    rows = plan_influence(rs, infl, resid, cs.ref(lay.figure_row("sd used"), 1), sd,
+    lev = leverage(res)
+    rows = plan_influence(rs, lev, resid, cs.ref(lay.figure_row("sd used"), 1), sd,
                           cs.ref(lay.figure_row("exact"), 1), n, p, derived)
 
     # new rows to predict, to the right of the fitted values
@@ -190,7 +200,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     boot = fitted_.extra if isinstance(fitted_.extra, Bootstrap) else None
     if model.new is not None:
         side = _plan_new(fs, model, fitted_, coef, coef_ref, specs, intercept, side, names,
-                         level, cs, infl, lay, derived, answer, boot)
+                         level, cs, lev, lay, derived, answer, boot)
     plan_left_out(fs, model, side)
 
     # --- coefficient sheet ----------------------------------------------------------
@@ -221,7 +231,7 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
 
 
 def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_col: int,
-                fit_col: int, fitted: np.ndarray, cs: SheetPlan,
+                fit_col: int, fitted: Lazy, cs: SheetPlan,
                 level: float, lay: CoefLayout) -> SheetPlan | None:
     """The audit sheet when a threshold is set (its caution reaches the index and the
     coefficient sheet through the method record's cautions)."""
@@ -238,7 +248,8 @@ def _plan_audit(model: ModelData, res: LeastSquaresResult, fs: SheetPlan, obs_co
     rows = range(len(model.used))
     return plan_audit(
         model, [fs.ref(FIRST_ROW + i, obs_col, fixed=False) for i in rows],
-        [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], fitted, threshold,
+        [fs.ref(FIRST_ROW + i, fit_col, fixed=False) for i in rows], np.asarray(fitted),
+        threshold,
         cs.ref(lay.figure_row("sd used"), 1), sd, half, level)
 
 
@@ -284,7 +295,7 @@ def _sum_parts(coef_ref: list[str], intercept: bool, term_parts: list[list[Part]
 def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResult],
               coef: np.ndarray, coef_ref: list[str], specs: list[tuple[int, int]],
               intercept: bool, side: int, names: list[tuple[str, str]], level: float,
-              cs: SheetPlan, infl: Influence, lay: CoefLayout, style: str,
+              cs: SheetPlan, data_lev: np.ndarray, lay: CoefLayout, style: str,
               answer: list[AnswerRow], boot: Bootstrap | None) -> int:
     """The new rows to the right of the fitted values: prediction, leverage, the range for
     the average and for one new value, and the flag; each row also goes to ``answer``."""
@@ -319,7 +330,7 @@ def _plan_new(fs: SheetPlan, model: ModelData, fitted_: Fitted[LeastSquaresResul
     df = res.df_resid_
     tq = float(t_isf((1 - level) / 2, df)) if df > 0 else None
     sd = float(res.resid_sd_) if df > 0 else None
-    max_lev = float(np.max(infl.leverage))
+    max_lev = float(np.max(data_lev))
     x_styles = [decimal_style(new.X[:, j], fmt=model.xs[j].fmt)
                 for j in range(new.X.shape[1])]
     for i in range(new.n):
