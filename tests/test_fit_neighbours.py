@@ -309,6 +309,34 @@ def test_search_in_small_blocks_matches_brute_force(chunk: int, monkeypatch) -> 
     _check_against_reference(X, y, 12, True)
 
 
+@pytest.mark.parametrize("rows", [1, 7, 64])
+def test_fit_in_row_blocks_matches_brute_force(rows: int, monkeypatch) -> None:
+    """The fit searches and builds the k table a block of training rows at a time
+    (``neighbours._FIT_ROWS``), keeping each k's sum of squares as exact parts; with
+    blocks of 1, 7 and 64 rows a duplicate-rich grid still equals the O(n²) reference
+    (neighbours, distances, fitted means), and every k-table entry equals the RMSE of a
+    fit with that k. The vote's k table equals each refit's error rate, and its classes
+    and votes those of the fit in one block."""
+    from sheetfit.fit import neighbours
+
+    rng = _rng(977)
+    X = rng.integers(0, 4, size=(150, 3)).astype(float)
+    y = rng.normal(size=150).round(2)
+    labels = rng.choice(["late", "on time", "early"], 150)
+    whole = NeighbourVote(k=None).fit(X, labels)
+    monkeypatch.setattr(neighbours, "_FIT_ROWS", rows)
+    _check_against_reference(X, y, 12, True)
+    chosen = NeighbourMean().fit(X, y)  # k chosen by the table built in blocks
+    assert chosen.rmse_ == min(err for _, err in chosen.k_table_)
+    blocked = NeighbourVote(k=None).fit(X, labels)
+    assert blocked.k_table_ == whole.k_table_ and blocked.k_ == whole.k_
+    assert blocked.fitted_code_.tolist() == whole.fitted_code_.tolist()
+    assert blocked.votes_.tolist() == whole.votes_.tolist()
+    assert blocked.distances_.tolist() == whole.distances_.tolist()
+    for kk, err in blocked.k_table_[::6]:
+        assert err == NeighbourVote(k=kk).fit(X, labels).error_rate_
+
+
 @settings(max_examples=40, deadline=None)
 @given(
     rows=st.lists(

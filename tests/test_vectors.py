@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from sheetfit.fit._sums import exact_dot, exact_sum
+from sheetfit.fit._sums import exact_dot, exact_parts, exact_sum
 from sheetfit.vectors import BLOCK, Lazy, blocks, is_numeric, whole
 
 
@@ -60,3 +60,19 @@ def test_exact_sums_read_a_lazy_vector_block_by_block() -> None:
     assert exact_dot(w, lz) == exact_dot(w, v)
     with pytest.raises(ValueError):
         exact_dot(lz, w[:-1])
+
+
+def test_exact_parts_of_blocks_sum_to_the_correctly_rounded_total() -> None:
+    """The parts of each block, summed by math.fsum, give math.fsum of every element
+    (Python's correctly rounded sum is the reference) on values spanning 10^-300 to
+    10^300 that cancel, where the sum of the blocks' own rounded sums is off."""
+    rng = np.random.default_rng(3)
+    v = rng.normal(size=5000) * 10.0 ** rng.integers(-300, 300, size=5000)
+    v = np.concatenate([v, -v[:2500], [1e-300, 3.0, 2.0 ** -60]])
+    rng.shuffle(v)
+    want = math.fsum(v.tolist())
+    cuts = [v[a:a + 97] for a in range(0, len(v), 97)]
+    parts = [p for c in cuts for p in exact_parts(c)]
+    assert math.fsum(parts) == want
+    assert math.fsum(math.fsum(c.tolist()) for c in cuts) != want  # rounding per block is not enough
+    assert exact_parts(np.zeros(3)) == [] and exact_parts(np.array([2.5])) == [2.5]

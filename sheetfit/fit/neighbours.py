@@ -24,7 +24,7 @@ in ``_classes``; the checks of the input in ``checks``.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 from typing import TYPE_CHECKING, Any
@@ -38,8 +38,15 @@ from sheetfit.errors import DataError
 from sheetfit.fit import checks
 from sheetfit.fit._arrays import divide, readonly
 from sheetfit.fit._classes import class_index, label_repr, parse_labels, position_votes, vote
-from sheetfit.fit._search import TIE_DIGITS, search
-from sheetfit.fit._sums import exact_dot, exact_sum, fsum_rows, iter_prefix_fsums
+from sheetfit.fit._search import TIE_DIGITS, exact_distances, search
+from sheetfit.fit._sums import (
+    exact_dot,
+    exact_parts,
+    exact_sum,
+    fsum_rows,
+    iter_prefix_fsums,
+    prefix_fsums,
+)
 from sheetfit.fit.scaling import Scaling, attribute_stats, standard_units
 
 __all__ = [
@@ -163,10 +170,46 @@ class _Base:
         return (*search(self._tree, self.Z_, Q, self.k_, None), Q)
 
 
-def _fit_search(
-    X: np.ndarray, names: Sequence[str] | None, k: int | None, on: bool
-) -> tuple[np.ndarray, list[str], Scaling, np.ndarray, cKDTree, int, np.ndarray, np.ndarray]:
-    """Checks shared by both models, standard units, and each row's ordered neighbours."""
+#: Training rows whose neighbours and k table are worked out together: the search's
+#: ordered lists (25 a row for the k table) and their responses exist only for a block.
+_FIT_ROWS = 1 << 15
+
+
+@dataclass(frozen=True)
+class _Search:
+    """Standard units, the tree, and the ordered neighbours of every training row, found a
+    block of rows at a time (``blocks``) to the depth the k table needs."""
+
+    X: np.ndarray
+    names: list[str]
+    scaling: Scaling
+    Z: np.ndarray
+    tree: cKDTree
+    table_max: int
+    depth: int
+
+    def blocks(self) -> Iterator[tuple[int, int, np.ndarray]]:
+        """(a, b, the neighbours of rows a..b-1 in order, ``depth`` a row, itself never)."""
+        n = self.Z.shape[0]
+        for a in range(0, n, _FIT_ROWS):
+            b = min(n, a + _FIT_ROWS)
+            J, _ = search(self.tree, self.Z, self.Z[a:b], self.depth, np.arange(a, b))
+            yield a, b, J
+            del J  # not held while the next block is searched
+
+    def distances(self, J: np.ndarray) -> np.ndarray:
+        """The exact distances of every training row to its neighbours ``J`` (the values
+        the search measured them by: the same formula on the same rows)."""
+        D = np.empty(J.shape)
+        step = max(1, _FIT_ROWS // max(1, J.shape[1]))
+        for a in range(0, J.shape[0], step):
+            D[a:a + step] = exact_distances(self.Z[a:a + step], self.Z, J[a:a + step])
+        return D
+
+
+def _fit_search(X: np.ndarray, names: Sequence[str] | None, k: int | None,
+                on: bool) -> _Search:
+    """Checks shared by both models, standard units, and the tree to search."""
     X, names_ = checks.as_table(X, names)
     n = X.shape[0]
     on = checks.check_flag("standard_units", on)
@@ -178,9 +221,7 @@ def _fit_search(
 
     tree = cKDTree(Z)
     table_max = min(TABLE_MAX_K, n - 1)
-    depth = max(kk or 0, table_max)
-    J, D = search(tree, Z, Z, depth, np.arange(n))
-    return X, names_, scaling, Z, tree, table_max, J, D
+    return _Search(X, names_, scaling, Z, tree, table_max, max(kk or 0, table_max))
 
 
 class NeighbourMean:
@@ -196,31 +237,30 @@ class NeighbourMean:
         """Find each row's neighbours, the leave-one-out k table and the fitted means."""
         X, names = checks.as_table(X, names)
         y = checks.response(y, X.shape[0])
-        X, names_, scaling, Z, tree, table_max, J, D = _fit_search(
-            X, names, self.k, self.standard_units
-        )
-        n = X.shape[0]
-        Y = y[J]
+        sr = _fit_search(X, names, self.k, self.standard_units)
+        n, table_max = sr.X.shape[0], sr.table_max
         ks = list(range(1, table_max + 1))
-        table: list[tuple[int, float]] = []
-        kept: dict[int, np.ndarray] = {}  # the sum of the given k, or of the best so far
-        best = math.inf
-        for k, total in iter_prefix_fsums(Y, ks + ([int(self.k)] if self.k is not None
-                                                   else [])):
-            if k <= table_max:
-                res = y - total / k
-                err = math.sqrt(exact_dot(res, res) / n)
-                table.append((k, err))
-                if self.k is None and err < best:  # equal errors: the smaller k stays
-                    best, kept = err, {k: total}
-            if self.k is not None and k == int(self.k):
-                kept = {k: total}
-        del Y
+        # each k's sum of squared leave-one-out residuals, as exact parts per block
+        parts: dict[int, list[float]] = {k: [] for k in ks}
+        J = np.empty((n, sr.depth), dtype=np.int32)  # n < 2**31: a sheet has 2**20 rows
+        for a, b, Jb in sr.blocks():
+            J[a:b] = Jb
+            yb = y[a:b]
+            for k, total in iter_prefix_fsums(y[Jb], ks):
+                res = yb - total / k
+                parts[k] += exact_parts(res * res)
+            del Jb
+        table = [(k, math.sqrt(math.fsum(parts[k]) / n)) for k in ks]
         k_ = int(self.k) if self.k is not None else _best_k(table)
+        J = np.ascontiguousarray(J[:, :k_], dtype=np.int64)  # the deeper table let go
+        fitted = np.empty(n)
+        for a in range(0, n, _FIT_ROWS):
+            b = min(n, a + _FIT_ROWS)
+            fitted[a:b] = prefix_fsums(y[J[a:b]], [k_])[k_] / k_
         return NeighbourMeanResult(
-            X=X, names=names_, scaling=scaling, Z=Z, tree=tree, k=k_,
-            k_given=self.k is not None, order_J=J, order_D=D, k_table=table,
-            y=y, fitted=kept[k_] / k_,
+            X=sr.X, names=sr.names, scaling=sr.scaling, Z=sr.Z, tree=sr.tree, k=k_,
+            k_given=self.k is not None, order_J=J, order_D=sr.distances(J), k_table=table,
+            y=y, fitted=fitted,
         )  # fmt: skip
 
 
@@ -305,26 +345,34 @@ class NeighbourVote:
             raise DataError(
                 f"y holds only one class, {label_repr(classes[0])}; a vote needs two or more"
             )
-        X, names_, scaling, Z, tree, table_max, J, D = _fit_search(
-            X, names, self.k, self.standard_units
-        )
-        n = X.shape[0]
-        C = codes[J]
-        table = []
-        # Votes per position, grown one neighbour at a time across the k table.
-        v = np.zeros((n, table_max), dtype=np.int64)
-        rows = np.arange(n)
-        for k in range(1, table_max + 1):
-            new = C[:, k - 1 : k]
-            v[:, : k - 1] += C[:, : k - 1] == new
-            v[:, k - 1] = np.sum(C[:, :k] == new, axis=1)
-            pos = np.argmax(v[:, :k], axis=1)
-            table.append((k, exact_sum(C[rows, pos] != codes) / n))
+        sr = _fit_search(X, names, self.k, self.standard_units)
+        n, table_max = sr.X.shape[0], sr.table_max
+        wrong = [0] * table_max  # rows whose leave-one-out class is wrong, for each k
+        J = np.empty((n, sr.depth), dtype=np.int32)  # n < 2**31: a sheet has 2**20 rows
+        for a, b, Jb in sr.blocks():
+            J[a:b] = Jb
+            C = codes[Jb]
+            # votes per position, grown one neighbour at a time across the k table
+            v = np.zeros((b - a, table_max), dtype=np.int64)
+            rows = np.arange(b - a)
+            for k in range(1, table_max + 1):
+                new = C[:, k - 1 : k]
+                v[:, : k - 1] += C[:, : k - 1] == new
+                v[:, k - 1] = np.sum(C[:, :k] == new, axis=1)
+                pos = np.argmax(v[:, :k], axis=1)
+                wrong[k - 1] += int(np.count_nonzero(C[rows, pos] != codes[a:b]))
+            del Jb, C, v
+        table = [(k, wrong[k - 1] / n) for k in range(1, table_max + 1)]
         k_ = int(self.k) if self.k is not None else _best_k(table)
-        pred, votes = vote(C[:, :k_], len(classes))
+        J = np.ascontiguousarray(J[:, :k_], dtype=np.int64)  # the deeper table let go
+        pred = np.empty(n, dtype=np.int64)
+        votes = np.empty(n, dtype=np.int64)
+        for a in range(0, n, _FIT_ROWS):
+            b = min(n, a + _FIT_ROWS)
+            pred[a:b], votes[a:b] = vote(codes[J[a:b]], len(classes))
         return NeighbourVoteResult(
-            X=X, names=names_, scaling=scaling, Z=Z, tree=tree, k=k_,
-            k_given=self.k is not None, order_J=J, order_D=D, k_table=table,
+            X=sr.X, names=sr.names, scaling=sr.scaling, Z=sr.Z, tree=sr.tree, k=k_,
+            k_given=self.k is not None, order_J=J, order_D=sr.distances(J), k_table=table,
             codes=codes, classes=classes, pred=pred, votes=votes,
         )  # fmt: skip
 
