@@ -129,6 +129,15 @@ def test_sampled_trail_on_the_sheets(tmp_path: Path, small_limits: None, vote: b
         assert [nb[(r, 1 + m)].value for m in range(k)] == \
             [model.y.row_of(int(model.used[j])) for j in res.neighbours_[i]]
         assert [nb[(r, 1 + k + m)].value for m in range(k)] == res.distances_[i].tolist()
+        # the figures worked out for the shown rows alone equal the result's own
+        if vote:
+            assert [nb[(r, 1 + 3 * k + m)].value for m in range(k)] == \
+                res.position_votes_[i].tolist()
+            assert nb[(r, 2 + 4 * k)].value == int(res.votes_[i])
+            assert nb[(r, 3 + 4 * k)].value == float(res.score_[i])
+        else:
+            assert [nb[(r, 2 + 3 * k + d)].value for d in range(3)] == [
+                float(res.nb_min_[i]), float(res.nb_median_[i]), float(res.nb_max_[i])]
     # the new rows follow the sample, with their own header
     assert nb[(FIRST_ROW + SAMPLE + 1, 0)].value == "new row"
     fs = _cells(plan, "fitted")

@@ -10,13 +10,14 @@ column, so no per-cell object is built.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from ..a1 import absolute, col_letter, quote_sheet
 from ..declare.model import ModelData
+from ..fit._classes import class_index, position_votes
 from ..fit.neighbours import (
     MeanPrediction,
     NeighbourMeanResult,
@@ -24,6 +25,7 @@ from ..fit.neighbours import (
     VotePrediction,
 )
 from ..owned import sheet_title
+from ..vectors import Lazy
 from ._nb_trail import Trail
 from .columns import Part, template, this_row
 from .common import (
@@ -115,7 +117,7 @@ def std_sheet(model: ModelData, res: _Result, new: _Prediction | None
         notes[zc] = "(value − mean) / SD, with the mean and SD of its column"
     column_notes(ss, notes)
     used = np.asarray(model.used, dtype=np.int64)
-    ss.run(0, STD_FIRST, used + model.y.first_row, style="row")
+    ss.run(0, STD_FIRST, sheet_rows(used, model.y.first_row), style="row")
     key_runs(ss, STD_FIRST, 1, model.keys, used, key_styles(model.keys))
     for j, c in enumerate(model.xs):
         cell = ref_parts(c, used)
@@ -176,17 +178,6 @@ class Block:
     score: np.ndarray | None = None  # vote: votes / k
     share: np.ndarray | None = None  # vote: share of the k in the focus class
 
-    def take(self, idx: np.ndarray) -> Block:
-        """The block of the rows at positions ``idx``."""
-        def cut(a: np.ndarray | None) -> Any:
-            return None if a is None else np.asarray(a)[idx]
-        return replace(self, sheet_rows=self.sheet_rows[idx], z_rows=self.z_rows[idx],
-                       neighbours=self.neighbours[idx], distances=self.distances[idx],
-                       value=np.asarray(self.value)[idx],
-                       spread=None if self.spread is None else
-                       (self.spread[0][idx], self.spread[1][idx], self.spread[2][idx]),
-                       position_votes=cut(self.position_votes), votes=cut(self.votes),
-                       score=cut(self.score), share=cut(self.share))
 
 
 def _data_rows(model: ModelData) -> np.ndarray:
@@ -199,11 +190,17 @@ def _new_rows(model: ModelData) -> np.ndarray:
     return np.arange(model.new.n, dtype=np.int64) + model.new.columns[0].first_row
 
 
-def mean_blocks(model: ModelData, res: NeighbourMeanResult,
-                new: MeanPrediction | None) -> tuple[Block, Block | None]:
-    data = Block(_data_rows(model), np.arange(res.n_), False, res.neighbours_,
-                 res.distances_, res.fitted_,
-                 spread=(res.nb_min_, res.nb_median_, res.nb_max_))
+def mean_blocks(model: ModelData, res: NeighbourMeanResult, new: MeanPrediction | None,
+                rows: np.ndarray) -> tuple[Block, Block | None]:
+    """The data rows at positions ``rows`` (the audit trail's) and the new rows of a mean;
+    the neighbours' spread is worked out for those rows only (row by row, as the result's
+    ``nb_min_``, ``nb_median_`` and ``nb_max_`` would give them)."""
+    J = res.neighbours_[rows]
+    nb_y = res.y_[J]
+    data = Block(_data_rows(model)[rows], rows, False, J, res.distances_[rows],
+                 res.fitted_[rows],
+                 spread=(nb_y.min(axis=1), np.median(nb_y, axis=1), nb_y.max(axis=1)))
+    del nb_y
     if new is None or model.new is None:
         return data, None
     return data, Block(_new_rows(model), np.arange(model.new.n), True, new.neighbours,
@@ -212,10 +209,17 @@ def mean_blocks(model: ModelData, res: NeighbourMeanResult,
 
 
 def vote_blocks(model: ModelData, res: NeighbourVoteResult, new: VotePrediction | None,
-                focus: str | float) -> tuple[Block, Block | None]:
-    data = Block(_data_rows(model), np.arange(res.n_), False, res.neighbours_,
-                 res.distances_, res.fitted_, position_votes=res.position_votes_,
-                 votes=res.votes_, score=res.score_, share=res.share(focus))
+                focus: str | float, rows: np.ndarray) -> tuple[Block, Block | None]:
+    """The data rows at positions ``rows`` (the audit trail's) and the new rows of a vote;
+    votes, scores and shares worked out for those rows only, row by row as the result's
+    own (``position_votes_``, ``score_``, ``share``) give them."""
+    J = res.neighbours_[rows]
+    codes = res.y_code_[J]
+    c = class_index(list(res.classes_), focus)
+    votes = res.votes_[rows]
+    data = Block(_data_rows(model)[rows], rows, False, J, res.distances_[rows],
+                 res.fitted_[rows], position_votes=position_votes(codes, len(res.classes_)),
+                 votes=votes, score=votes / res.k_, share=np.mean(codes == c, axis=1))
     if new is None or model.new is None:
         return data, None
     return data, Block(_new_rows(model), np.arange(model.new.n), True, new.neighbours,
@@ -339,7 +343,8 @@ def fitted_sheet(model: ModelData, res: _Result, trail: Trail, ns: SheetPlan, pr
         else:
             fs.run(ob + 1, FIRST_ROW + a, fitted[a:b], style=derived)
     if not trail.full:  # one run, blank (nothing written) where the row is not in the trail
-        fs.run(mark, FIRST_ROW, [int(v) if v > 0 else None for v in at.tolist()])
+        fs.run(mark, FIRST_ROW, Lazy(n, lambda a, b: [int(v) if v > 0 else None
+                                                       for v in at[a:b].tolist()], None))
     if isinstance(res, NeighbourVoteResult):
         B, C = _letter(ob), _letter(ob + 1)
         fs.run(ob + 2, FIRST_ROW, np.asarray(res.correct_, dtype=np.int64).tolist(),

@@ -30,6 +30,7 @@ from ..fit.neighbours import (
 from ..fit.results import Fitted
 from ..labels import label_text, labels_equal
 from ..owned import sheet_title
+from ..vectors import Lazy
 from ._nb_rows import (
     Block,
     RowCells,
@@ -73,8 +74,10 @@ def plan_neighbour_mean(model: ModelData, fitted: Fitted[NeighbourMeanResult],
                         version: str) -> Planned:
     """Plan the summary, standard-units, neighbours, fitted and residual sheets of a mean."""
     res = fitted.result
-    data, new = mean_blocks(model, res, fitted.new)
-    return _plan(model, res, fitted.new, data, new, None, version, fitted.extrapolated)
+    trail = _trail(model, res)
+    data, new = mean_blocks(model, res, fitted.new, trail.rows)
+    return _plan(model, res, fitted.new, data, new, None, version, fitted.extrapolated,
+                 trail)
 
 
 def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
@@ -82,8 +85,15 @@ def plan_neighbour_vote(model: ModelData, fitted: Fitted[NeighbourVoteResult],
     """Plan the summary, standard-units, neighbours and fitted sheets of a vote."""
     res = fitted.result
     focus = _focus(model, res)
-    data, new = vote_blocks(model, res, fitted.new, focus)
-    return _plan(model, res, fitted.new, data, new, focus, version, fitted.extrapolated)
+    trail = _trail(model, res)
+    data, new = vote_blocks(model, res, fitted.new, focus, trail.rows)
+    return _plan(model, res, fitted.new, data, new, focus, version, fitted.extrapolated,
+                 trail)
+
+
+def _trail(model: ModelData, res: _Result) -> Trail:
+    """The data rows the neighbours sheet shows (setting ``trail``)."""
+    return trail_of(res.n_, str(model.settings.values.get("trail", "all")))
 
 
 @dataclass(frozen=True)
@@ -105,13 +115,13 @@ def _layout(n_new: int, vote: bool) -> _Layout:
 
 def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: Block,
           new: Block | None, focus: str | float | None, version: str,
-          extrapolated: list[int]) -> Planned:
-    """The sheets both neighbour methods share; ``focus`` is None for a mean, a class for a vote."""
+          extrapolated: list[int], trail: Trail) -> Planned:
+    """The sheets both neighbour methods share; ``focus`` is None for a mean, a class for a
+    vote; ``data`` holds the rows of the ``trail``."""
     vote = focus is not None
     tag, y = model.tag, model.y
     k = int(res.k_)
     o = key_width(model.keys, model.new.keys if model.new is not None else None)
-    trail = trail_of(res.n_, str(model.settings.values.get("trail", "all")))
     ss, zcells, z_range = std_sheet(model, res, prediction)
     ns = SheetPlan(sheet_title(tag, "nbrs"))
     summary = SheetPlan(sheet_title(tag, "summary"))
@@ -150,8 +160,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     derived = "class" if vote else decimal_style(res.y_.tolist(), least=2, fmt=model.y.fmt)
     ctx = RowCells(model, np.asarray(res.y_), zcells, k, k_cell, focus_cell, vote, o, ystyle,
                    derived)
-    shown = data if trail.full else data.take(trail.rows)
-    neighbour_block(ns, FIRST_ROW, shown, ctx)
+    neighbour_block(ns, FIRST_ROW, data, ctx)  # the trail's rows only
     key_runs(ns, FIRST_ROW, 1, model.keys, np.asarray(model.used, dtype=np.int64)[trail.rows],
              key_styles(model.keys))
     names: list[tuple[str, str]] = []
@@ -179,7 +188,8 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, (f"{quote_sheet(fs.title)}!{col_letter(fit_col + 1)}",
-                    np.arange(res.n_) + FIRST_ROW + 1), res.fitted_, res.resid_,
+                    Lazy(res.n_, lambda a, b: np.arange(a, b) + (FIRST_ROW + 1), np.int64)),
+            res.fitted_, res.resid_,
             "residual = observed − fitted (the leave-one-out mean of the row's neighbours).",
             keys=model.keys)
         rc = 3 + key_width(model.keys)
