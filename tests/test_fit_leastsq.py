@@ -260,3 +260,26 @@ def test_prediction_outside_the_fitted_range_is_cautioned() -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("error", ExtrapolationCaution)
         res.predict(np.array([[1.0, 50.0]]))  # the edges themselves are inside
+
+
+@pytest.mark.parametrize(("intercept", "degree", "m"), [(True, 1, 3), (False, 1, 2),
+                                                         (True, 3, 1), (False, 2, 1)])
+def test_design_made_from_the_attributes_not_kept(intercept: bool, degree: int,
+                                                  m: int) -> None:
+    """The result keeps the attributes, not a second table: its design, its row blocks
+    and its columns are made from them on use and equal the design written out by hand
+    (ones, then x or x, x², …)."""
+    rng = np.random.default_rng(21)
+    X = rng.normal(4, 2, size=(40, m)).round(3)
+    y = rng.normal(size=40)
+    res = LeastSquares(intercept=intercept, degree=degree).fit(X, y)
+    cols = [X[:, 0] ** k for k in range(1, degree + 1)] if degree > 1 else list(X.T)
+    by_hand = np.column_stack(([np.ones(40)] if intercept else []) + cols)
+    assert np.array_equal(res.design_, by_hand) and not res.design_.flags.writeable
+    assert np.array_equal(res.design_rows(7, 19), by_hand[7:19])
+    for j in range(res.p_):
+        assert np.array_equal(res.design_column(j), by_hand[:, j])
+    held = [v for v in vars(res).values() if isinstance(v, np.ndarray) and v.ndim == 2
+            and v.shape[0] == 40]  # tables with a row per data row
+    assert held and all(np.shares_memory(v, X) for v in held)  # X itself, no design copy
+    assert res.design_ is not res.design_  # made on each use

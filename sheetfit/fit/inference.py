@@ -136,10 +136,10 @@ def _hc3(res: LeastSquaresResult) -> np.ndarray:
     """HC3: (XᵀX)⁻¹ Xᵀ diag(eᵢ² / (1 − hᵢ)²) X (XᵀX)⁻¹ (MacKinnon and White 1985)."""
     h = _leverage(res)
     e = np.asarray(res.resid_)
-    design, inv = np.asarray(res.design_), np.asarray(res.xtx_inv_)
+    inv = np.asarray(res.xtx_inv_)
     cov_diag = np.zeros(res.p_)
     for a, b in _blocks(res.n_):
-        m = design[a:b] @ inv
+        m = res.design_rows(a, b) @ inv
         with np.errstate(divide="ignore", invalid="ignore"):
             w = np.where(h[a:b] < LEVERAGE_ONE, (e[a:b] / (1 - h[a:b])) ** 2, math.nan)
         cov_diag += np.einsum("ij,i,ij->j", m, w, m)
@@ -160,21 +160,22 @@ class _Basis:
     def __init__(self, res: LeastSquaresResult, centred: bool | None = None) -> None:
         self.res = res
         self.centred = res.intercept_ if centred is None else centred
-        d = np.asarray(res.design_)
         self.first = int(res.intercept_)
         self.m = 1 if res.degree_ > 1 else len(res.names_)
+        # column statistics one design column at a time (never the whole design)
         if not self.centred:
-            norms = np.array([np.linalg.norm(d[:, j]) for j in range(d.shape[1])])
+            norms = np.array([np.linalg.norm(res.design_column(j)) for j in range(res.p_)])
             self.norms = np.where(norms > 0, norms, 1.0)
             return
-        cols = [d[:, self.first + j] for j in range(self.m)]
-        self.mean = np.array([c.mean() for c in cols])
-        sd = np.array([c.std() for c in cols])
+        stats = [(c.mean(), c.std()) for c in
+                 (res.design_column(self.first + j) for j in range(self.m))]
+        self.mean = np.array([m for m, _ in stats])
+        sd = np.array([s for _, s in stats])
         self.sd = np.where(sd > 0, sd, 1.0)
 
     def rows(self, a: int, b: int) -> np.ndarray:
         """Basis rows of fitted rows a … b − 1."""
-        return self._of(np.asarray(self.res.design_)[a:b])
+        return self._of(self.res.design_rows(a, b))
 
     def new(self, X: np.ndarray) -> np.ndarray:
         """Basis rows of new attribute rows ``X``."""
@@ -335,10 +336,10 @@ def vif(res: LeastSquaresResult) -> np.ndarray:
     others); without one, (XᵀX)⁻¹ⱼⱼ · Σxⱼ² (uncentred), as a regression through the
     origin defines it.
     """
-    d = np.asarray(res.design_)
     first = int(res.intercept_)
     inv = np.diag(np.asarray(res.xtx_inv_))[first:]
-    cols = d[:, first:]
+    cols = np.column_stack([res.design_column(j) for j in range(first, res.p_)]) \
+        if res.p_ > first else np.empty((res.n_, 0))
     ss = (((cols - cols.mean(axis=0)) ** 2).sum(axis=0) if res.intercept_
           else (cols**2).sum(axis=0))
     return readonly(inv * ss)

@@ -76,8 +76,8 @@ class LeastSquares:
         if intercept:
             checks.not_constant(X, names, "its effect cannot be told apart from the intercept",
                                 hint="drop it from x, or fit without intercept")
-        design = _design(X, intercept, degree)
-        sol = _solve(X, y, design, intercept, degree, terms, is_poly=degree > 1)
+        sol = _solve(X, y, _design(X, intercept, degree), intercept, degree, terms,
+                     is_poly=degree > 1)
         checks.warn_conditioning(sol.condition_number, polynomial=degree > 1)
         return LeastSquaresResult(
             coef=sol.coef,
@@ -85,7 +85,7 @@ class LeastSquares:
             names=names,
             intercept=intercept,
             degree=degree,
-            design=design,
+            X=X,
             y=y,
             solution=sol,
         )
@@ -119,7 +119,7 @@ class LeastSquaresResult:
         names: list[str],
         intercept: bool,
         degree: int,
-        design: np.ndarray,
+        X: np.ndarray,
         y: np.ndarray,
         solution: _Solution,
     ) -> None:
@@ -128,7 +128,7 @@ class LeastSquaresResult:
         self.names_ = list(names)
         self.intercept_ = intercept
         self.degree_ = degree
-        self.design_ = readonly(design)
+        self._X = readonly(X)  # the attribute table (the caller's array, not a copy)
         self.y_ = readonly(y)
         self._sol = solution
 
@@ -136,15 +136,34 @@ class LeastSquaresResult:
         coefs = ", ".join(f"{t}={c:.6g}" for t, c in zip(self.terms_, self.coef_, strict=True))
         return f"LeastSquaresResult(n={self.n_}, {coefs}, r2={self.r2_:.6g})"
 
+    @property
+    def design_(self) -> np.ndarray:
+        """The design matrix: a column of ones (with an intercept), then the attributes
+        (or the powers of the one attribute), one row per fitted row. Made on each use
+        from the attributes, never kept (a million rows × 6 terms are 48 MB); the
+        statistics read it a block of rows at a time through :meth:`design_rows`."""
+        return readonly(_design(self._X, self.intercept_, self.degree_))
+
+    def design_rows(self, a: int, b: int) -> np.ndarray:
+        """Rows a … b − 1 of the design matrix (the same numbers as ``design_[a:b]``)."""
+        return _design(self._X[a:b], self.intercept_, self.degree_)
+
+    def design_column(self, j: int) -> np.ndarray:
+        """Column j of the design matrix (the same numbers as ``design_[:, j]``)."""
+        if self.intercept_ and j == 0:
+            return np.ones(self.n_)
+        k = j - int(self.intercept_)
+        return self._X[:, 0] ** (k + 1) if self.degree_ > 1 else self._X[:, k].copy()
+
     @cached_property
     def n_(self) -> int:
         """Number of rows fitted."""
-        return int(self.design_.shape[0])
+        return int(self._X.shape[0])
 
     @cached_property
     def p_(self) -> int:
         """Number of parameters (intercept included)."""
-        return int(self.design_.shape[1])
+        return len(self.terms_)
 
     @cached_property
     def x_min_(self) -> np.ndarray:
@@ -158,8 +177,9 @@ class LeastSquaresResult:
 
     @property
     def _attributes(self) -> np.ndarray:
-        first = int(self.intercept_)
-        return self.design_[:, first : first + (1 if self.degree_ > 1 else len(self.names_))]
+        """The attribute columns of the design (the attributes themselves; for a
+        polynomial its one attribute, the design's x¹)."""
+        return self._X[:, : (1 if self.degree_ > 1 else len(self.names_))]
 
     @cached_property
     def df_resid_(self) -> int:

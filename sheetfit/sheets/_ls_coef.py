@@ -146,7 +146,7 @@ class CoefInputs:
     version: str
     left_out: int
     range_lines: list[tuple[str, float, float, str]] = field(default_factory=list)
-    data_rows: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+    data_rows: np.ndarray | Lazy = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
     rule: RuleFit | None = None
     lay: CoefLayout | None = None
     answer: list[AnswerRow] = field(default_factory=list)

@@ -98,10 +98,17 @@ def key_formula(cell: str) -> str:
 _last_rows: list[tuple[weakref.ref[np.ndarray], int, weakref.ref[np.ndarray]] | None] = [None]
 
 
-def sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray:
-    """``idx + first_row`` as int64; the same array again for the same ``idx`` array and
+def sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray | Lazy:
+    """``idx + first_row`` as int64. Rows ``idx`` that follow one another (no row left out
+    between them: the usual case) give a :class:`~sheetfit.vectors.Lazy` made a block at
+    a time, nothing held; others the same array again for the same ``idx`` array and
     first row while the earlier one is still in use (one vector for every attribute of
     a million-row model instead of one each). Planners never change ``idx`` in place."""
+    if isinstance(idx, np.ndarray) and idx.ndim == 1 and len(idx) and idx.dtype.kind in "iu" \
+            and int(idx[-1]) - int(idx[0]) == len(idx) - 1 and bool(np.all(np.diff(idx) == 1)):
+        start = int(idx[0]) + first_row
+        return Lazy(len(idx), lambda a, b: np.arange(start + a, start + b, dtype=np.int64),
+                    np.int64)
     memo = _last_rows[0]
     if memo is not None and isinstance(idx, np.ndarray) and memo[0]() is idx \
             and memo[1] == first_row and (rows := memo[2]()) is not None:
