@@ -338,10 +338,12 @@ def vif(res: LeastSquaresResult) -> np.ndarray:
     """
     first = int(res.intercept_)
     inv = np.diag(np.asarray(res.xtx_inv_))[first:]
-    cols = np.column_stack([res.design_column(j) for j in range(first, res.p_)]) \
-        if res.p_ > first else np.empty((res.n_, 0))
-    ss = (((cols - cols.mean(axis=0)) ** 2).sum(axis=0) if res.intercept_
-          else (cols**2).sum(axis=0))
+    ss = np.empty(res.p_ - first)
+    for j in range(first, res.p_):  # one design column at a time (pairwise sums)
+        c = res.design_column(j)
+        if res.intercept_:
+            c -= c.mean()
+        ss[j - first] = float(np.dot(c, c))
     return readonly(inv * ss)
 
 
