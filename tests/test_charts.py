@@ -500,3 +500,23 @@ def test_comparison_only_between_like_errors(tmp_path: Path):
     _, loo = compare.one("leave-one-out error rate")
     assert [t[0] for t in book.targets(loo)] == book.name("sf_v1_loo") + book.name("sf_v2_loo")
     assert all("of the models" not in c.title for c in book.charts["sf m charts"])
+
+
+def test_a_column_s_extremes_found_a_block_at_a_time() -> None:
+    """What the zero line and the axis bounds read of a million-row column (its finite
+    smallest and largest) is found block by block in a lazy column, and equals numpy's
+    min and max of the finite numbers; texts, logicals, nan and infinity are skipped."""
+    from sheetfit.sheets.charts import extremes, numbers
+    from sheetfit.vectors import BLOCK, Lazy
+
+    rng = np.random.default_rng(17)
+    v = rng.normal(50, 20, 3 * BLOCK + 11)
+    v[[5, BLOCK + 3]] = [np.inf, np.nan]
+    v[2 * BLOCK + 7] = -1e9  # the smallest, in the third block
+    lazy = Lazy(len(v), lambda a, b: v[a:b].copy())
+    finite = v[np.isfinite(v)]
+    want = [float(finite.min()), float(finite.max())]
+    assert extremes(lazy).tolist() == want == extremes(v).tolist()
+    mixed = ["", "text", True, 3.5, float("nan"), -2.0, None]
+    assert extremes(mixed).tolist() == [-2.0, 3.5] == [min(numbers(mixed)), max(numbers(mixed))]
+    assert extremes(Lazy(2, lambda a, b: np.array([np.nan, np.inf])[a:b])).size == 0

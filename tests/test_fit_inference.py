@@ -19,6 +19,7 @@ from sheetfit.fit.inference import (
     breusch_pagan,
     coef_table,
     influence,
+    influence_rows,
     intervals,
     overall,
     vif,
@@ -327,3 +328,18 @@ def test_blockwise_factorisation_agrees_with_one_piece(case_name, monkeypatch) -
     _close(blocked[1].hc3_se, ref.HC3_se, "block-wise HC3")
     exog = d if intercept else sm.add_constant(d, has_constant="add")
     _close(blocked[2][0], het_breuschpagan(ref.resid, exog)[0], "block-wise Breusch–Pagan")
+
+
+def test_influence_of_a_block_of_rows_is_the_same_numbers() -> None:
+    """influence_rows (the cautions count outliers a block of rows at a time) gives
+    exactly the studentized residuals, Cook's distances and PRESS of those rows."""
+    rng = np.random.default_rng(31)
+    X = rng.normal(size=(500, 3))
+    y = X @ [1.0, -2.0, 0.5] + rng.normal(size=500)
+    res = LeastSquares().fit(X, y)
+    whole = influence(res)
+    for a, b in [(0, 500), (0, 1), (137, 311), (499, 500)]:
+        student, cooks, press = influence_rows(res, a, b)
+        assert student.tobytes() == whole.student[a:b].tobytes()
+        assert cooks.tobytes() == whole.cooks[a:b].tobytes()
+        assert press.tobytes() == whole.press[a:b].tobytes()

@@ -34,6 +34,7 @@ __all__ = [
     "breusch_pagan",
     "coef_table",
     "influence",
+    "influence_rows",
     "intervals",
     "leverage",
     "overall",
@@ -354,7 +355,18 @@ def influence(res: LeastSquaresResult) -> Influence:
     leave-one-out quantities, and then the leave-one-out RMSE is nan too.
     """
     h = _leverage(res)
-    e = np.asarray(res.resid_)
+    student, cooks, press = influence_rows(res, 0, res.n_)
+    ok = h < LEVERAGE_ONE
+    loo = math.sqrt(float(np.mean(press**2))) if bool(ok.all()) else math.nan
+    return Influence(h, readonly(student), readonly(cooks), readonly(press), loo)
+
+
+def influence_rows(res: LeastSquaresResult, a: int, b: int
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The studentized residuals, Cook's distances and PRESS residuals of rows a … b − 1
+    (element-wise: the same numbers as :func:`influence` gives those rows)."""
+    h = _leverage(res)[a:b]
+    e = np.asarray(res.resid_)[a:b]
     s = res.resid_sd_
     p = res.p_
     ok = h < LEVERAGE_ONE
@@ -363,8 +375,7 @@ def influence(res: LeastSquaresResult) -> Influence:
         student = e / (s * np.sqrt(one_minus))
         cooks = student**2 * h / (p * one_minus)
         press = e / one_minus
-    loo = math.sqrt(float(np.mean(press**2))) if bool(ok.all()) else math.nan
-    return Influence(h, readonly(student), readonly(cooks), readonly(press), loo)
+    return student, cooks, press
 
 
 def intervals(res: LeastSquaresResult, X_new: np.ndarray, level: float = 0.95) -> Intervals:

@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from ..fit.inference import breusch_pagan, influence, t_quantile, vif
+from ..fit.inference import breusch_pagan, influence_rows, t_quantile, vif
 from ..fit.leastsq import LeastSquaresResult
 from ..words import plural
 from ._ls_audit import audit_caution
@@ -73,12 +73,14 @@ def least_squares_cautions(res: LeastSquaresResult) -> list[str]:
                        f"{', '.join(big)}): their separate coefficients are poorly determined "
                        "even when the fit as a whole is good")
     if res.df_resid_ > 0 and not exact:
-        infl = influence(res)
         n = res.n_
-        with np.errstate(invalid="ignore"):
-            outl = int(np.sum(np.abs(np.nan_to_num(infl.student)) > 3))
-            heavy = int(np.sum(np.nan_to_num(infl.cooks) > 4 / n))
-        ones = int(np.sum(np.isnan(infl.press)))
+        outl = heavy = ones = 0
+        for a in range(0, n, 1 << 16):  # a block of rows at a time: counts only
+            student, cooks, press = influence_rows(res, a, min(n, a + (1 << 16)))
+            with np.errstate(invalid="ignore"):
+                outl += int(np.sum(np.abs(np.nan_to_num(student)) > 3))
+                heavy += int(np.sum(np.nan_to_num(cooks) > 4 / n))
+            ones += int(np.sum(np.isnan(press)))
         if outl:
             out.append(f"{plural(outl, 'row')} with |studentized residual| > 3 (flagged on "
                        "the residual sheet): check them for errors before trusting the fit")

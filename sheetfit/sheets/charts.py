@@ -24,6 +24,7 @@ from ..a1 import absolute, col_index, col_letter, quote_sheet
 from ..declare.model import ModelData
 from ..fit.results import Fitted
 from ..owned import sheet_title
+from ..vectors import Lazy, blocks, is_numeric, whole
 from .chartplan import ChartPlan, Series, Span
 from .plan import Planned, Scalar, SheetPlan
 
@@ -73,7 +74,8 @@ class CellColumn(Sequence[tuple[str, Scalar]]):
     """(absolute reference, cached value) of each cell of a column range, the reference
     made when asked for; ``values`` are the cached values in order."""
 
-    def __init__(self, head: str, first_row: int, values: list[Scalar] | np.ndarray) -> None:
+    def __init__(self, head: str, first_row: int,
+                 values: list[Scalar] | np.ndarray | Lazy) -> None:
         self._head, self._first, self.values = head, first_row, values
 
     def __len__(self) -> int:
@@ -125,8 +127,8 @@ class Located:
         title, c1, r1, _, r2 = self._area(name)
         sheet = self._sheets.get(title)
         c = c1 + j
-        values: list[Scalar] | np.ndarray = (sheet.values_in(c, r1, r2) if sheet
-                                             else [None] * (r2 - r1 + 1))
+        values: list[Scalar] | np.ndarray | Lazy = (sheet.values_in(c, r1, r2) if sheet
+                                                    else [None] * (r2 - r1 + 1))
         return CellColumn(f"{quote_sheet(title)}!${col_letter(c + 1)}$", r1 + 1, values)
 
     def block(self, name: str) -> list[list[tuple[str, Scalar]]]:
@@ -214,14 +216,31 @@ def data_cells(cells: Sequence[str], values: Sequence[float]) -> list[tuple[str 
     return [(f"={c}", float(v)) for c, v in zip(cells, values, strict=True)]
 
 
-def numbers(values: Sequence[Scalar] | np.ndarray) -> np.ndarray:
+def numbers(values: Sequence[Scalar] | np.ndarray | Lazy) -> np.ndarray:
     """The finite numbers among ``values`` (not logicals), as an array."""
+    values = whole(values)
     if isinstance(values, np.ndarray) and values.dtype == np.float64:
         return values[np.isfinite(values)]
     if all(type(v) is float for v in values):
         x = np.array(values, dtype=float)
         return x[np.isfinite(x)]
     return np.array([float(v) for v in values if _number(v)], dtype=float)  # type: ignore[arg-type]
+
+
+def extremes(values: Sequence[Scalar] | np.ndarray | Lazy) -> np.ndarray:
+    """The smallest and the largest of the finite numbers among ``values`` (an empty array
+    when there is none): what :func:`extreme` and ``nice_bounds`` read of a column, found
+    a block at a time in a column of numbers (a million fitted values are never copied)."""
+    if is_numeric(values):
+        lo, hi = math.inf, -math.inf
+        for b in blocks(values):
+            x = np.asarray(b, dtype=np.float64)
+            x = x[np.isfinite(x)]
+            if x.size:
+                lo, hi = min(lo, float(x.min())), max(hi, float(x.max()))
+        return np.array([lo, hi]) if lo <= hi else np.zeros(0)
+    nums = numbers(values)
+    return np.array([nums.min(), nums.max()]) if nums.size else nums
 
 
 def extreme(fn: str, spans: Sequence[str], values: Sequence[Scalar] | np.ndarray

@@ -41,6 +41,7 @@ from .charts import (
     copy_cells,
     data_cells,
     extreme,
+    extremes,
     numbers,
     sample_rows,
     suffix,
@@ -80,7 +81,7 @@ def _residual_chart(board: ChartSheet, model: ModelData, loc: Located, rows: lis
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     res = board.column("residual", copy_cells(_pick(res_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values = numbers(fit_cells.values)
+    values = extremes(fit_cells.values)  # the column's smallest and largest only
     zx = board.column("zero line x", [extreme("MIN", [whole], values),
                                       extreme("MAX", [whole], values)])
     zy = board.column("zero line y", [(None, 0), (None, 0)])
@@ -120,7 +121,7 @@ def _diagonal(board: ChartSheet, model: ModelData, loc: Located, obs: Span,
     fit_cells = loc.column(f"sf_{tag}_fitted")
     fit = board.column(f"{fitted_word} {yname}", copy_cells(_pick(fit_cells, rows)))
     whole = loc.range_text(f"sf_{tag}_fitted")
-    values = np.concatenate([numbers(fit_cells.values), numbers(obs_values)])
+    values = np.concatenate([extremes(fit_cells.values), extremes(obs_values)])
     ends = board.column("45° line", [extreme("MIN", [whole, obs.ref()], values),
                                      extreme("MAX", [whole, obs.ref()], values)])
     board.gap()

@@ -313,15 +313,19 @@ class SheetPlan:
     def is_free(self, row: int, col: int) -> bool:
         return (row, col) not in self._taken and self._run_at(row, col) is None
 
-    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar] | np.ndarray:
+    def values_in(self, col: int, row1: int, row2: int) -> list[Scalar] | np.ndarray | Lazy:
         """Cached values planned in rows row1..row2 of a column (None where nothing is);
-        inside one run of numbers, a read-only view of its float64 values (a chart reads
-        a whole 1,000,000-row column; a list of floats would cost 32 bytes a row)."""
+        inside one run of numbers, a read-only view of its float64 values, or of a lazy
+        run a lazy vector of them (a chart reads a whole 1,000,000-row column; a list of
+        floats would cost 32 bytes a row)."""
         run = self._run_at(row1, col)
         if run is not None and row2 <= run.last:
             held = run.values
-            if isinstance(held, (np.ndarray, Lazy)) and held.dtype == np.float64:
-                view = held[row1 - run.row0:row2 - run.row0 + 1].view()  # a lazy one: made now
+            a, b = row1 - run.row0, row2 - run.row0 + 1
+            if isinstance(held, Lazy) and held.dtype == np.float64:  # still made on use
+                return Lazy(b - a, lambda i, j: held[a + i:a + j])
+            if isinstance(held, np.ndarray) and held.dtype == np.float64:
+                view = held[a:b].view()
                 view.flags.writeable = False
                 return view
             return run.scalars(row1 - run.row0, row2 - run.row0 + 1)
