@@ -34,6 +34,7 @@ __all__ = [
     "check_cell",
     "check_words",
     "column_notes",
+    "consecutive_rows",
     "fsum_sq",
     "key_formula",
     "key_heads",
@@ -98,6 +99,11 @@ def key_formula(cell: str) -> str:
 _last_rows: list[tuple[weakref.ref[np.ndarray], int, weakref.ref[np.ndarray]] | None] = [None]
 
 
+def consecutive_rows(n: int, start: int) -> Lazy:
+    """The row numbers start, start + 1, …, start + n − 1 (int64), made a block at a time."""
+    return Lazy(n, lambda a, b: np.arange(start + a, start + b, dtype=np.int64), np.int64)
+
+
 def sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray | Lazy:
     """``idx + first_row`` as int64. Rows ``idx`` that follow one another (no row left out
     between them: the usual case) give a :class:`~sheetfit.vectors.Lazy` made a block at
@@ -106,9 +112,7 @@ def sheet_rows(idx: np.ndarray | Sequence[int], first_row: int) -> np.ndarray | 
     a million-row model instead of one each). Planners never change ``idx`` in place."""
     if isinstance(idx, np.ndarray) and idx.ndim == 1 and len(idx) and idx.dtype.kind in "iu" \
             and int(idx[-1]) - int(idx[0]) == len(idx) - 1 and bool(np.all(np.diff(idx) == 1)):
-        start = int(idx[0]) + first_row
-        return Lazy(len(idx), lambda a, b: np.arange(start + a, start + b, dtype=np.int64),
-                    np.int64)
+        return consecutive_rows(len(idx), int(idx[0]) + first_row)
     memo = _last_rows[0]
     if memo is not None and isinstance(idx, np.ndarray) and memo[0]() is idx \
             and memo[1] == first_row and (rows := memo[2]()) is not None:

@@ -36,6 +36,7 @@ from .columns import Part, template
 from .common import (
     FIRST_ROW,
     column_notes,
+    consecutive_rows,
     fsum_sq,
     key_heads,
     key_runs,
@@ -177,10 +178,8 @@ def plan_least_squares(model: ModelData, fitted_: Fitted[LeastSquaresResult],
     Y = np.asarray(model.Y, dtype=float)
     # what observed − fitted gives on the residual sheet, a block of rows at a time
     resid = Lazy(n, lambda a, b: Y[a:b] - fitted[a:b])
-    fit_rows = Lazy(n, lambda a, b: np.arange(a, b, dtype=np.int64) + (FIRST_ROW + 1),
-                    np.int64)
     rs = plan_residual_sheet(
-        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", fit_rows),
+        model, (f"{_q(fs.title)}!{col_letter(fit_col + 1)}", consecutive_rows(n, FIRST_ROW + 1)),
         fitted, resid,
         "residual = observed − fitted, each a formula; to the right, how much each row "
         "moves the fit.", keys=model.keys)

@@ -30,7 +30,6 @@ from ..fit.neighbours import (
 from ..fit.results import Fitted
 from ..labels import label_text, labels_equal
 from ..owned import sheet_title
-from ..vectors import Lazy
 from ._nb_rows import (
     Block,
     RowCells,
@@ -46,6 +45,7 @@ from .common import (
     check_cell,
     check_words,
     column_notes,
+    consecutive_rows,
     key_heads,
     key_runs,
     key_styles,
@@ -188,7 +188,7 @@ def _plan(model: ModelData, res: _Result, prediction: _Prediction | None, data: 
     elif isinstance(res, NeighbourMeanResult):
         rs = plan_residual_sheet(
             model, (f"{quote_sheet(fs.title)}!{col_letter(fit_col + 1)}",
-                    Lazy(res.n_, lambda a, b: np.arange(a, b) + (FIRST_ROW + 1), np.int64)),
+                    consecutive_rows(res.n_, FIRST_ROW + 1)),
             res.fitted_, res.resid_,
             "residual = observed − fitted (the leave-one-out mean of the row's neighbours).",
             keys=model.keys)
