@@ -178,7 +178,8 @@ _FIT_ROWS = 1 << 15
 @dataclass(frozen=True)
 class _Search:
     """Standard units, the tree, and the ordered neighbours of every training row, found a
-    block of rows at a time (``blocks``) to the depth the k table needs."""
+    block of rows at a time (``blocks``) to the depth the k table needs and kept in
+    ``order`` as int32 (n < 2**31: a sheet has 2**20 rows) until k is chosen."""
 
     X: np.ndarray
     names: list[str]
@@ -187,15 +188,23 @@ class _Search:
     tree: cKDTree
     table_max: int
     depth: int
+    order: np.ndarray
 
     def blocks(self) -> Iterator[tuple[int, int, np.ndarray]]:
-        """(a, b, the neighbours of rows a..b-1 in order, ``depth`` a row, itself never)."""
+        """(a, b, the neighbours of rows a..b-1 in order, ``depth`` a row, itself never),
+        each block also written to ``order``."""
         n = self.Z.shape[0]
         for a in range(0, n, _FIT_ROWS):
             b = min(n, a + _FIT_ROWS)
             J, _ = search(self.tree, self.Z, self.Z[a:b], self.depth, np.arange(a, b))
+            self.order[a:b] = J
             yield a, b, J
             del J  # not held while the next block is searched
+
+    def chosen(self, k: int) -> np.ndarray:
+        """The first k neighbours of every row (int64, its own array: the deeper table
+        can go)."""
+        return np.ascontiguousarray(self.order[:, :k], dtype=np.int64)
 
     def distances(self, J: np.ndarray) -> np.ndarray:
         """The exact distances of every training row to its neighbours ``J`` (the values
@@ -221,7 +230,9 @@ def _fit_search(X: np.ndarray, names: Sequence[str] | None, k: int | None,
 
     tree = cKDTree(Z)
     table_max = min(TABLE_MAX_K, n - 1)
-    return _Search(X, names_, scaling, Z, tree, table_max, max(kk or 0, table_max))
+    depth = max(kk or 0, table_max)
+    return _Search(X, names_, scaling, Z, tree, table_max, depth,
+                   np.empty((n, depth), dtype=np.int32))
 
 
 class NeighbourMean:
@@ -242,9 +253,7 @@ class NeighbourMean:
         ks = list(range(1, table_max + 1))
         # each k's sum of squared leave-one-out residuals, as exact parts per block
         parts: dict[int, list[float]] = {k: [] for k in ks}
-        J = np.empty((n, sr.depth), dtype=np.int32)  # n < 2**31: a sheet has 2**20 rows
         for a, b, Jb in sr.blocks():
-            J[a:b] = Jb
             yb = y[a:b]
             for k, total in iter_prefix_fsums(y[Jb], ks):
                 res = yb - total / k
@@ -252,7 +261,7 @@ class NeighbourMean:
             del Jb
         table = [(k, math.sqrt(math.fsum(parts[k]) / n)) for k in ks]
         k_ = int(self.k) if self.k is not None else _best_k(table)
-        J = np.ascontiguousarray(J[:, :k_], dtype=np.int64)  # the deeper table let go
+        J = sr.chosen(k_)
         fitted = np.empty(n)
         for a in range(0, n, _FIT_ROWS):
             b = min(n, a + _FIT_ROWS)
@@ -348,9 +357,7 @@ class NeighbourVote:
         sr = _fit_search(X, names, self.k, self.standard_units)
         n, table_max = sr.X.shape[0], sr.table_max
         wrong = [0] * table_max  # rows whose leave-one-out class is wrong, for each k
-        J = np.empty((n, sr.depth), dtype=np.int32)  # n < 2**31: a sheet has 2**20 rows
         for a, b, Jb in sr.blocks():
-            J[a:b] = Jb
             C = codes[Jb]
             # votes per position, grown one neighbour at a time across the k table
             v = np.zeros((b - a, table_max), dtype=np.int64)
@@ -364,7 +371,7 @@ class NeighbourVote:
             del Jb, C, v
         table = [(k, wrong[k - 1] / n) for k in range(1, table_max + 1)]
         k_ = int(self.k) if self.k is not None else _best_k(table)
-        J = np.ascontiguousarray(J[:, :k_], dtype=np.int64)  # the deeper table let go
+        J = sr.chosen(k_)
         pred = np.empty(n, dtype=np.int64)
         votes = np.empty(n, dtype=np.int64)
         for a in range(0, n, _FIT_ROWS):
