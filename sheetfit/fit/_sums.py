@@ -31,32 +31,33 @@ def exact_sum(x: np.ndarray | Sequence[float] | Lazy) -> float:
     time: the same result without a list of the whole array (32 bytes an element). A
     vector that makes its items a block at a time (``sheetfit.vectors.Lazy``) is read a
     block at a time."""
-    if _blockwise(x):
-        return math.fsum(itertools.chain.from_iterable(
-            np.asarray(x[a:a + _BLOCK], dtype=float).ravel().tolist()
-            for a in range(0, len(x), _BLOCK)))
-    v = np.asarray(x, dtype=float).ravel()
-    return math.fsum(itertools.chain.from_iterable(
-        v[a:a + _BLOCK].tolist() for a in range(0, v.size, _BLOCK)))
+    return math.fsum(itertools.chain.from_iterable(b.tolist() for b in _flat_blocks(x)))
 
 
 def exact_dot(a: np.ndarray | Sequence[float] | Lazy,
               b: np.ndarray | Sequence[float] | Lazy) -> float:
     """The exactly rounded sum of the rounded products ``a[i] * b[i]`` (``math.fsum`` of
     ``(a * b).tolist()``), a block at a time."""
-    if _blockwise(a) or _blockwise(b):
-        if len(a) != len(b):
-            raise ValueError("exact_dot of arrays of different lengths")
-        return math.fsum(itertools.chain.from_iterable(
-            (np.asarray(a[k:k + _BLOCK], dtype=float).ravel()
-             * np.asarray(b[k:k + _BLOCK], dtype=float).ravel()).tolist()
-            for k in range(0, len(a), _BLOCK)))
-    u = np.asarray(a, dtype=float).ravel()
-    w = np.asarray(b, dtype=float).ravel()
-    if u.size != w.size:
+    if _size(a) != _size(b):
         raise ValueError("exact_dot of arrays of different lengths")
     return math.fsum(itertools.chain.from_iterable(
-        (u[k:k + _BLOCK] * w[k:k + _BLOCK]).tolist() for k in range(0, u.size, _BLOCK)))
+        (u * w).tolist() for u, w in zip(_flat_blocks(a), _flat_blocks(b), strict=True)))
+
+
+def _size(x: np.ndarray | Sequence[float] | Lazy) -> int:
+    return len(x) if isinstance(x, Lazy) else int(np.size(x))
+
+
+def _flat_blocks(x: np.ndarray | Sequence[float] | Lazy) -> Iterator[np.ndarray]:
+    """The elements of ``x`` (flattened) as float64 blocks of ``_BLOCK``; a Lazy is made
+    a block at a time, never whole."""
+    if isinstance(x, Lazy):
+        for a in range(0, len(x), _BLOCK):
+            yield np.asarray(x[a:a + _BLOCK], dtype=float).ravel()
+        return
+    v = np.asarray(x, dtype=float).ravel()
+    for a in range(0, v.size, _BLOCK):
+        yield v[a:a + _BLOCK]
 
 
 def exact_parts(x: np.ndarray) -> list[float]:
@@ -78,11 +79,6 @@ def exact_parts(x: np.ndarray) -> list[float]:
         if not math.isfinite(s):
             return parts
     raise ArithmeticError("exact_parts did not converge")  # cannot happen (see above)
-
-
-def _blockwise(x: object) -> bool:
-    """A vector made a block at a time: read by slices, never whole."""
-    return isinstance(x, Lazy)
 
 
 def _finish(
