@@ -278,10 +278,10 @@ def plan_residual_sheet(model: ModelData, fitted_ref: Sequence[Part],
     cells, row by row, e.g. ``("'sf m fitted'!F", rows)``.
 
     ``fitted`` and ``resid`` are the cached values (nan where the row has no fitted value,
-    which the sheet shows blank; a :class:`~sheetfit.vectors.Lazy` has one in every row). With ``keys`` (pass ``model.keys``) the identifier
-    columns stand beside the data row and the value columns move right by
-    ``key_width(keys)``: observed, fitted and residual are then in columns
-    1, 2, 3 + that width (0-based).
+    which the sheet shows blank; a :class:`~sheetfit.vectors.Lazy` has one in every row).
+    With ``keys`` (pass ``model.keys``) the identifier columns stand beside the data row
+    and the value columns move right by ``key_width(keys)``: observed, fitted and
+    residual are then in columns 1, 2, 3 + that width (0-based).
     """
     y = model.y
     kw = key_width(keys)
