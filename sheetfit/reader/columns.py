@@ -134,12 +134,7 @@ def column_values(sheet: str, col: int, row1: int, raws: list[Any] | np.ndarray 
             if raws[i]:
                 kind[i], text[i] = _TEXT, raws[i][:TEXT_CAP]
         for i in np.flatnonzero(codes == _ANY).tolist():
-            v = classify(raws[i], date1904)
-            kind[i] = CODE[v.kind]
-            if v.kind == NUMBER:
-                number[i] = v.number
-            elif v.kind != BLANK:
-                text[i] = v.text
+            _one(number, kind, text, i, raws[i], date1904)
     return _overrides(sheet, col, row1, kind, number, text, errors, unsaved)
 
 
